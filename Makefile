@@ -1,0 +1,35 @@
+# Two commands on a fresh machine: `make demo` and `make test`.
+PYTHON ?= python3
+VENV := .venv
+BIN := $(VENV)/bin
+STAMP := $(VENV)/.installed
+TEST_STAMP := $(VENV)/.installed-test
+
+.PHONY: demo test lint bench clean
+
+$(BIN)/python:
+	$(PYTHON) -m venv $(VENV)
+	$(BIN)/python -m pip install --quiet --upgrade pip
+
+$(STAMP): pyproject.toml | $(BIN)/python
+	$(BIN)/python -m pip install --quiet -e .
+	touch $@
+
+$(TEST_STAMP): pyproject.toml | $(BIN)/python
+	$(BIN)/python -m pip install --quiet -e '.[test]'
+	touch $@ $(STAMP)
+
+demo: $(STAMP)
+	$(BIN)/python -m crn.demo --out out
+
+test: $(TEST_STAMP)
+	$(BIN)/python -m pytest -q
+
+lint: $(TEST_STAMP)
+	$(BIN)/ruff check crn tests benchmarks
+
+bench: $(STAMP)
+	for b in benchmarks/bench_*.py; do $(BIN)/python $$b || exit 1; done
+
+clean:
+	rm -rf $(VENV) out .pytest_cache

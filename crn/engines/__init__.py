@@ -1,0 +1,1 @@
+"""Stochastic engines: each returns :class:`~crn.engines.base.Trajectory` objects."""

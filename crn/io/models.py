@@ -1,0 +1,82 @@
+"""Open model files: TOML tables (parsed safely) and trusted Python files."""
+
+from __future__ import annotations
+
+import runpy
+from pathlib import Path
+
+from ..errors import CRNError, ModelError
+from ..model import Model, parse_model
+from ..network import Network
+from ..protocol import Protocol
+from ..translate import protocol_to_network
+
+__all__ = ["load_model"]
+
+
+def load_model(path, overrides=None) -> Model:
+    """Load a model file.
+
+    Parameters
+    ----------
+    path : str or Path
+        A ``.toml`` model (DESIGN.md format, never runs code) or a ``.py``
+        model. A Python model file is ordinary trusted Python: it is run, so
+        load only files you trust. It defines ``PARAMETERS`` (a dict of
+        defaults, optional) and ``build(parameters)`` returning a
+        :class:`~crn.protocol.Protocol` or a :class:`~crn.network.Network`
+        (see :func:`crn.generate.protocol_from_rule`).
+    overrides : mapping of str to number, optional
+        Parameter values replacing the file's (``--set``).
+
+    Returns
+    -------
+    Model
+
+    Raises
+    ------
+    ModelError
+        When the file is missing, unreadable or invalid.
+    """
+    path = Path(path)
+    if not path.is_file():
+        raise ModelError("no such model file", file=path)
+    try:
+        text = path.read_text(encoding="utf-8")
+    except (OSError, UnicodeDecodeError) as err:
+        raise ModelError(f"cannot read the file: {err}", file=path) from err
+    if path.suffix == ".py":
+        return _load_python(path, overrides or {})
+    return parse_model(text, source=str(path), overrides=overrides)
+
+
+def _load_python(path: Path, overrides) -> Model:
+    try:
+        namespace = runpy.run_path(str(path))
+    except Exception as err:  # a trusted file: report whatever it raised, in one line
+        raise ModelError(f"running the Python model failed: {type(err).__name__}: {err}",
+                         file=path) from err
+    build = namespace.get("build")
+    if not callable(build):
+        raise ModelError("a Python model defines build(parameters)", file=path, field="build")
+    params = dict(namespace.get("PARAMETERS", {}))
+    for key, value in overrides.items():
+        if key not in params:
+            raise ModelError(f"--set names unknown parameter {key!r} "
+                             f"(parameters: {', '.join(params) or 'none'})", file=path,
+                             field=f"PARAMETERS.{key}")
+        params[key] = value
+    try:
+        built = build(params)
+    except CRNError as err:
+        if isinstance(err, ModelError):
+            raise err.located(file=path) from err
+        raise ModelError(str(err), file=path) from err
+    except Exception as err:
+        raise ModelError(f"build() failed: {type(err).__name__}: {err}", file=path) from err
+    if isinstance(built, Protocol):
+        return Model(built.name, built.about, str(path), params, protocol_to_network(built), built)
+    if isinstance(built, Network):
+        return Model(built.name, built.about, str(path), params, built)
+    raise ModelError(f"build() must return a Protocol or a Network, got {type(built).__name__}",
+                     file=path, field="build")

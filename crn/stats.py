@@ -1,0 +1,49 @@
+"""Small statistics shared by reports: binomial intervals and quantile summaries."""
+
+from __future__ import annotations
+
+import numpy as np
+from scipy import stats as _stats
+
+__all__ = ["wilson_interval", "time_summary"]
+
+
+def wilson_interval(successes: int, trials: int, confidence: float = 0.95):
+    """Wilson score interval for a binomial proportion.
+
+    Parameters
+    ----------
+    successes, trials : int
+    confidence : float, default 0.95
+
+    Returns
+    -------
+    (p, low, high) : tuple of float
+        The point estimate and the interval; ``(nan, 0, 1)`` for zero trials.
+
+    References
+    ----------
+    Wilson, "Probable inference, the law of succession, and statistical
+    inference", J. Amer. Statist. Assoc. 22:209-212, 1927.
+    """
+    if trials < 0 or not 0 <= successes <= trials:
+        raise ValueError(f"need 0 <= successes <= trials, got {successes} of {trials}")
+    if trials == 0:
+        return float("nan"), 0.0, 1.0
+    z = _stats.norm.ppf(0.5 + confidence / 2)
+    p = successes / trials
+    denom = 1 + z * z / trials
+    centre = (p + z * z / (2 * trials)) / denom
+    half = z * np.sqrt(p * (1 - p) / trials + z * z / (4 * trials * trials)) / denom
+    return p, max(0.0, centre - half), min(1.0, centre + half)
+
+
+def time_summary(times) -> dict | None:
+    """``{mean, median, q05, q95}`` of the finite entries of ``times``, None if there are none."""
+    t = np.asarray(times, dtype=float)
+    t = t[np.isfinite(t)]
+    if t.size == 0:
+        return None
+    q05, median, q95 = np.quantile(t, [0.05, 0.5, 0.95])
+    return {"mean": float(t.mean()), "median": float(median), "q05": float(q05),
+            "q95": float(q95)}
