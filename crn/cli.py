@@ -127,19 +127,22 @@ _register()
 def main(argv=None) -> int:
     """Entry point of the ``crn`` console script: exit 0, or 2 with a one-line error."""
     try:
-        cli.main(args=argv, prog_name="crn", standalone_mode=False)
+        code = cli.main(args=argv, prog_name="crn", standalone_mode=False)
     except click.exceptions.Abort:
         click.echo("crn: interrupted", err=True)
         return 130
     except click.exceptions.Exit as done:
         return done.exit_code
     except click.ClickException as err:
-        click.echo(f"crn: {_one_line(err.format_message())}", err=True)
+        if type(err).__name__ == "NoArgsIsHelpError":  # bare `crn`: show the help as it is
+            click.echo(err.format_message(), err=True)
+        else:
+            click.echo(f"crn: {_one_line(err.format_message())}", err=True)
         return EXIT_BAD_INPUT
     except CRNError as err:
         click.echo(f"crn: {_one_line(str(err))}", err=True)
         return EXIT_BAD_INPUT
-    return 0
+    return code if isinstance(code, int) else 0
 
 
 def _one_line(text: str) -> str:

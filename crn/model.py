@@ -233,7 +233,8 @@ class _Builder:
         data = self.data
         for key in data:
             if key not in _TOP_KEYS:
-                raise self.error(f"unknown key {key!r}; expected one of {', '.join(sorted(_TOP_KEYS))}",
+                expected = ", ".join(sorted(_TOP_KEYS))
+                raise self.error(f"unknown key {key!r}; expected one of {expected}",
                                  key=key, field_name=key)
         name = data.get("name")
         if not isinstance(name, str) or not name.strip():
@@ -271,16 +272,18 @@ class _Builder:
         for key, value in raw.items():
             if not is_identifier(key):
                 raise self.error(f"parameter name {key!r} is not an identifier", "parameters", key)
+            if key in overrides:  # before later parameters that depend on it are evaluated
+                params[key] = overrides[key]
+                continue
             try:
                 params[key] = evaluate(value, params)
             except ExpressionError as err:
                 raise self.error(str(err), "parameters", key) from err
-        for key, value in overrides.items():
+        for key in overrides:
             if key not in params:
                 known = ", ".join(params) or "none"
                 raise ModelError(f"--set names unknown parameter {key!r} (parameters: {known})",
                                  file=self.file, field=f"parameters.{key}")
-            params[key] = value
         return params
 
     def initial(self, params):

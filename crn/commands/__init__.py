@@ -3,4 +3,14 @@
 Add a command by writing its module and listing its click command in ``COMMANDS``.
 """
 
-COMMANDS = []
+from .check import check
+from .compare import compare
+from .copies import copies
+from .exact import exact
+from .ode import ode
+from .regimes import regimes
+from .ssa import ssa
+from .translate import translate
+from .verify import verify
+
+COMMANDS = [translate, check, exact, verify, ode, ssa, compare, regimes, copies]

@@ -20,10 +20,11 @@ def load_model(path, overrides=None) -> Model:
     Parameters
     ----------
     path : str or Path
-        A ``.toml`` model (DESIGN.md format, never runs code) or a ``.py``
-        model. A Python model file is ordinary trusted Python: it is run, so
-        load only files you trust. It defines ``PARAMETERS`` (a dict of
-        defaults, optional) and ``build(parameters)`` returning a
+        A ``.toml`` model (DESIGN.md format, never runs code), a network
+        exported as ``.json`` (the contract object) or SBML (``.xml``,
+        ``.sbml``), or a ``.py`` model. A Python model file is ordinary
+        trusted Python: it is run, so load only files you trust. It defines
+        ``PARAMETERS`` (a dict of defaults, optional) and ``build(parameters)`` returning a
         :class:`~crn.protocol.Protocol` or a :class:`~crn.network.Network`
         (see :func:`crn.generate.protocol_from_rule`).
     overrides : mapping of str to number, optional
@@ -47,7 +48,22 @@ def load_model(path, overrides=None) -> Model:
         raise ModelError(f"cannot read the file: {err}", file=path) from err
     if path.suffix == ".py":
         return _load_python(path, overrides or {})
+    if path.suffix in (".json", ".xml", ".sbml"):
+        return _load_network(path, text, overrides or {})
     return parse_model(text, source=str(path), overrides=overrides)
+
+
+def _load_network(path: Path, text: str, overrides) -> Model:
+    """A network exported as JSON (the contract object) or SBML; it has no parameters."""
+    from .contract import network_from_json
+    from .sbml import network_from_sbml
+
+    if overrides:
+        raise ModelError(f"--set names unknown parameter {next(iter(overrides))!r} "
+                         "(parameters: none)", file=path, field="--set")
+    reader = network_from_json if path.suffix == ".json" else network_from_sbml
+    net = reader(text, source=str(path))
+    return Model(net.name, net.about, str(path), {}, net)
 
 
 def _load_python(path: Path, overrides) -> Model:
