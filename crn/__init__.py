@@ -1,4 +1,4 @@
-"""crn: population protocols as chemical reaction networks, mean field and exact stochastics side by side."""
+"""crn: population protocols as reaction networks; mean field and exact stochastics side by side."""
 
 from .errors import CRNError, ExpressionError, ModelError
 from .model import Model, parse_model

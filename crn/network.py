@@ -248,7 +248,8 @@ class Network:
     def reaction(self, i: int) -> Reaction:
         """Return reaction ``i`` as a named :class:`Reaction`."""
         def side(species, counts):
-            return {self.species[s]: int(m) for s, m in zip(species[i], counts[i]) if s >= 0}
+            pairs = zip(species[i], counts[i], strict=True)
+            return {self.species[s]: int(m) for s, m in pairs if s >= 0}
 
         return Reaction(
             side(self.reactant_species, self.reactant_counts),
@@ -268,7 +269,8 @@ class Network:
     @property
     def output(self) -> dict[str, str]:
         """Species name -> label, for the species that report one."""
-        return {s: self.labels[k] for s, k in zip(self.species, self.species_label) if k >= 0}
+        pairs = zip(self.species, self.species_label, strict=True)
+        return {s: self.labels[k] for s, k in pairs if k >= 0}
 
     @property
     def majority(self) -> tuple[str, str] | None:

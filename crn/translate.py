@@ -126,7 +126,7 @@ def network_to_protocol(net: Network, bound: float | None = None) -> tuple[Proto
         net.name,
         net.species,
         transitions,
-        {s: int(c) for s, c in zip(net.species, net.initial) if c},
+        {s: int(c) for s, c in zip(net.species, net.initial, strict=True) if c},
         net.output,
         net.majority,
         net.about,

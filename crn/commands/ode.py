@@ -1,0 +1,208 @@
+"""``crn ode``: the mean-field ODE of a model, its consensus, fixed points and equations."""
+
+from __future__ import annotations
+
+import math
+
+import click
+import numpy as np
+
+from ..cli import emit_json, json_option, load, model_argument, set_option
+from ..ode import METHODS, solve_mean_field
+
+__all__ = ["ode"]
+
+
+def _parse_times(text: str | None):
+    if text is None:
+        return None
+    try:
+        times = [float(part) for part in text.split(",") if part.strip()]
+    except ValueError as err:
+        raise click.BadParameter(f"expected numbers separated by commas, got {text!r}",
+                                 param_hint="--at") from err
+    if not times or any(not math.isfinite(t) or t < 0 for t in times):
+        raise click.BadParameter(f"times must be finite and >= 0, got {text!r}",
+                                 param_hint="--at")
+    return np.unique(np.asarray(times, dtype=np.float64))
+
+
+def _number(x: float):
+    x = float(x)
+    return x if math.isfinite(x) else None
+
+
+def _eigenvalue(z: complex, tol: float = 1e-7):
+    z = complex(z)
+    return _number(z.real) if abs(z.imag) <= tol * max(1.0, abs(z)) else {
+        "re": _number(z.real), "im": _number(z.imag)}
+
+
+def _fixed_point_dict(point, species) -> dict:
+    return {
+        "point": {s: _number(v) for s, v in zip(species, point.point, strict=True)},
+        "classification": point.classification,
+        "eigenvalues": [_eigenvalue(z) for z in point.eigenvalues],
+        "unstable_directions": [{s: _number(v) for s, v in zip(species, d, strict=True)}
+                                for d in point.unstable_directions],
+        "consensus": point.consensus,
+        "tie": point.tie,
+        "exact": point.exact,
+    }
+
+
+def _format_point(point, species) -> str:
+    if point.exact is not None:
+        return ", ".join(f"{s}={point.exact[s]}" for s in species)
+    return ", ".join(f"{s}={v:.6g}" for s, v in zip(species, point.point, strict=True))
+
+
+def _format_eigenvalues(values) -> str:
+    parts = []
+    for z in values:
+        z = complex(z)
+        parts.append(f"{z.real:.6g}" if abs(z.imag) <= 1e-12 * max(1, abs(z))
+                     else f"{z.real:.6g}{z.imag:+.6g}i")
+    return ", ".join(parts) if parts else "-"
+
+
+@click.command("ode")
+@model_argument
+@set_option
+@click.option("--until", type=click.FloatRange(min=0, min_open=True), default=None,
+              metavar="T", help="Horizon (parallel time for protocols). Default: run until "
+                                "consensus, capped at a multiple of the natural time scale.")
+@click.option("--at", "at", default=None, metavar="t1,t2,...",
+              help="Report the solution at these times (the solve then runs past consensus).")
+@click.option("--plot", "plot_file", type=click.Path(dir_okay=False), default=None,
+              metavar="FILE", help="Save a figure of the fractions against time (png, pdf, svg).")
+@click.option("--csv", "csv_file", type=click.Path(dir_okay=False), default=None,
+              metavar="FILE", help="Write the trajectory as CSV (time, then one column per "
+                                   "species).")
+@json_option
+@click.option("--equations", is_flag=True, help="Print the ODE system instead of solving it.")
+@click.option("--latex", is_flag=True, help="Print the ODE system as LaTeX instead of solving it.")
+@click.option("--method", type=click.Choice(METHODS), default="LSODA", show_default=True,
+              help="Integrator of scipy's solve_ivp (BDF or Radau for stiff networks).")
+@click.option("--fixed-points/--no-fixed-points", "with_fixed_points", default=True,
+              show_default=True, help="Find the fixed points on the conserved simplex.")
+def ode(model, sets, until, at, plot_file, csv_file, as_json, equations, latex, method,
+        with_fixed_points):
+    """Solve the mean-field ODE of MODEL: fractions of the population against parallel
+    time for a protocol (n -> infinity), concentrations for a network. Reports the
+    consensus (the agents not reporting the leading label make fewer than one
+    molecule) and the fixed points with their stability."""
+    loaded = load(model, sets)
+    net = loaded.network
+    if equations or latex:
+        _print_equations(net, latex, as_json)
+        return
+    times = _parse_times(at)
+    if times is not None and until is not None and times[-1] > until:
+        raise click.BadParameter(f"time {times[-1]:g} is beyond --until {until:g}",
+                                 param_hint="--at")
+    result = solve_mean_field(net, until=until, times=times, method=method,
+                              stop_at_consensus=times is None)
+    points = None
+    if with_fixed_points:
+        from ..fixed_points import find_fixed_points
+
+        points = find_fixed_points(net)
+    if csv_file:
+        from ..io.ode_files import write_mean_field_csv
+
+        write_mean_field_csv(csv_file, result)
+    if plot_file:
+        _plot(result, loaded.name, plot_file)
+    if as_json:
+        emit_json(_json(loaded, result, points))
+        return
+    click.echo(_text(loaded, result, points))
+
+
+def _print_equations(net, latex: bool, as_json: bool) -> None:
+    from ..equations import format_equations, mean_field_equations
+
+    if as_json:
+        import sympy
+
+        obj = {"species": list(net.species),
+               "units": "fraction" if net.from_protocol else "concentration",
+               "equations": {s: sympy.sstr(e) for s, e in mean_field_equations(net).items()}}
+        if latex:
+            obj["latex"] = format_equations(net, latex=True)
+        emit_json(obj)
+        return
+    click.echo(format_equations(net, latex=latex), nl=False)
+
+
+def _plot(result, name: str, path) -> None:
+    import matplotlib
+
+    matplotlib.use("Agg")
+    import matplotlib.pyplot as plt
+
+    from ..io.ode_files import save_figure
+    from ..plots.ode import plot_mean_field
+
+    ax = plot_mean_field(result, title=f"Mean-field ODE of {name}")
+    try:
+        save_figure(path, ax.figure)
+    finally:
+        plt.close(ax.figure)
+
+
+def _json(loaded, result, points) -> dict:
+    from ..outcome import correct_label
+
+    net = loaded.network
+    outcome = result.consensus
+    obj = {
+        "model": loaded.name,
+        "units": result.units,
+        "molecules_per_unit": result.molecules_per_unit,
+        "method": result.method,
+        "status": result.status,
+        "message": result.message,
+        "times": result.times,
+        "fractions": result.fractions,
+        "consensus": (None if outcome.label is None
+                      else {"label": outcome.label, "time": outcome.time}),
+        "final_label": outcome.final_label,
+        "held": outcome.held,
+        "correct": correct_label(net),
+        "fixed_points": None if points is None else [_fixed_point_dict(p, net.species)
+                                                     for p in points],
+    }
+    if result.units == "concentration":
+        obj["concentrations"] = {s: result.values[:, i] for i, s in enumerate(net.species)}
+    return obj
+
+
+def _text(loaded, result, points) -> str:
+    net = loaded.network
+    unit = (f"fractions of n = {result.molecules_per_unit:g} agents, parallel time"
+            if result.units == "fraction"
+            else f"concentrations (molecules / {result.molecules_per_unit:g}), network time")
+    outcome = result.consensus
+    lines = [f"{loaded.name}: mean-field ODE in {unit} ({result.method})"]
+    if outcome.label is None:
+        lines.append(f"consensus    none by t = {result.times[-1]:.6g}")
+    else:
+        lines.append(f"consensus    {outcome.label} at t = {outcome.time:.6g}")
+    if result.status < 0:
+        lines.append(f"solver       failed: {result.message}")
+    width = max(len(s) for s in net.species) if net.n_species else 0
+    t_end = result.times[-1] if result.times.size else 0.0
+    lines.append(f"at t = {t_end:.6g}:")
+    for s, v in result.final.items():
+        lines.append(f"  {s:<{width}}  {v:.6g}")
+    if points is not None:
+        lines.append("fixed points on the conserved simplex:" if net.from_protocol
+                     else "fixed points (with the initial state's conserved totals):")
+        for p in points:
+            tag = (f" (consensus {p.consensus})" if p.consensus else "") + (" (tie)" if p.tie
+                                                                             else "")
+            lines.append(f"  {_format_point(p, net.species)}: {p.classification}{tag}; "
+                         f"eigenvalues {_format_eigenvalues(p.eigenvalues)}")
+    return "\n".join(lines)
