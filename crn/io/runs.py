@@ -1,0 +1,58 @@
+"""Per-run tables of a stochastic ensemble (CSV)."""
+
+from __future__ import annotations
+
+import csv
+import io
+
+import numpy as np
+
+from .exports import write_atomic
+
+__all__ = ["runs_csv", "write_runs_csv"]
+
+_COLUMNS = ("run", "label", "consensus_time", "final_label", "held", "events", "end_time",
+            "status")
+
+
+def runs_csv(ensemble) -> str:
+    """One CSV row per run: run index, first consensus label (``none``) and time, final label,
+    whether it held, events fired, end time, status, then the final count of each species.
+
+    Parameters
+    ----------
+    ensemble : crn.simulate.Ensemble
+
+    Returns
+    -------
+    str
+    """
+    out = io.StringIO()
+    writer = csv.writer(out, lineterminator="\n")
+    writer.writerow([*_COLUMNS, *(f"final_{s}" for s in ensemble.species)])
+    for r in range(ensemble.runs):
+        t = ensemble.consensus_times[r]
+        final = ensemble.counts[r, -1] if ensemble.counts.shape[1] else []
+        writer.writerow([
+            int(ensemble.run_index[r]),
+            ensemble.labels[r] or "none",
+            "" if not np.isfinite(t) else repr(float(t)),
+            ensemble.final_labels[r] or "none",
+            bool(ensemble.held[r]),
+            int(ensemble.events[r]),
+            repr(float(ensemble.end_times[r])),
+            ensemble.statuses[r],
+            *(int(c) for c in final),
+        ])
+    return out.getvalue()
+
+
+def write_runs_csv(ensemble, path) -> None:
+    """Write :func:`runs_csv` to ``path`` atomically (temporary file and rename).
+
+    Raises
+    ------
+    CRNError
+        When the file cannot be written.
+    """
+    write_atomic(path, runs_csv(ensemble))

@@ -1,0 +1,415 @@
+"""Ensembles of exact stochastic runs: one driver, a table of engines, local or cluster workers.
+
+Every run r of an ensemble draws from child r of ``SeedSequence(entropy)``
+(``SeedSequence.spawn``), and its result depends on nothing else, so the same
+seed gives the same ensemble in process, on a local process pool of any size
+and on a Dask cluster.
+"""
+
+from __future__ import annotations
+
+import importlib
+import math
+import os
+from collections.abc import Callable
+from dataclasses import dataclass, field
+
+import numpy as np
+
+from .engines.base import Trajectory
+from .errors import CRNError
+from .network import Network
+from .outcome import NO_CONSENSUS, tally
+from .stats import time_summary
+
+__all__ = ["Ensemble", "SimulationInterrupted", "simulate", "ENGINES", "choose_engine",
+           "default_horizon", "run_chunk", "AUTO_BATCHED_FROM"]
+
+ENGINES = {
+    "direct": ("crn.engines.direct", "run_direct"),
+    "batched": ("crn.engines.batched", "run_batched"),
+    "reference": ("crn.reference", "run_reference"),
+}
+AUTO_BATCHED_FROM = 100_000
+"""Agents from which ``engine="auto"`` runs a protocol with the batched engine."""
+
+
+@dataclass(frozen=True)
+class Ensemble:
+    """R stochastic runs of one network.
+
+    Attributes
+    ----------
+    runs : int
+        Runs in the ensemble (finished runs, if it was interrupted).
+    engine : str
+        The engine that ran them (``"auto"`` resolved).
+    seed_entropy : int
+        Entropy of the root ``SeedSequence``; ``simulate(..., rng=seed_entropy)``
+        reproduces the ensemble.
+    labels : list of str or None, length runs
+        First consensus label of each run (None: none by the horizon).
+    consensus_times : ndarray of float64, shape (runs,)
+        First consensus time, NaN for none.
+    final_labels : list of str or None
+        Consensus label at the end of each run.
+    held : ndarray of bool, shape (runs,)
+        Whether the first consensus label still held at the end.
+    times : ndarray of float64, shape (n_times,)
+        Sample times.
+    counts : ndarray of int64, shape (runs, n_times, n_species)
+    events : ndarray of int64, shape (runs,)
+        Reactions fired per run (-1 when the engine does not report it).
+    end_times : ndarray of float64, shape (runs,)
+    statuses : list of str
+        ``"horizon"``, ``"silent"`` or ``"consensus"`` per run.
+    until : float
+        The horizon.
+    species : tuple of str
+    run_index : ndarray of int64, shape (runs,)
+        Which child stream each run used (0..requested-1; all of them unless interrupted).
+    requested : int
+        Runs asked for.
+    """
+
+    runs: int
+    engine: str
+    seed_entropy: int
+    labels: list
+    consensus_times: np.ndarray
+    final_labels: list
+    held: np.ndarray
+    times: np.ndarray
+    counts: np.ndarray
+    events: np.ndarray
+    end_times: np.ndarray
+    statuses: list
+    until: float
+    species: tuple
+    run_index: np.ndarray = field(default=None)
+    requested: int = 0
+
+    @property
+    def complete(self) -> bool:
+        """Whether every requested run finished."""
+        return self.runs == self.requested
+
+    def outcomes(self) -> dict[str, int]:
+        """First-consensus label -> number of runs, with ``"none"`` for no consensus."""
+        out = tally(self.labels)
+        out.setdefault(NO_CONSENSUS, 0)
+        return out
+
+    def consensus_time_summary(self) -> dict | None:
+        """``{mean, median, q05, q95}`` of the consensus times of runs that reached one."""
+        return time_summary(self.consensus_times)
+
+    @classmethod
+    def from_trajectories(cls, trajectories, *, engine, seed_entropy, until, species,
+                          times, run_index=None, requested=None) -> Ensemble:
+        """Collect runs (in run order) into an ensemble."""
+        trajectories = list(trajectories)
+        r = len(trajectories)
+        n_species = len(species)
+        counts = (np.stack([t.counts for t in trajectories]) if r
+                  else np.zeros((0, len(times), n_species), dtype=np.int64))
+        return cls(
+            runs=r, engine=engine, seed_entropy=seed_entropy,
+            labels=[t.outcome.label for t in trajectories],
+            consensus_times=np.array([np.nan if t.outcome.time is None else t.outcome.time
+                                      for t in trajectories], dtype=np.float64),
+            final_labels=[t.outcome.final_label for t in trajectories],
+            held=np.array([t.outcome.held for t in trajectories], dtype=bool),
+            times=np.asarray(times, dtype=np.float64), counts=counts.astype(np.int64),
+            events=np.array([t.events for t in trajectories], dtype=np.int64),
+            end_times=np.array([t.end_time for t in trajectories], dtype=np.float64),
+            statuses=[t.status for t in trajectories], until=float(until),
+            species=tuple(species),
+            run_index=np.arange(r, dtype=np.int64) if run_index is None
+            else np.asarray(run_index, dtype=np.int64),
+            requested=r if requested is None else int(requested),
+        )
+
+
+class SimulationInterrupted(KeyboardInterrupt):
+    """Ctrl-C during :func:`simulate`; ``ensemble`` holds the runs that finished.
+
+    A subclass of KeyboardInterrupt, so code that does not look for it still
+    sees an ordinary interruption.
+    """
+
+    def __init__(self, ensemble: Ensemble):
+        super().__init__(f"interrupted after {ensemble.runs} of {ensemble.requested} runs")
+        self.ensemble = ensemble
+
+
+def default_horizon(net: Network) -> float:
+    """The horizon :func:`simulate` uses when ``until`` is None.
+
+    For a protocol's network: ``20 (1 + ln n)`` parallel time. The protocols
+    this tool targets decide in O(log n) parallel time (epidemic: about ln n;
+    approximate majority: O(log n) w.h.p., Angluin, Aspnes, Eisenstat 2008), so
+    this is many times their typical consensus time; runs that fall silent at
+    consensus stop there anyway. For other networks: ten times the slowest
+    time scale ``1 / (k (N / v)^(order-1))`` of a reaction of order >= 1 at the
+    initial total count N (``1 / k`` per unit volume for zero-order ones alone).
+
+    Parameters
+    ----------
+    net : Network
+
+    Returns
+    -------
+    float
+    """
+    n = max(net.population, 2)
+    if net.from_protocol:
+        return 20.0 * (1.0 + math.log(n))
+    scales = []
+    for k, order in zip(net.rates, net.orders, strict=True):
+        if k > 0 and order >= 1:
+            scales.append(1.0 / (k * (n / net.volume) ** (order - 1)))
+    if not scales:
+        scales = [1.0 / (k * net.volume) * n for k in net.rates if k > 0] or [1.0]
+    return 10.0 * max(scales)
+
+
+def choose_engine(net: Network, engine: str = "auto") -> str:
+    """Resolve ``engine`` (``"auto"``: batched for protocols from AUTO_BATCHED_FROM agents).
+
+    Raises
+    ------
+    CRNError
+        For an unknown engine name.
+    """
+    if engine not in ("auto", *ENGINES):
+        raise CRNError(f"unknown engine {engine!r}; choose auto, {', '.join(ENGINES)}")
+    if engine != "auto":
+        return engine
+    if net.from_protocol and net.population >= AUTO_BATCHED_FROM and _available("batched"):
+        return "batched"
+    return "direct"
+
+
+def _available(engine: str) -> bool:
+    try:
+        _engine(engine)
+    except (ImportError, AttributeError):
+        return False
+    return True
+
+
+def _engine(name: str) -> Callable[..., Trajectory]:
+    module, attr = ENGINES[name]
+    return getattr(importlib.import_module(module), attr)
+
+
+def run_chunk(net: Network, engine: str, until: float, times, stop_at_consensus: bool,
+              seeds) -> list[Trajectory]:
+    """Run one engine once per child seed (the task sent to pool and cluster workers)."""
+    run = _engine(engine)
+    return [run(net, until=until, times=times, rng=np.random.default_rng(s),
+                stop_at_consensus=stop_at_consensus) for s in seeds]
+
+
+def _root(rng) -> np.random.SeedSequence:
+    if isinstance(rng, np.random.SeedSequence):
+        return np.random.SeedSequence(rng.entropy, spawn_key=rng.spawn_key)
+    if isinstance(rng, np.random.Generator):
+        return np.random.SeedSequence(int(rng.integers(0, 2**63)))
+    if rng is None or isinstance(rng, int | np.integer):
+        return np.random.SeedSequence(None if rng is None else int(rng))
+    raise TypeError(f"`rng` must be a Generator, int, SeedSequence or None, got {type(rng)}")
+
+
+def _ignore_sigint():
+    import signal
+
+    signal.signal(signal.SIGINT, signal.SIG_IGN)
+
+
+def simulate(net: Network, *, runs: int = 1, until: float | None = None, times=None,
+             engine: str = "auto", rng=None, workers: int | None = None,
+             cluster: str | None = None, stop_at_consensus: bool = False,
+             progress: Callable[[int, int], None] | None = None) -> Ensemble:
+    """Run an ensemble of exact stochastic simulations.
+
+    Parameters
+    ----------
+    net : Network
+    runs : int, default 1
+    until : float, optional
+        Horizon in network time (parallel time for protocols); default
+        :func:`default_horizon`.
+    times : array_like of float, shape (n_times,), optional
+        Sample times in ``[0, until]``; default 101 evenly spaced points.
+    engine : {"auto", "direct", "batched", "reference"}
+        ``"direct"``: optimised direct method (:func:`crn.engines.direct.run_direct`);
+        ``"batched"``: batched exact simulation of protocols; ``"reference"``:
+        the GillesPy2 library; ``"auto"``: see :func:`choose_engine`.
+    rng : numpy.random.Generator, int, SeedSequence or None
+        Root of the child streams; None draws fresh entropy (recorded in the result).
+    workers : int, optional
+        Local processes (default: all cores); 1 runs in this process.
+    cluster : str, optional
+        Address of a Dask distributed scheduler (``"tcp://HOST:PORT"``); the
+        runs go there instead of to local processes.
+    stop_at_consensus : bool, default False
+    progress : callable(done, total), optional
+        Called as runs finish.
+
+    Returns
+    -------
+    Ensemble
+        Runs in child-stream order.
+
+    Raises
+    ------
+    ValueError
+        For ``runs < 1`` or ``workers < 1``.
+    CRNError
+        For an unknown engine or an unreachable cluster.
+    SimulationInterrupted
+        On Ctrl-C, carrying the finished runs.
+
+    References
+    ----------
+    NumPy, "Parallel random number generation" (``SeedSequence.spawn``).
+
+    Examples
+    --------
+    >>> from crn.io.models import load_model
+    >>> net = load_model("models/epidemic.toml", {"n": 50}).network
+    >>> ens = simulate(net, runs=4, rng=1, workers=1, stop_at_consensus=True)
+    >>> ens.outcomes()
+    {'I': 4, 'none': 0}
+    """
+    if isinstance(runs, bool) or not isinstance(runs, int | np.integer) or runs < 1:
+        raise ValueError(f"`runs` must be a positive integer, got {runs!r}")
+    if workers is not None and workers < 1:
+        raise ValueError(f"`workers` must be at least 1, got {workers}")
+    name = choose_engine(net, engine)
+    until = default_horizon(net) if until is None else float(until)
+    if not np.isfinite(until) or until <= 0:
+        raise ValueError(f"`until` must be a positive finite time, got {until}")
+    times = (np.linspace(0.0, until, 101) if times is None
+             else np.asarray(times, dtype=np.float64).reshape(-1))
+    root = _root(rng)
+    children = root.spawn(int(runs))
+    workers = (os.cpu_count() or 1) if workers is None else int(workers)
+    done: dict[int, Trajectory] = {}
+    report = progress or (lambda d, t: None)
+    task = (net, name, until, times, bool(stop_at_consensus))
+    try:
+        if cluster is not None:
+            _on_cluster(cluster, task, children, done, report)
+        elif workers == 1 or runs == 1:
+            for i, child in enumerate(children):
+                try:
+                    done[i] = run_chunk(*task, [child])[0]
+                except SystemError as err:
+                    # Ctrl-C inside a numba kernel surfaces as a SystemError caused by it
+                    if isinstance(err.__cause__, KeyboardInterrupt):
+                        raise KeyboardInterrupt from err
+                    raise
+                report(len(done), runs)
+        else:
+            _on_pool(workers, task, children, done, report)
+    except KeyboardInterrupt as err:
+        raise SimulationInterrupted(_collect(done, name, root, until, net, times, runs)) from err
+    return _collect(done, name, root, until, net, times, runs)
+
+
+def _collect(done, name, root, until, net, times, runs) -> Ensemble:
+    order = sorted(done)
+    return Ensemble.from_trajectories([done[i] for i in order], engine=name,
+                                      seed_entropy=int(root.entropy), until=until,
+                                      species=net.species, times=times, run_index=order,
+                                      requested=runs)
+
+
+def _chunks(n_runs: int, workers: int) -> list[range]:
+    size = max(1, min(8, n_runs // (32 * workers)))
+    return [range(i, min(i + size, n_runs)) for i in range(0, n_runs, size)]
+
+
+def _on_pool(workers, task, children, done, report):
+    import multiprocessing
+    from concurrent.futures import FIRST_COMPLETED, ProcessPoolExecutor, wait
+
+    context = multiprocessing.get_context("spawn")
+    pool = ProcessPoolExecutor(max_workers=workers, mp_context=context,
+                               initializer=_ignore_sigint)
+    futures = {}
+    try:
+        for chunk in _chunks(len(children), workers):
+            futures[pool.submit(run_chunk, *task, [children[i] for i in chunk])] = chunk
+        pending = set(futures)
+        while pending:
+            finished, pending = wait(pending, return_when=FIRST_COMPLETED)
+            for future in finished:
+                for i, trajectory in zip(futures[future], future.result(), strict=True):
+                    done[i] = trajectory
+            report(len(done), len(children))
+    except BaseException:
+        _terminate(pool)
+        raise
+    finally:
+        # not cancel_futures: after the workers are terminated the pool fails the queued
+        # futures itself, and Python 3.11 errors on failing a future cancelled before.
+        pool.shutdown(wait=False)
+
+
+def _terminate(pool) -> None:
+    """Stop the pool's worker processes now (on Ctrl-C) instead of after their queued chunks."""
+    terminate = getattr(pool, "terminate_workers", None)  # Python >= 3.14
+    if terminate is not None:
+        terminate()
+        return
+    for process in list((getattr(pool, "_processes", None) or {}).values()):
+        process.terminate()
+
+
+def _probe(address: str) -> None:
+    """Fail fast on a refused TCP address instead of waiting out Dask's connect retries."""
+    import socket
+    from urllib.parse import urlsplit
+
+    parts = urlsplit(address if "://" in address else f"tcp://{address}")
+    if parts.scheme not in ("tcp", "tls") or parts.port is None:
+        return
+    try:
+        socket.create_connection((parts.hostname, parts.port), timeout=5).close()
+    except OSError as err:
+        raise CRNError(f"cannot reach the Dask scheduler at {address}: {err}") from err
+
+
+def _on_cluster(address, task, children, done, report):
+    try:
+        from distributed import Client, as_completed
+    except ImportError as err:  # pragma: no cover - dask is a dependency
+        raise CRNError("--cluster needs dask.distributed") from err
+    _probe(address)
+    try:
+        client = Client(address, timeout="10s", set_as_default=False)
+    except (OSError, TimeoutError) as err:
+        raise CRNError(f"cannot reach the Dask scheduler at {address}: {err}") from err
+    futures = []
+    try:
+        n_workers = max(1, len(client.scheduler_info().get("workers", {})))
+        scattered = client.scatter(task[0], broadcast=True)
+        chunk_of = {}
+        for chunk in _chunks(len(children), n_workers):
+            future = client.submit(run_chunk, scattered, *task[1:],
+                                   [children[i] for i in chunk], pure=False)
+            chunk_of[future.key] = chunk
+            futures.append(future)
+        with client.as_current():
+            for future in as_completed(futures):
+                for i, trajectory in zip(chunk_of[future.key], future.result(), strict=True):
+                    done[i] = trajectory
+                report(len(done), len(children))
+    finally:
+        if futures:
+            client.cancel([f for f in futures if not f.done()])
+        client.close()
