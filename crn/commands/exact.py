@@ -1,0 +1,89 @@
+"""``crn exact``: exact decision probabilities and consensus time of a small population."""
+
+from __future__ import annotations
+
+import click
+
+from ..cli import emit_json, json_option, load, model_argument, progress_bar, set_option
+from ..exact import exact_outcomes, transient_outcomes
+from ..outcome import NO_CONSENSUS
+
+__all__ = ["exact"]
+
+
+def _counts(net, x) -> str:
+    return ", ".join(f"{s}={int(c)}" for s, c in zip(net.species, x, strict=True))
+
+
+@click.command("exact")
+@model_argument
+@set_option
+@click.option("--until", type=click.FloatRange(min=0), default=None, metavar="T",
+              help="Also give the probability of each decision by time T (finite state "
+                   "projection).")
+@click.option("--max-states", type=click.IntRange(min=1), default=None, metavar="N",
+              help="Refuse (or, with --until, project onto) more configurations than N "
+                   "(default 10,000,000).")
+@json_option
+def exact(model, sets, until, max_states, as_json):
+    """Exact outcome probabilities of MODEL from its initial counts, by solving the
+    continuous-time Markov chain over every reachable configuration."""
+    net = load(model, sets).network
+    with progress_bar("configurations", None, enabled=not as_json) as update:
+        result = exact_outcomes(net, max_states=max_states, progress=update)
+    transient = None
+    if until is not None:
+        with progress_bar("projection", None, enabled=not as_json) as update:
+            transient = transient_outcomes(net, until, max_states=max_states, progress=update)
+    if as_json:
+        obj = {
+            "model": net.name,
+            "initial": dict(zip(net.species, net.initial.tolist(), strict=True)),
+            "states": result.states,
+            "transitions": result.transitions,
+            "probabilities": result.probabilities,
+            "expected_time": result.expected_time,
+            "time_std": result.time_std,
+            "correct": result.correct,
+            "method": result.method,
+            "status": result.status,
+            "message": result.message,
+        }
+        if transient is not None:
+            obj["transient"] = {
+                "until": until,
+                "probabilities": {k: v for k, v in transient.items() if k != "lost"},
+                "lost": transient["lost"],
+            }
+        emit_json(obj)
+        return
+    clock = "parallel time" if net.from_protocol else "time"
+    lines = [
+        f"{net.name}: {_counts(net, net.initial)}",
+        f"{result.states:,} configurations, {result.transitions:,} transitions "
+        f"({result.method} solve)",
+    ]
+    if result.correct is not None:
+        lines.append(f"correct answer: {result.correct}")
+    lines.append("probability of stable consensus")
+    width = max(len(k) for k in result.probabilities)
+    for label, p in result.probabilities.items():
+        name = "never" if label == NO_CONSENSUS else label
+        lines.append(f"  {name:<{max(width, 5)}}  {p:.12g}")
+    if result.expected_time == result.expected_time:  # not NaN
+        given = "" if result.probabilities.get(NO_CONSENSUS, 0.0) == 0 else " (given consensus)"
+        lines.append(f"time to stable consensus{given}: mean {result.expected_time:.6g}, "
+                     f"sd {result.time_std:.6g} ({clock})")
+    else:
+        lines.append("stable consensus is never reached")
+    if transient is not None:
+        lines.append(f"decided by T = {until:g} ({clock})")
+        for label, p in transient.items():
+            if label == "lost":
+                continue
+            name = "undecided" if label == NO_CONSENSUS else label
+            lines.append(f"  {name:<{max(width, 9)}}  {p:.12g}")
+        lines.append(f"  projection error bound (lost mass): {transient['lost']:.3g}")
+    if result.status:
+        lines.append(f"warning: {result.message}")
+    click.echo("\n".join(lines))

@@ -1,0 +1,67 @@
+"""``crn verify``: check that a protocol stably computes the majority for every small n."""
+
+from __future__ import annotations
+
+import click
+
+from ..cli import emit_json, json_option, load, model_argument, progress_bar, set_option
+from ..verify import verify as verify_model
+
+__all__ = ["verify"]
+
+
+def _counts(counts: dict) -> str:
+    return ", ".join(f"{s}={c}" for s, c in counts.items())
+
+
+def _step(step: dict) -> str:
+    if "pair" in step:
+        return f"{step['pair'][0]}, {step['pair'][1]} -> {step['outcome'][0]}, {step['outcome'][1]}"
+    return step["reaction"]
+
+
+@click.command("verify")
+@model_argument
+@set_option
+@click.option("--max-n", "max_n", type=click.IntRange(min=2), required=True, metavar="N",
+              help="Check every population size from 2 to N.")
+@click.option("--max-states", type=click.IntRange(min=1), default=None, metavar="N",
+              help="Refuse a case with more reachable configurations than N.")
+@json_option
+def verify(model, sets, max_n, max_states, as_json):
+    """Check that MODEL stably computes its majority question for every n from 2 to
+    --max-n and every split of the n agents between the two input states.
+
+    Every bottom strongly connected component of the reachable configurations
+    must be in consensus on the correct label; the first failure is shown as
+    the shortest sequence of interactions leading into a wrong component.
+    Non-input states keep the model's initial counts (usually zero).
+    """
+    loaded = load(model, sets)
+    with progress_bar("population sizes", max_n - 1, enabled=not as_json) as update:
+        result = verify_model(loaded, max_n, progress=update, max_states=max_states)
+    if as_json:
+        emit_json({"checked": result.checked, "correct": result.correct,
+                   "counterexample": result.counterexample, "ties": result.ties,
+                   "max_n": result.max_n})
+        return
+    name = loaded.network.name
+    lines = []
+    if result.correct:
+        lines.append(f"{name}: correct for every n from 2 to {max_n} and every input split "
+                     f"({result.checked} cases checked, up to {result.largest:,} configurations)")
+    else:
+        cx = result.counterexample
+        lines.append(f"{name}: NOT correct ({result.checked} cases checked)")
+        lines.append(f"counterexample at n = {cx['n']}: {_counts(cx['initial'])} "
+                     f"(correct answer {cx['expected']})")
+        for i, step in enumerate(cx["path"], start=1):
+            lines.append(f"  {i:>3}. {_step(step)}")
+        what = ("reports no single label" if cx["label"] == "none"
+                else f"stably outputs {cx['label']}")
+        lines.append(f"ends in {_counts(cx['final'])}, in a bottom component that {what}")
+    if result.ties:
+        outputs = sorted({o for tie in result.ties for o in tie["outcomes"]})
+        lines.append(f"{len(result.ties)} tie split(s) not judged (the model has no 'tie' "
+                     f"label); their bottom components output: {', '.join(outputs)}")
+    click.echo("\n".join(lines))
