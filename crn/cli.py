@@ -1,24 +1,19 @@
 """The ``crn`` command line: turns options into library calls, library errors into exit 2.
 
-Each command lives in :mod:`crn.commands`; this module holds the group, the
-options every command shares, and the one place where errors become a
-one-line message and exit status 2.
+Each command lives in :mod:`crn.commands` (shared options in
+:mod:`crn.commands.options`); this module holds the group and the one place
+where errors become a one-line message and exit status 2.
 """
 
 from __future__ import annotations
 
-import json
 import sys
 
 import click
-import numpy as np
 
 from .errors import CRNError
-from .io.models import load_model
-from .model import parse_overrides
 
-__all__ = ["cli", "main", "model_argument", "set_option", "seed_option", "json_option",
-           "load", "emit_json", "progress_bar", "to_jsonable"]
+__all__ = ["cli", "main"]
 
 EXIT_BAD_INPUT = 2
 
@@ -28,90 +23,6 @@ EXIT_BAD_INPUT = 2
 def cli():
     """Population protocols as chemical reaction networks: mean field, exact
     stochastic dynamics and exact small-population analysis side by side."""
-
-
-def model_argument(func):
-    return click.argument("model", type=click.Path(dir_okay=False))(func)
-
-
-def set_option(func):
-    return click.option("--set", "sets", multiple=True, metavar="NAME=VALUE",
-                        help="Override a parameter of the model (repeatable).")(func)
-
-
-def seed_option(func):
-    return click.option("--seed", type=click.IntRange(min=0), default=None,
-                        help="Root seed; the same seed gives the same numbers on any number "
-                             "of workers. Printed when not given.")(func)
-
-
-def json_option(func):
-    return click.option("--json", "as_json", is_flag=True,
-                        help="Print one JSON object on standard output instead of tables.")(func)
-
-
-def load(model: str, sets):
-    """Load a model file with ``--set`` overrides (errors propagate as CRNError)."""
-    return load_model(model, parse_overrides(sets))
-
-
-def to_jsonable(value):
-    """Convert numpy scalars and arrays (and NaN/inf) into plain JSON values."""
-    if isinstance(value, dict):
-        return {str(k): to_jsonable(v) for k, v in value.items()}
-    if isinstance(value, list | tuple):
-        return [to_jsonable(v) for v in value]
-    if isinstance(value, np.ndarray):
-        return to_jsonable(value.tolist())
-    if isinstance(value, np.integer):
-        return int(value)
-    if isinstance(value, float | np.floating):
-        value = float(value)
-        return value if np.isfinite(value) else None
-    if isinstance(value, np.bool_):
-        return bool(value)
-    return value
-
-
-def emit_json(obj) -> None:
-    """Write one JSON object on standard output."""
-    click.echo(json.dumps(to_jsonable(obj), indent=2))
-
-
-def progress_bar(description: str, total: int | None, enabled: bool = True):
-    """A rich progress bar on standard error, or a no-op when disabled (``--json``).
-
-    Returns a context manager yielding ``advance(k=1)``-style callback ``update(done, total)``.
-    """
-    from contextlib import contextmanager
-
-    @contextmanager
-    def bar():
-        if not enabled or not sys.stderr.isatty() and not _force_progress():
-            yield lambda done, total=None: None
-            return
-        from rich.console import Console
-        from rich.progress import BarColumn, MofNCompleteColumn, Progress, TimeElapsedColumn
-
-        with Progress("[progress.description]{task.description}", BarColumn(),
-                      MofNCompleteColumn(), TimeElapsedColumn(),
-                      console=Console(stderr=True), transient=True) as progress:
-            task = progress.add_task(description, total=total)
-
-            def update(done, new_total=None):
-                if new_total is not None:
-                    progress.update(task, total=new_total)
-                progress.update(task, completed=done)
-
-            yield update
-
-    return bar()
-
-
-def _force_progress() -> bool:
-    import os
-
-    return os.environ.get("CRN_PROGRESS") == "1"
 
 
 def _register():

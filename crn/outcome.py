@@ -77,17 +77,20 @@ def mean_field_consensus_index(species_label, n_labels, y, molecules_per_unit):
     if n_labels == 0:
         return -1
     totals = np.zeros(n_labels)
-    everything = 0.0
     for s in range(y.shape[0]):
-        v = max(y[s], 0.0)
-        everything += v
         if species_label[s] >= 0:
-            totals[species_label[s]] += v
+            totals[species_label[s]] += max(y[s], 0.0)
     best = 0
     for k in range(1, n_labels):
         if totals[k] > totals[best]:
             best = k
-    if (everything - totals[best]) * molecules_per_unit < 1.0:
+    # Sum the others directly rather than as total minus leader: the difference
+    # would turn exactly one molecule into 0.999... by cancellation.
+    others = 0.0
+    for s in range(y.shape[0]):
+        if species_label[s] != best:
+            others += max(y[s], 0.0)
+    if others * molecules_per_unit < 1.0:
         return best
     return -1
 

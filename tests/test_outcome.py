@@ -37,6 +37,8 @@ def test_mean_field_consensus_is_fewer_than_one_other_molecule():
     assert mean_field_consensus_index(labels, k, np.array([1 - 0.9 / n, 0, 0.9 / n]), n) == 0
     assert mean_field_consensus_index(labels, k, np.array([1 - 1.1 / n, 0.6 / n, 0.5 / n]), n) == -1
     assert mean_field_consensus_index(labels, k, np.array([0.2 / n, 1 - 0.2 / n, 0]), n) == 1
+    # exactly one other molecule is not fewer than one (n = 6: 5 X and 1 Y)
+    assert mean_field_consensus_index(labels, k, np.array([5 / 6, 1 / 6, 0.0]), 6) == -1
 
 
 def test_correct_label_is_the_larger_input_or_tie():

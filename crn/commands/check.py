@@ -4,8 +4,8 @@ from __future__ import annotations
 
 import click
 
-from ..cli import emit_json, json_option, load, model_argument, set_option
 from ..inspection import check_model
+from .options import emit_json, json_option, load, model_argument, set_option
 
 __all__ = ["check"]
 

@@ -5,7 +5,7 @@ from __future__ import annotations
 import click
 import numpy as np
 
-from ..cli import emit_json, json_option, load, model_argument, seed_option, set_option
+from .options import emit_json, json_option, load, model_argument, seed_option, set_option
 from .ssa import _finish_interrupted, ensemble_options, ensemble_summary, run_ensemble
 
 __all__ = ["compare", "compare_window", "disagreement"]

@@ -4,9 +4,9 @@ from __future__ import annotations
 
 import click
 
-from ..cli import emit_json, json_option, load, model_argument, progress_bar, set_option
 from ..exact import exact_outcomes, transient_outcomes
 from ..outcome import NO_CONSENSUS
+from .options import emit_json, json_option, load, model_argument, progress_bar, set_option
 
 __all__ = ["exact"]
 

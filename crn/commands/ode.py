@@ -7,8 +7,8 @@ import math
 import click
 import numpy as np
 
-from ..cli import emit_json, json_option, load, model_argument, set_option
 from ..ode import METHODS, solve_mean_field
+from .options import emit_json, json_option, load, model_argument, set_option
 
 __all__ = ["ode"]
 

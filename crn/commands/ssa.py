@@ -4,7 +4,9 @@ from __future__ import annotations
 
 import click
 
-from ..cli import (
+from ..simulate import ENGINES, Ensemble, SimulationInterrupted, simulate
+from ..stats import wilson_interval
+from .options import (
     emit_json,
     json_option,
     load,
@@ -13,8 +15,6 @@ from ..cli import (
     seed_option,
     set_option,
 )
-from ..simulate import ENGINES, Ensemble, SimulationInterrupted, simulate
-from ..stats import wilson_interval
 
 __all__ = ["ssa", "ensemble_options", "run_ensemble", "ensemble_summary", "format_ensemble"]
 

@@ -4,11 +4,11 @@ from __future__ import annotations
 
 import click
 
-from ..cli import emit_json, json_option, load, model_argument, set_option
 from ..errors import CRNError
 from ..io.contract import network_to_dict
 from ..io.exports import FORMATS, export_network, write_atomic
 from ..io.sbml import sbml_consistency
+from .options import emit_json, json_option, load, model_argument, set_option
 
 __all__ = ["translate"]
 

@@ -4,8 +4,8 @@ from __future__ import annotations
 
 import click
 
-from ..cli import emit_json, json_option, load, model_argument, progress_bar, set_option
 from ..verify import verify as verify_model
+from .options import emit_json, json_option, load, model_argument, progress_bar, set_option
 
 __all__ = ["verify"]
 

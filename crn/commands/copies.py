@@ -1,0 +1,151 @@
+"""``crn copies``: the smallest population (and concentration, volume, hours) for a risk."""
+
+from __future__ import annotations
+
+import click
+
+from ..copies import physical_outputs, smallest_n
+from ..errors import CRNError
+from ..units import (
+    AVOGADRO,
+    format_concentration,
+    format_time,
+    format_volume,
+    parse_concentration,
+    parse_rate_constant,
+    parse_time,
+    parse_volume,
+)
+from .options import emit_json, json_option, model_argument, seed_option, set_option
+from .regimes import cell_networks
+
+__all__ = ["copies", "parse_deadline"]
+
+
+def parse_deadline(text: str | None):
+    """``"50"`` -> (50.0, None) in parallel time; ``"2h"`` -> (None, 7200.0) in seconds."""
+    if text is None:
+        return None, None
+    try:
+        value = float(text)
+    except ValueError:
+        return None, parse_time(text)
+    if not value > 0:
+        raise CRNError(f"--deadline must be positive, got {text!r}")
+    return value, None
+
+
+@click.command("copies")
+@model_argument
+@set_option
+@click.option("--gap-fraction", type=float, default=None, metavar="F",
+              help="Gap as a fraction of the population (e.g. 0.05).")
+@click.option("--gap", type=click.IntRange(min=0), default=None, metavar="G",
+              help="A fixed gap in molecules.")
+@click.option("--risk", type=click.FloatRange(0, 1, min_open=True, max_open=True), default=0.01,
+              show_default=True, help="Acceptable probability of no correct decision.")
+@click.option("--deadline", default=None, metavar="T",
+              help="Decide by T: parallel time (a bare number) or a physical time such as 2h, "
+                   "90min, 30s (needs --rate and --concentration or --volume).")
+@click.option("--concentration", default=None, metavar="C",
+              help="Total concentration of all agents, e.g. 10nM; the volume follows.")
+@click.option("--volume", default=None, metavar="V",
+              help="Volume, e.g. 1pL; the concentration follows.")
+@click.option("--rate", default=None, metavar="K",
+              help="Bimolecular rate constant the reactions are built at, e.g. 1e6/M/s.")
+@click.option("--n-max", type=click.IntRange(min=2), default=10**7, show_default=True,
+              help="Largest population searched.")
+@click.option("--runs-max", type=click.IntRange(min=1), default=4000, show_default=True,
+              help="Most stochastic runs per probed population.")
+@click.option("--method", type=click.Choice(["auto", "exact", "stochastic"]), default="auto",
+              show_default=True)
+@seed_option
+@json_option
+def copies(model, sets, gap_fraction, gap, risk, deadline, concentration, volume, rate, n_max,
+           runs_max, method, seed, as_json):
+    """Smallest number of agents (molecules) of MODEL that reach the correct consensus by the
+    deadline with probability at least 1 - risk, with an interval for sampling error; and
+    with physical options the concentration or volume and the time in seconds and hours."""
+    if (gap_fraction is None) == (gap is None):
+        raise CRNError("give exactly one of --gap-fraction and --gap")
+    if concentration is not None and volume is not None:
+        raise CRNError("give --concentration or --volume, not both")
+    conc = None if concentration is None else parse_concentration(concentration)
+    vol = None if volume is None else parse_volume(volume)
+    k = None if rate is None else parse_rate_constant(rate)
+    parallel_deadline, deadline_seconds = parse_deadline(deadline)
+    if deadline_seconds is not None:
+        if k is None or (conc is None and vol is None):
+            raise CRNError("a deadline in physical time needs --rate and --concentration or "
+                           "--volume (to convert it into parallel time)")
+        if conc is not None:
+            parallel_deadline = deadline_seconds * k * conc
+        else:
+            # a fixed volume: the concentration, and so the time unit, grows with n
+            def parallel_deadline(n, _s=deadline_seconds, _k=k, _v=vol):
+                return _s * _k * n / (_v * AVOGADRO)
+    model_obj, networks = cell_networks(model, sets)
+    result = smallest_n(networks, gap_fraction=gap_fraction, gap=gap, risk=risk,
+                        deadline=parallel_deadline, n_max=n_max, method=method,
+                        runs_max=runs_max, rng=seed, workers=1)
+    phys = physical_outputs(result.estimate, concentration_molar=conc, volume_liters=vol,
+                            rate=k, parallel_time=result.median_time)
+    bounds = {}
+    for name in ("low", "high"):
+        value = getattr(result, name)
+        bounds[name] = physical_outputs(value, concentration_molar=conc, volume_liters=vol)
+    if as_json:
+        emit_json({
+            "model": model_obj.name,
+            "n": {"estimate": result.estimate, "low": result.low, "high": result.high},
+            "gap": result.gap_estimate,
+            "risk": risk,
+            "deadline": result.deadline,
+            "deadline_seconds": deadline_seconds,
+            "concentration_molar": phys["concentration_molar"],
+            "volume_liters": phys["volume_liters"],
+            "volume_liters_interval": [bounds["low"]["volume_liters"],
+                                       bounds["high"]["volume_liters"]],
+            "concentration_molar_interval": [bounds["low"]["concentration_molar"],
+                                             bounds["high"]["concentration_molar"]],
+            "median_time": result.median_time,
+            "seconds": phys["seconds"],
+            "hours": phys["hours"],
+            "method": result.method,
+            "seed": result.seed_entropy,
+            "probes": [p.__dict__ for p in result.probes],
+        })
+        return
+    if seed is None:
+        click.echo(f"crn: seed {result.seed_entropy}", err=True)
+    click.echo(_text(model_obj.name, result, phys, bounds, deadline_seconds))
+
+
+def _text(name, result, phys, bounds, deadline_seconds) -> str:
+    target = f"P(correct consensus{'' if result.deadline is None else ' by the deadline'})"
+    lines = [f"{name}: smallest population with {target} >= {1 - result.risk:g}"]
+    if result.estimate is None:
+        lines.append("  no population up to --n-max meets the risk"
+                     + (" (the deadline may be too short)" if result.deadline else ""))
+        return "\n".join(lines)
+    lines.append(f"  n = {result.estimate:,} (gap {result.gap_estimate:,}); 95% range allowing "
+                 f"for sampling error: {_n(result.low)} .. {_n(result.high)} "
+                 f"[{result.method}]")
+    if result.deadline is not None:
+        lines.append(f"  deadline: {result.deadline:.4g} parallel time"
+                     + (f" ({format_time(deadline_seconds)})" if deadline_seconds else ""))
+    if result.median_time is not None:
+        lines.append(f"  median consensus time at n: {result.median_time:.4g} parallel time")
+    if phys["concentration_molar"] is not None:
+        lines.append(f"  concentration {format_concentration(phys['concentration_molar'])}, "
+                     f"volume {format_volume(phys['volume_liters'])}")
+    if phys["seconds"] is not None:
+        lines.append(f"  consensus in about {format_time(phys['seconds'])} "
+                     f"({phys['seconds']:.4g} s)")
+    lines.append("  wet-lab numbers are model predictions: validate them with your lab's own "
+                 "controls and follow its safety practice")
+    return "\n".join(lines)
+
+
+def _n(value):
+    return "none up to --n-max" if value is None else f"{value:,}"

@@ -1,0 +1,311 @@
+"""The demo: a droplet assay that types a crop pathogen by which signature strand is more abundant.
+
+Run ``python -m crn.demo --out out`` (``make demo``). It prints the translated
+network, compares the mean-field ODE with stochastic runs, maps where the mean
+field misleads, and answers the designer's question: which droplet volumes and
+concentrations decide a 5% gap at 1% risk within two hours. Figures, tables and
+a JSON summary go to ``--out``.
+"""
+
+from __future__ import annotations
+
+import json
+import math
+import sys
+import time
+from pathlib import Path
+
+import numpy as np
+
+from .copies import Prober, smallest_n
+from .io.models import load_model
+from .io.regime_tables import table_csv
+from .io.sweep_store import atomic_path, write_atomic
+from .probes import InitialSplit, gap_for_fraction, ode_decision, stochastic_decisions
+from .regimes import regime_map
+from .stats import wilson_interval
+from .units import (
+    AVOGADRO,
+    format_concentration,
+    format_time,
+    format_volume,
+    parse_concentration,
+    parse_rate_constant,
+    parse_time,
+)
+
+__all__ = ["run_demo", "main", "SETTINGS"]
+
+MODEL = Path(__file__).resolve().parent.parent / "models" / "droplet_assay.toml"
+
+#: Full settings (``make demo``) and a small, fast variant for the test suite.
+SETTINGS = {
+    "full": dict(compare_n=6000, compare_runs=400,
+                 map_n=[100, 300, 1000, 3000, 10000],
+                 map_fractions=[0.01, 0.02, 0.05, 0.1, 0.2], map_runs_max=800,
+                 gap_fraction=0.05, risk=0.01, deadline="2h", rate="1e6/M/s",
+                 concentrations=["1nM", "2nM", "3nM", "5nM", "10nM", "20nM", "50nM", "100nM"],
+                 copies_runs_max=2000, transient_max=10_000),
+    "quick": dict(compare_n=600, compare_runs=100, map_n=[100, 1000],
+                  map_fractions=[0.05, 0.2], map_runs_max=200,
+                  gap_fraction=0.2, risk=0.05, deadline="2h", rate="1e6/M/s",
+                  concentrations=["1nM", "10nM"], copies_runs_max=400, transient_max=1_000),
+}
+
+
+def _figure_path(out: Path, name: str, figure) -> Path:
+    import matplotlib.pyplot as plt
+
+    path = out / name
+    with atomic_path(path) as tmp:
+        figure.savefig(tmp, dpi=150)
+    plt.close(figure)
+    return path
+
+
+def _compare(net, n, gap_fraction, runs, seed, rate, concentration, echo):
+    gap = gap_for_fraction(n, gap_fraction)
+    cell = InitialSplit(net)(n, gap)
+    label, ode_time = ode_decision(cell, 1e4)
+    labels, times = stochastic_decisions(cell, runs, 10 * max(ode_time or 10.0, 1.0),
+                                         seed, workers=1)
+    wrong = sum(1 for x in labels if x != label)
+    p, low, high = wilson_interval(wrong, runs)
+    finite = np.nan_to_num(times, nan=np.inf)
+    median = float(np.median(finite))
+    q05, q95 = (float(q) for q in np.quantile(finite, [0.05, 0.95]))
+    unit = 1.0 / (rate * concentration)
+    echo(f"\n== ODE against stochastic runs: n = {n:,} strands, gap {gap} "
+         f"({gap / n:.0%}), at {format_concentration(concentration)} ==")
+    echo(f"  ODE: consensus on {label} at parallel time {ode_time:.3g} "
+         f"(= {format_time(ode_time * unit)})")
+    echo(f"  {runs} stochastic runs: {wrong} disagree with the ODE, P = {p:.3g} "
+         f"(95% interval {low:.2g} .. {high:.2g})")
+    echo(f"  stochastic consensus time: median {median:.3g} (= {format_time(median * unit)}), "
+         f"5-95% range {q05:.3g} .. {q95:.3g}")
+    return dict(n=n, gap=gap, ode_label=label, ode_time=ode_time, runs=runs, wrong=wrong,
+                p_wrong=p, low=low, high=high, ssa_median_time=median, ssa_q05=q05, ssa_q95=q95,
+                concentration_molar=concentration), cell, times
+
+
+def _trajectory_figure(cell, ode_time, seed, runs=5):
+    import matplotlib
+
+    matplotlib.use("Agg")
+    import matplotlib.pyplot as plt
+
+    from .ode import solve_mean_field
+    from .simulate import simulate
+
+    horizon = 2.5 * ode_time
+    mean_field = solve_mean_field(cell, until=horizon, stop_at_consensus=False,
+                                  times=np.linspace(0, horizon, 300))
+    ensemble = simulate(cell, runs=runs, until=horizon, times=np.linspace(0, horizon, 300),
+                        rng=seed, workers=1)
+    fig, ax = plt.subplots(figsize=(7, 4.5), layout="constrained")
+    n = cell.population
+    colors = {"R": "tab:red", "S": "tab:blue", "B": "0.5"}
+    for name, share in mean_field.fractions.items():
+        ax.plot(mean_field.times, share, c=colors.get(name, "k"), lw=2.5, label=f"ODE {name}")
+    for r in range(ensemble.runs):
+        for s, name in enumerate(ensemble.species):
+            ax.plot(ensemble.times, ensemble.counts[r, :, s] / n, c=colors.get(name, "k"),
+                    lw=0.7, alpha=0.6, label=f"stochastic {name}" if r == 0 else None)
+    ax.set_xlabel("parallel time (1 unit = 1 / (k C) seconds)")
+    ax.set_ylabel("fraction of the strands")
+    ax.set_title(f"ODE (thick) against {runs} stochastic runs (thin), n = {n:,}")
+    ax.legend(fontsize=7, ncol=2)
+    return fig
+
+
+def run_demo(out, *, quick: bool = False, seed: int = 20261201, workers: int = 2,
+             echo=print) -> dict:
+    """Run the demo scenario and write its figures and tables to ``out``.
+
+    Parameters
+    ----------
+    out : str or Path
+    quick : bool
+        Small settings (a larger gap and risk, few runs) for tests.
+    seed : int
+    workers : int
+        Processes for the regime map.
+    echo : callable
+        Where the text goes.
+
+    Returns
+    -------
+    dict
+        The summary (also written to ``out/summary.json``).
+    """
+    import matplotlib
+
+    matplotlib.use("Agg")
+    from .plots.regimes import plot_feasibility, plot_regime_map
+
+    started = time.perf_counter()
+    s = SETTINGS["quick" if quick else "full"]
+    out = Path(out)
+    out.mkdir(parents=True, exist_ok=True)
+    root = np.random.SeedSequence(seed)
+    seeds = root.spawn(4)
+    rate = parse_rate_constant(s["rate"])
+    deadline_s = parse_time(s["deadline"])
+    risk, fraction = s["risk"], s["gap_fraction"]
+    model = load_model(MODEL)
+    net = model.network
+
+    echo(f"== {model.name} ==")
+    echo(" ".join(model.about.split()))
+    echo("\n== Translated reaction network (protocol rate 1 = "
+         f"{s['rate']} in the droplet) ==")
+    for reaction in net.reactions():
+        echo(f"  {str(reaction):<16} k = {reaction.rate:g} x {rate:.0e} /M/s")
+
+    compare, cell, _ = _compare(net, s["compare_n"], fraction, s["compare_runs"], seeds[0],
+                                rate, parse_concentration("10nM"), echo)
+    _figure_path(out, "ode_vs_stochastic.png",
+                 _trajectory_figure(cell, compare["ode_time"], seeds[1]))
+
+    echo(f"\n== Regime map: where the ODE's verdict is wrong more often than {risk:g} ==")
+    rmap = regime_map(InitialSplit(net), s["map_n"], gap_fractions=s["map_fractions"],
+                      risk=risk, runs_max=s["map_runs_max"], rng=seeds[2], workers=workers)
+    cells = {(c.n, c.gap): c for c in rmap.cells}
+    echo(f"  {'n':>7} " + " ".join(f"{f:>11.0%}" for f in s["map_fractions"])
+         + "   (gap as a share of n)")
+    for n in s["map_n"]:
+        row = [cells[(n, gap_for_fraction(n, f))] for f in s["map_fractions"]]
+        echo(f"  {n:>7} " + " ".join(f"{c.flag:>11}" for c in row))
+    echo(f"  ({time.perf_counter() - started:.0f} s so far)")
+    b = rmap.boundary
+    if b.exponent is not None:
+        echo(f"  critical gap grows like n^{b.exponent:.2f} (95% interval {b.low:.2f} .. "
+             f"{b.high:.2f}); theory: sqrt(n) up to log factors (Angluin et al. 2008)")
+    ax = plot_regime_map(rmap, title=f"{model.name.split('(')[0].strip()}: regime map")
+    _figure_path(out, "regime_map.png", ax.figure)
+    write_atomic(out / "regime_map.csv", table_csv(rmap.cells))
+
+    echo(f"\n== Designer's question: {fraction:.0%} gap, risk {risk:g}, decided within "
+         f"{format_time(deadline_s)} at {s['rate']} ==")
+    concentrations = [parse_concentration(c) for c in s["concentrations"]]
+    horizon = deadline_s * rate * max(concentrations)
+    prober = Prober(InitialSplit(net), horizon=horizon, runs_max=s["copies_runs_max"],
+                    transient_max=s["transient_max"], rng=seeds[3])
+    rows = []
+    echo(f"  {'concentration':>13} {'deadline':>9} {'copies n (95% range)':>26} "
+         f"{'droplet volume':>15} {'median time':>12}")
+    for conc in concentrations:
+        deadline = deadline_s * rate * conc
+        result = smallest_n(InitialSplit(net), gap_fraction=fraction, risk=risk,
+                            deadline=deadline, prober=prober, n_max=200_000)
+        row = dict(concentration_molar=conc, deadline_parallel=deadline, copies=result.estimate,
+                   copies_low=result.low, copies_high=result.high, volume_liters=None,
+                   volume_low_liters=None, volume_high_liters=None, median_hours=None,
+                   method=result.method)
+        if result.estimate is not None:
+            row["volume_liters"] = result.estimate / (conc * AVOGADRO)
+            row["volume_low_liters"] = (None if result.low is None
+                                        else result.low / (conc * AVOGADRO))
+            row["volume_high_liters"] = (None if result.high is None
+                                         else result.high / (conc * AVOGADRO))
+            if result.median_time is not None:
+                row["median_hours"] = result.median_time / (rate * conc) / 3600
+        rows.append(row)
+        if result.estimate is None:
+            echo(f"  {format_concentration(conc):>13} {deadline:>9.3g}   too slow: no droplet "
+                 f"size decides by the deadline")
+        else:
+            span = f"{result.estimate:,} ({_n(result.low)}..{_n(result.high)})"
+            hours = "-" if row["median_hours"] is None else f"{row['median_hours']:.2f} h"
+            echo(f"  {format_concentration(conc):>13} {deadline:>9.3g} {span:>26} "
+                 f"{format_volume(row['volume_liters']):>15} {hours:>12}")
+    echo(f"  ({time.perf_counter() - started:.0f} s so far)")
+    feasible = [r for r in rows if r["volume_liters"]]
+    chosen = min(feasible, key=lambda r: r["volume_liters"]) if feasible else None
+    slowest = min(feasible, key=lambda r: r["concentration_molar"]) if feasible else None
+    ax = plot_feasibility(rows, chosen=chosen, risk=risk, deadline_hours=deadline_s / 3600)
+    _figure_path(out, "feasibility.png", ax.figure)
+    write_atomic(out / "feasibility.csv", _csv(rows))
+
+    echo("\n== Verdict ==")
+    if chosen is None:
+        echo(f"  No concentration up to {s['concentrations'][-1]} decides a {fraction:.0%} gap "
+             f"at risk {risk:g} within {format_time(deadline_s)}.")
+    else:
+        conc = chosen["concentration_molar"]
+        echo(f"  Smallest droplet: {format_volume(chosen['volume_liters'])} at "
+             f"{format_concentration(conc)} total signature strand "
+             f"({chosen['copies']:,} copies per droplet; 95% range "
+             f"{_n(chosen['copies_low'])}..{_n(chosen['copies_high'])}, i.e. "
+             f"{_vol(chosen['volume_low_liters'])}..{_vol(chosen['volume_high_liters'])}).")
+        if chosen["median_hours"] is not None:
+            echo(f"  It decides in about {chosen['median_hours']:.2f} h (median), within the "
+                 f"{format_time(deadline_s)} deadline with probability >= {1 - risk:g}.")
+        if slowest is not None and slowest is not chosen:
+            echo(f"  The lowest concentration that still meets the deadline is "
+                 f"{format_concentration(slowest['concentration_molar'])}, needing "
+                 f"{format_volume(slowest['volume_liters'])} droplets ({slowest['copies']:,} "
+                 f"copies, about {slowest['median_hours']:.2f} h).")
+        infeasible = [r for r in rows if not r["volume_liters"]]
+        if infeasible:
+            echo("  Below " + format_concentration(min(r["concentration_molar"]
+                                                       for r in feasible))
+                 + " the reactions are too slow to decide in time at any droplet size.")
+    echo("  These wet-lab numbers are model predictions (ideal mass-action kinetics, no leak or "
+         "strand loss): validate them with your lab's own controls and follow its safety "
+         "practice.")
+    elapsed = time.perf_counter() - started
+    echo(f"\nFigures and tables in {out}/ (ode_vs_stochastic.png, regime_map.png, "
+         f"feasibility.png, regime_map.csv, feasibility.csv, summary.json); {elapsed:.0f} s.")
+    summary = {"seed": seed, "settings": "quick" if quick else "full", "risk": risk,
+               "gap_fraction": fraction, "deadline_seconds": deadline_s,
+               "rate_per_molar_second": rate, "compare": compare,
+               "regimes": {"cells": rmap.table(), "exponent": b.to_dict()},
+               "feasibility": rows, "chosen": chosen, "elapsed_seconds": elapsed}
+    write_atomic(out / "summary.json", json.dumps(_plain(summary), indent=2) + "\n")
+    return summary
+
+
+def _plain(value):
+    if isinstance(value, dict):
+        return {k: _plain(v) for k, v in value.items()}
+    if isinstance(value, list | tuple):
+        return [_plain(v) for v in value]
+    if isinstance(value, float | np.floating):
+        return float(value) if math.isfinite(value) else None
+    if isinstance(value, np.integer):
+        return int(value)
+    return value
+
+
+def _n(value):
+    return "-" if value is None else f"{value:,}"
+
+
+def _vol(value):
+    return "-" if value is None else format_volume(value)
+
+
+def _csv(rows) -> str:
+    keys = list(rows[0]) if rows else []
+    lines = [",".join(keys)]
+    for r in rows:
+        lines.append(",".join("" if r[k] is None else str(r[k]) for k in keys))
+    return "\n".join(lines) + "\n"
+
+
+def main(argv=None) -> int:
+    import argparse
+
+    parser = argparse.ArgumentParser(prog="python -m crn.demo", description=__doc__.split("\n")[0])
+    parser.add_argument("--out", default="out", help="directory for figures and tables")
+    parser.add_argument("--quick", action="store_true", help="small, fast settings (tests)")
+    parser.add_argument("--seed", type=int, default=20261201)
+    parser.add_argument("--workers", type=int, default=2)
+    args = parser.parse_args(argv)
+    run_demo(args.out, quick=args.quick, seed=args.seed, workers=args.workers)
+    return 0
+
+
+if __name__ == "__main__":
+    sys.exit(main())

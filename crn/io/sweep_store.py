@@ -1,0 +1,193 @@
+"""Results files of long sweeps: append each finished cell durably, resume after a crash.
+
+A sweep writes ``<out>/<name>.jsonl``: a header line (seed entropy and the
+sweep's parameters) and then one JSON line per finished cell, each flushed and
+fsync'ed as the cell finishes. Resuming reads the finished cells back (a torn
+last line from a killed process is dropped) and refuses a file whose header
+does not match the sweep. Whole output files (tables, figures) go through
+:func:`write_atomic`: written to a temporary file and renamed into place, so a
+reader sees the old file or the new one, never a half-written one.
+"""
+
+from __future__ import annotations
+
+import json
+import math
+import os
+import tempfile
+import warnings
+from pathlib import Path
+
+from ..errors import CRNError
+
+__all__ = ["SweepStore", "write_atomic", "atomic_path"]
+
+_FORMAT = "crn-sweep/1"
+
+
+def _plain(value):
+    """JSON-safe copy: non-finite floats become None, tuples lists."""
+    if isinstance(value, dict):
+        return {str(k): _plain(v) for k, v in value.items()}
+    if isinstance(value, list | tuple):
+        return [_plain(v) for v in value]
+    if isinstance(value, float):
+        return value if math.isfinite(value) else None
+    if hasattr(value, "item") and not isinstance(value, str | bytes):
+        return _plain(value.item())
+    return value
+
+
+def write_atomic(path, data) -> Path:
+    """Write ``data`` (str or bytes) to ``path`` whole or not at all.
+
+    The data goes to a temporary file in the same directory, is fsync'ed and
+    then renamed over ``path`` with :func:`os.replace` (atomic on POSIX).
+
+    Returns
+    -------
+    Path
+    """
+    path = Path(path)
+    with atomic_path(path) as tmp:
+        mode = "wb" if isinstance(data, bytes) else "w"
+        with open(tmp, mode, **({} if mode == "wb" else {"encoding": "utf-8"})) as fh:
+            fh.write(data)
+            fh.flush()
+            os.fsync(fh.fileno())
+    return path
+
+
+class atomic_path:  # noqa: N801 - used like a function: ``with atomic_path(p) as tmp``
+    """Context manager giving a temporary path that replaces ``path`` on success.
+
+    For writers that insist on a file name (matplotlib's ``savefig``): write to
+    the yielded path; on normal exit it is renamed over ``path``, on an
+    exception it is removed and ``path`` is untouched. The temporary name keeps
+    the suffix so format detection by extension still works.
+    """
+
+    def __init__(self, path):
+        self.path = Path(path)
+
+    def __enter__(self) -> Path:
+        self.path.parent.mkdir(parents=True, exist_ok=True)
+        fd, name = tempfile.mkstemp(prefix=f".{self.path.name}.", suffix=self.path.suffix,
+                                    dir=self.path.parent)
+        os.close(fd)
+        self.tmp = Path(name)
+        return self.tmp
+
+    def __exit__(self, kind, value, tb):
+        if kind is None:
+            os.replace(self.tmp, self.path)
+            _fsync_dir(self.path.parent)
+        else:
+            self.tmp.unlink(missing_ok=True)
+        return False
+
+
+def _fsync_dir(directory: Path) -> None:
+    try:
+        fd = os.open(directory, os.O_RDONLY)
+    except OSError:
+        return
+    try:
+        os.fsync(fd)
+    except OSError:
+        pass
+    finally:
+        os.close(fd)
+
+
+class SweepStore:
+    """An append-only results file for one sweep.
+
+    Parameters
+    ----------
+    out : str or Path
+        Directory of the results (created if missing).
+    name : str
+        File stem: the results go to ``<out>/<name>.jsonl``.
+    parameters : dict
+        Everything that determines the sweep's numbers (JSON-serialisable);
+        a resumed sweep must have the same.
+    seed_entropy : int
+        Root entropy of the sweep's SeedSequence, recorded in a new file. On
+        resume the file's entropy is adopted (:attr:`seed_entropy`).
+    check_seed : bool
+        On resume, refuse a file recorded with another entropy (the user gave
+        a seed explicitly).
+    resume : bool
+        Keep the finished cells of an existing file (else it is replaced,
+        with a warning when it held cells).
+
+    Raises
+    ------
+    CRNError
+        On resume, when the file's header records other parameters or another
+        seed, or the file is not a results file.
+    """
+
+    def __init__(self, out, name: str, parameters: dict, seed_entropy: int, *,
+                 resume: bool = False, check_seed: bool = False):
+        self.path = Path(out) / f"{name}.jsonl"
+        self.parameters = _plain(dict(parameters))
+        self.finished: list[dict] = []
+        self.path.parent.mkdir(parents=True, exist_ok=True)
+        if resume and self.path.exists():
+            header, self.finished = self._read()
+            if header.get("parameters") != self.parameters:
+                raise CRNError(f"{self.path}: cannot resume, the file was written for other "
+                               f"parameters ({_diff(header.get('parameters'), self.parameters)})")
+            recorded = header.get("seed_entropy")
+            if check_seed and int(seed_entropy) != recorded:
+                raise CRNError(f"{self.path}: cannot resume with another seed "
+                               f"(file: {recorded}, given: {seed_entropy})")
+            self.seed_entropy = recorded
+        else:
+            if self.path.exists() and self.path.stat().st_size > 0 and not resume:
+                warnings.warn(f"{self.path} exists and is replaced (use --resume to continue it)",
+                              stacklevel=2)
+            self.seed_entropy = int(seed_entropy)
+            header = {"format": _FORMAT, "kind": "header", "seed_entropy": self.seed_entropy,
+                      "parameters": self.parameters}
+            write_atomic(self.path, json.dumps(header) + "\n")
+
+    def _read(self):
+        text = self.path.read_text(encoding="utf-8")
+        complete, _, torn = text.rpartition("\n")
+        if torn:
+            # a process killed mid-write left a partial line: cut it off before appending
+            with open(self.path, "r+", encoding="utf-8") as fh:
+                fh.truncate(len(complete.encode("utf-8")) + (1 if complete else 0))
+                fh.flush()
+                os.fsync(fh.fileno())
+        lines = [line for line in complete.split("\n") if line.strip()] if complete else []
+        if not lines:
+            raise CRNError(f"{self.path}: empty results file, cannot resume")
+        try:
+            records = [json.loads(line) for line in lines]
+        except json.JSONDecodeError as err:
+            raise CRNError(f"{self.path}: not a results file ({err})") from err
+        header = records[0]
+        if header.get("format") != _FORMAT or header.get("kind") != "header":
+            raise CRNError(f"{self.path}: not a results file (no {_FORMAT} header)")
+        return header, [r["cell"] for r in records[1:] if r.get("kind") == "cell"]
+
+    def append(self, cell: dict) -> None:
+        """Append one finished cell (a JSON-serialisable dict) durably."""
+        record = {"kind": "cell", "cell": _plain(cell)}
+        with open(self.path, "a", encoding="utf-8") as fh:
+            fh.write(json.dumps(record) + "\n")
+            fh.flush()
+            os.fsync(fh.fileno())
+        self.finished.append(record["cell"])
+
+
+def _diff(old, new) -> str:
+    if not isinstance(old, dict):
+        return "no parameters recorded"
+    keys = sorted(set(old) | set(new))
+    changed = [f"{k}: {old.get(k)!r} -> {new.get(k)!r}" for k in keys if old.get(k) != new.get(k)]
+    return "; ".join(changed) or "unknown difference"

@@ -1,0 +1,213 @@
+"""Asking the engines one question: which label does a network decide, and when.
+
+Shared by the regime maps and the copy-number search: build the network of a
+cell (n agents, input gap), and get its decision from the mean-field ODE, from
+exact small-population analysis, or from seeded stochastic runs. Engines are
+imported when first used.
+"""
+
+from __future__ import annotations
+
+import math
+from dataclasses import dataclass
+
+import numpy as np
+
+from .errors import CRNError
+from .network import Network
+
+__all__ = [
+    "InitialSplit",
+    "ModelParameters",
+    "split_counts",
+    "gap_for_fraction",
+    "cell_seed",
+    "ode_decision",
+    "exact_decision",
+    "exact_absorption",
+    "cantelli_tail",
+    "stochastic_decisions",
+    "configurations",
+]
+
+
+def split_counts(n: int, gap: int) -> tuple[int, int]:
+    """Counts ``((n + gap) / 2, (n - gap) / 2)`` of the majority and minority inputs.
+
+    Raises
+    ------
+    CRNError
+        When n and gap differ in parity, the gap is negative or exceeds n.
+    """
+    n, gap = int(n), int(gap)
+    if n < 1 or gap < 0 or gap > n:
+        raise CRNError(f"need 0 <= gap <= n and n >= 1, got n={n}, gap={gap}")
+    if (n - gap) % 2:
+        raise CRNError(f"n={n} and gap={gap} differ in parity: (n + gap) / 2 is not whole")
+    return (n + gap) // 2, (n - gap) // 2
+
+
+def gap_for_fraction(n: int, fraction: float) -> int:
+    """The whole gap nearest ``fraction * n`` with the parity of n, at least 1 (odd n) or 2.
+
+    Rounding keeps ``(n + gap) / 2`` whole; a gap that would round to 0 (a
+    tie, which has no right answer to get wrong) is raised to the smallest
+    positive gap of n's parity, and a gap above n is lowered to n.
+    """
+    if not 0 < fraction <= 1:
+        raise CRNError(f"a gap fraction must lie in (0, 1], got {fraction}")
+    n = int(n)
+    target = fraction * n
+    low = math.floor(target)
+    if (n - low) % 2:
+        low -= 1
+    gap = low if target - low < low + 2 - target else low + 2
+    smallest = 2 - n % 2
+    return int(min(max(gap, smallest), n))
+
+
+@dataclass(frozen=True)
+class InitialSplit:
+    """Networks for cells from one network: the inputs get ``(n +- gap) / 2``.
+
+    Other species keep their initial counts, so n counts the two inputs. The
+    object is picklable, for worker processes.
+    """
+
+    network: Network
+
+    def __post_init__(self):
+        if self.network.inputs is None:
+            raise CRNError("the model asks no majority question ([question] majority = [...]); "
+                           "a sweep needs the two input states")
+
+    def __call__(self, n: int, gap: int) -> Network:
+        a, b = self.network.inputs
+        x0 = np.array(self.network.initial, dtype=np.int64)
+        x0[a], x0[b] = split_counts(n, gap)
+        return self.network.with_initial(x0)
+
+
+@dataclass(frozen=True)
+class ModelParameters:
+    """Networks for cells from a model's text with parameters ``n`` and ``gap`` set.
+
+    Used when the model file defines both parameters, so that every count the
+    file derives from them (blank states, leaders) follows. Picklable.
+    """
+
+    text: str
+    source: str
+    overrides: tuple = ()
+
+    def __call__(self, n: int, gap: int) -> Network:
+        from .model import parse_model
+
+        split_counts(n, gap)
+        values = dict(self.overrides)
+        values.update(n=int(n), gap=int(gap))
+        return parse_model(self.text, source=self.source, overrides=values).network
+
+
+def cell_seed(entropy, *key: int) -> np.random.SeedSequence:
+    """The child stream of one cell (and round): same key, same numbers, in any order.
+
+    A child of the root SeedSequence addressed by its spawn key, as
+    ``SeedSequence.spawn`` builds them, but keyed by the cell rather than by
+    the order cells were reached, so a resumed or parallel sweep draws the
+    same numbers.
+    """
+    if isinstance(entropy, np.random.SeedSequence):
+        # a child of a root: extend its own spawn key, so siblings never share streams
+        return np.random.SeedSequence(entropy=entropy.entropy,
+                                      spawn_key=(*entropy.spawn_key, *(int(k) for k in key)))
+    return np.random.SeedSequence(entropy=entropy, spawn_key=tuple(int(k) for k in key))
+
+
+def ode_decision(net: Network, until: float) -> tuple[str | None, float | None]:
+    """The mean field's consensus label and time (None, None without consensus by ``until``)."""
+    from .ode import solve_mean_field
+
+    result = solve_mean_field(net, until=float(until), stop_at_consensus=True)
+    outcome = result.consensus
+    if outcome is None or outcome.label is None:
+        return None, None
+    return outcome.label, outcome.time
+
+
+def configurations(net: Network) -> int:
+    """Estimated number of reachable configurations (the exact engine's cost)."""
+    from .exact import estimate_configurations
+
+    return int(estimate_configurations(net))
+
+
+def exact_decision(net: Network, until: float | None = None) -> dict:
+    """Exact probabilities of consensus on each label (``"none"`` for none).
+
+    With ``until``: stable consensus reached by that time (transient analysis,
+    :func:`crn.exact.transient_outcomes`); without: eventual consensus
+    (absorption, :func:`crn.exact.exact_outcomes`).
+    """
+    from .exact import transient_outcomes
+
+    if until is None:
+        return dict(exact_absorption(net)[0])
+    probabilities = dict(transient_outcomes(net, float(until)))
+    probabilities.pop("lost", None)
+    return {k: float(v) for k, v in probabilities.items()}
+
+
+def exact_absorption(net: Network):
+    """Eventual consensus probabilities and the mean and std of the time to it.
+
+    Returns
+    -------
+    probabilities : dict of str to float
+        Label -> probability, ``"none"`` for never reaching stable consensus.
+    mean, std : float
+        Of the time to stable consensus, given that it is reached.
+    """
+    from .exact import exact_outcomes
+
+    result = exact_outcomes(net)
+    probabilities = {k: float(v) for k, v in result.probabilities.items()}
+    probabilities.setdefault("none", 0.0)
+    return probabilities, float(result.expected_time), float(result.time_std)
+
+
+def cantelli_tail(mean: float, std: float, horizon: float) -> float:
+    """Upper bound on P(tau > horizon) from the mean and std of tau (Cantelli's inequality).
+
+    ``P(tau - mean >= a) <= std**2 / (std**2 + a**2)`` for ``a > 0``; 1 when
+    the horizon does not exceed the mean.
+
+    References
+    ----------
+    Cantelli, 1928; see Grimmett, Stirzaker, "Probability and Random
+    Processes", 3rd ed., problem 7.11.9.
+    """
+    if not (math.isfinite(mean) and math.isfinite(std)):
+        return 1.0
+    slack = horizon - mean
+    if slack <= 0:
+        return 1.0
+    return float(std * std / (std * std + slack * slack))
+
+
+def stochastic_decisions(net: Network, runs: int, until: float, rng, *, workers=1,
+                         cluster=None, engine: str = "auto"):
+    """First-consensus labels and times of ``runs`` seeded stochastic runs.
+
+    Returns
+    -------
+    labels : list of (str or None), length runs
+    times : ndarray of float64, shape (runs,)
+        NaN for runs without consensus by ``until``.
+    """
+    from .simulate import simulate
+
+    ensemble = simulate(net, runs=int(runs), until=float(until), engine=engine, rng=rng,
+                        workers=workers, cluster=cluster, stop_at_consensus=True)
+    times = np.asarray(ensemble.consensus_times, dtype=np.float64)
+    return list(ensemble.labels), times

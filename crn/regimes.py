@@ -1,0 +1,575 @@
+"""Regime maps: where, over copy number n and input gap, the mean field's decision can be trusted.
+
+For each cell (n, gap) the ODE gives a label and a consensus time; exact
+analysis (small state spaces) or seeded stochastic runs give the probability
+that a run disagrees with the ODE's label, with a 95% Wilson interval, and the
+stochastic median consensus time. A cell is ``misleading`` when the interval
+lies wholly above the risk, ``ok`` when wholly below, ``uncertain`` otherwise
+(DESIGN.md); its time flag says whether the stochastic median and the ODE time
+differ by more than a factor. The boundary where the disagreement probability
+crosses the risk is fitted as ``gap_c ~ n**b`` on log-log axes.
+"""
+
+from __future__ import annotations
+
+import math
+from collections.abc import Callable, Mapping, Sequence
+from dataclasses import asdict, dataclass, field
+
+import numpy as np
+from scipy import stats as _stats
+
+from .errors import CRNError
+from .network import Network
+from .outcome import correct_label
+from .probes import (
+    cantelli_tail,
+    configurations,
+    exact_absorption,
+    gap_for_fraction,
+    ode_decision,
+    stochastic_decisions,
+)
+from .stats import wilson_interval
+
+__all__ = [
+    "FLAGS",
+    "TIME_FLAGS",
+    "RegimeCell",
+    "Boundary",
+    "RegimeMap",
+    "plan_cells",
+    "evaluate_cell",
+    "regime_map",
+    "fit_boundary",
+    "risk_flag",
+    "time_flag",
+    "DEFAULT_EXACT_MAX",
+]
+
+FLAGS = ("ok", "uncertain", "misleading")
+#: ``slower``/``faster``: the stochastic median exceeds / falls short of the ODE time by more
+#: than the factor; ``unknown``: one of the two has no consensus time.
+TIME_FLAGS = ("ok", "slower", "faster", "unknown")
+#: Largest estimated configuration count for which a cell is solved exactly.
+DEFAULT_EXACT_MAX = 100_000
+_HORIZON_FACTOR = 10.0
+_FIRST_ROUND = 50
+_TIMING_RUNS = 200
+
+
+@dataclass(frozen=True)
+class RegimeCell:
+    """One cell of a regime map.
+
+    Attributes
+    ----------
+    n, gap : int
+        Agents counted by the two inputs, and the difference of their counts.
+    ode_label : str or None
+        The mean field's consensus label (None: no consensus by the horizon).
+    ode_time : float or None
+        The mean field's consensus time (parallel time for protocols).
+    p_wrong, low, high : float
+        Probability that a stochastic run disagrees with ``ode_label`` (no
+        consensus by the horizon counts as disagreement), with its 95% Wilson
+        interval. For exact cells ``p_wrong == low`` is the exact probability
+        of never settling on ``ode_label`` and ``high`` adds Cantelli's bound on
+        settling only after the horizon (from the exact mean and standard
+        deviation of the time), so the true value lies in ``[low, high]``.
+    wrong, runs : int
+        Disagreeing runs and runs (0 and 0 for exact cells).
+    flag : str
+        ``ok``, ``uncertain`` or ``misleading``.
+    time_flag : str
+        One of :data:`TIME_FLAGS`.
+    ssa_median_time : float or None
+        Median stochastic consensus time (runs without consensus count as
+        later than any; None when more than half have none).
+    method : str
+        ``exact`` or ``stochastic``.
+    horizon : float
+        Time limit of the stochastic runs or transient analysis.
+    correct_label : str or None
+        The right answer (the majority input's label).
+    """
+
+    n: int
+    gap: int
+    ode_label: str | None
+    ode_time: float | None
+    p_wrong: float
+    low: float
+    high: float
+    wrong: int
+    runs: int
+    flag: str
+    time_flag: str
+    ssa_median_time: float | None
+    method: str
+    horizon: float
+    correct_label: str | None = None
+
+    def to_dict(self) -> dict:
+        return asdict(self)
+
+    @classmethod
+    def from_dict(cls, data: Mapping) -> RegimeCell:
+        return cls(**{k: data.get(k) for k in cls.__dataclass_fields__})
+
+
+@dataclass(frozen=True)
+class Boundary:
+    """Fit of the critical gap against n: ``gap_c = prefactor * n**exponent``.
+
+    Attributes
+    ----------
+    exponent, low, high : float or None
+        The log-log slope and its 95% interval (None when fewer than two n
+        have a crossing inside the gap range).
+    prefactor : float or None
+    critical_gaps : tuple of (int, float)
+        (n, interpolated critical gap) for every n with a crossing.
+    """
+
+    exponent: float | None
+    low: float | None
+    high: float | None
+    prefactor: float | None
+    critical_gaps: tuple = ()
+
+    def to_dict(self) -> dict:
+        return {"estimate": self.exponent, "low": self.low, "high": self.high,
+                "prefactor": self.prefactor,
+                "critical_gaps": [{"n": n, "gap": g} for n, g in self.critical_gaps]}
+
+
+@dataclass(frozen=True)
+class RegimeMap:
+    """A finished sweep: cells in grid order, the fitted boundary, and what produced them."""
+
+    cells: tuple[RegimeCell, ...]
+    boundary: Boundary
+    risk: float
+    time_factor: float
+    seed_entropy: int
+    skipped: tuple = field(default=())
+
+    def table(self) -> list[dict]:
+        """The cells as dictionaries (the CSV/JSON rows)."""
+        return [c.to_dict() for c in self.cells]
+
+
+def risk_flag(low: float, high: float, risk: float) -> str:
+    """``misleading`` when ``low > risk``, ``ok`` when ``high < risk``, else ``uncertain``."""
+    if low > risk:
+        return "misleading"
+    if high < risk:
+        return "ok"
+    return "uncertain"
+
+
+def time_flag(ssa_median: float | None, ode_time: float | None, factor: float) -> str:
+    """Compare the stochastic median consensus time with the ODE's, by ``factor``."""
+    if ssa_median is None or ode_time is None or ode_time <= 0:
+        return "unknown"
+    if ssa_median > factor * ode_time:
+        return "slower"
+    if ssa_median * factor < ode_time:
+        return "faster"
+    return "ok"
+
+
+def plan_cells(ns: Sequence[int], gaps: Sequence[int] | None = None,
+               gap_fractions: Sequence[float] | None = None):
+    """The (n, gap) cells of a sweep, in order, and the cells skipped.
+
+    Parameters
+    ----------
+    ns : sequence of int
+    gaps : sequence of int, optional
+        Absolute gaps. A cell whose gap differs from n in parity (so that
+        ``(n + gap) / 2`` is not whole) or exceeds n is skipped.
+    gap_fractions : sequence of float, optional
+        Gaps as fractions of n, rounded per :func:`crn.probes.gap_for_fraction`
+        (nearest whole gap of n's parity); duplicates after rounding are kept once.
+
+    Returns
+    -------
+    cells : list of (int, int)
+    skipped : list of (int, int)
+
+    Raises
+    ------
+    CRNError
+        Unless exactly one of ``gaps`` and ``gap_fractions`` is given, or for
+        empty lists or non-positive n.
+    """
+    if (gaps is None) == (gap_fractions is None):
+        raise CRNError("give exactly one of gaps and gap fractions")
+    ns = [int(n) for n in ns]
+    if not ns or any(n < 2 for n in ns):
+        raise CRNError(f"n values must be whole numbers >= 2, got {ns}")
+    cells, skipped = [], []
+    for n in ns:
+        if gaps is not None:
+            if not gaps:
+                raise CRNError("the gap list is empty")
+            for g in gaps:
+                g = int(g)
+                if g < 0:
+                    raise CRNError(f"gaps must be >= 0, got {g}")
+                if g > n or (n - g) % 2:
+                    skipped.append((n, g))
+                elif (n, g) not in cells:
+                    cells.append((n, g))
+        else:
+            if not gap_fractions:
+                raise CRNError("the gap-fraction list is empty")
+            for f in gap_fractions:
+                cell = (n, gap_for_fraction(n, float(f)))
+                if cell not in cells:
+                    cells.append(cell)
+    return cells, skipped
+
+
+def _disagrees(labels, ode_label) -> np.ndarray:
+    return np.array([label != ode_label for label in labels], dtype=bool)
+
+
+def _median_time(times: np.ndarray) -> float | None:
+    if times.size == 0:
+        return None
+    t = np.where(np.isfinite(times), times, np.inf)
+    median = float(np.median(t))
+    return median if math.isfinite(median) else None
+
+
+def evaluate_cell(networks: Callable[[int, int], Network], n: int, gap: int, *,
+                  risk: float = 0.01, until: float | None = None, runs_max: int = 1000,
+                  time_factor: float = 2.0, method: str = "auto",
+                  exact_max: int = DEFAULT_EXACT_MAX, entropy=0, cluster=None,
+                  timing_runs: int = _TIMING_RUNS) -> RegimeCell:
+    """Compute one cell of a regime map.
+
+    Parameters
+    ----------
+    networks : callable (n, gap) -> Network
+        Builds the cell's network (see :class:`crn.probes.InitialSplit`).
+    n, gap : int
+    risk : float
+    until : float, optional
+        Horizon of the ODE and of the runs; by default 10 times the ODE's
+        consensus time (``100 (1 + ln n)`` when the ODE has none).
+    runs_max : int
+        Most stochastic runs; rounds of 50, 50, 100, 200, ... (doubling) are
+        added until the interval lies wholly above or below ``risk``.
+    time_factor : float
+    method : {"auto", "exact", "stochastic"}
+        ``auto``: exact when at most ``exact_max`` configurations, else
+        stochastic. Exact cells solve the absorption problem
+        (:func:`crn.exact.exact_outcomes`) and bound consensus after the
+        horizon with Cantelli's inequality (transient analysis to a horizon
+        of ten ODE times is far slower); their median time comes from
+        ``timing_runs`` stochastic runs.
+    exact_max : int
+    entropy : int or SeedSequence
+        Root seed entropy (or a SeedSequence child); the cell draws from the
+        child stream keyed (n, gap, round) below it.
+    cluster : optional
+        A dask scheduler address or client passed to :func:`crn.simulate.simulate`.
+    timing_runs : int
+        Stochastic runs used for the median time in exact cells.
+
+    Returns
+    -------
+    RegimeCell
+    """
+    from .probes import cell_seed
+
+    if method not in ("auto", "exact", "stochastic"):
+        raise CRNError(f"method must be auto, exact or stochastic, got {method!r}")
+    net = networks(int(n), int(gap))
+    truth = correct_label(net)
+    ode_until = float(until) if until is not None else 1e4 * (1 + math.log(n))
+    ode_label, ode_time = ode_decision(net, ode_until)
+    if until is not None:
+        horizon = float(until)
+    elif ode_time is not None:
+        horizon = _HORIZON_FACTOR * max(ode_time, 1.0)
+    else:
+        horizon = 100.0 * (1 + math.log(n))
+    use_exact = method == "exact" or (method == "auto" and configurations(net) <= exact_max)
+    if use_exact:
+        # eventual outcome exactly; consensus after the horizon bounded by Cantelli's inequality
+        probabilities, mean, std = exact_absorption(net)
+        if ode_label is None:
+            agree = probabilities.get("none", 0.0)
+            low = 1.0 - agree
+            high = 1.0
+        else:
+            agree = probabilities.get(ode_label, 0.0)
+            low = min(max(1.0 - agree, 0.0), 1.0)
+            high = min(1.0, low + agree * cantelli_tail(mean, std, horizon))
+        p = low
+        wrong = runs = 0
+        _, times = stochastic_decisions(net, timing_runs, horizon, cell_seed(entropy, n, gap, 0),
+                                        cluster=cluster)
+    else:
+        disagree = np.zeros(0, dtype=bool)
+        times = np.zeros(0)
+        size, round_index = min(_FIRST_ROUND, runs_max), 0
+        while True:
+            labels, t = stochastic_decisions(net, size, horizon,
+                                             cell_seed(entropy, n, gap, round_index),
+                                             cluster=cluster)
+            disagree = np.concatenate([disagree, _disagrees(labels, ode_label)])
+            times = np.concatenate([times, t])
+            p, low, high = wilson_interval(int(disagree.sum()), disagree.size)
+            if low > risk or high < risk or disagree.size >= runs_max:
+                break
+            round_index += 1
+            size = min(disagree.size, runs_max - disagree.size)
+        wrong, runs = int(disagree.sum()), int(disagree.size)
+    median = _median_time(times)
+    return RegimeCell(
+        n=int(n), gap=int(gap), ode_label=ode_label,
+        ode_time=None if ode_time is None else float(ode_time),
+        p_wrong=float(p), low=float(low), high=float(high), wrong=wrong, runs=runs,
+        flag=risk_flag(low, high, risk),
+        time_flag=time_flag(median, ode_time, time_factor), ssa_median_time=median,
+        method="exact" if use_exact else "stochastic", horizon=float(horizon),
+        correct_label=truth,
+    )
+
+
+def _cell_task(args):
+    networks, n, gap, options = args
+    return evaluate_cell(networks, n, gap, **options)
+
+
+def regime_map(networks: Callable[[int, int], Network], ns: Sequence[int], *,
+               gaps: Sequence[int] | None = None, gap_fractions: Sequence[float] | None = None,
+               risk: float = 0.01, until: float | None = None, runs_max: int = 1000,
+               time_factor: float = 2.0, method: str = "auto",
+               exact_max: int = DEFAULT_EXACT_MAX, rng=None, workers: int | None = None,
+               cluster=None, done: Mapping | None = None,
+               on_cell: Callable[[RegimeCell], None] | None = None,
+               progress: Callable | None = None) -> RegimeMap:
+    """Sweep n and the gap; flag where the mean field misleads; fit the boundary.
+
+    Parameters
+    ----------
+    networks : callable (n, gap) -> Network
+        Picklable when ``workers > 1`` (:class:`crn.probes.InitialSplit`,
+        :class:`crn.probes.ModelParameters`).
+    ns : sequence of int
+    gaps, gap_fractions : sequence, optional
+        Exactly one; see :func:`plan_cells`.
+    risk : float, default 0.01
+    until : float, optional
+        Horizon (see :func:`evaluate_cell`).
+    runs_max : int, default 1000
+    time_factor : float, default 2
+    method : {"auto", "exact", "stochastic"}
+    exact_max : int
+    rng : int, SeedSequence or None
+        Root seed. Each cell draws from its own child stream keyed by
+        (n, gap, round), so the numbers do not depend on the order cells are
+        computed, the number of workers, or an interruption and resume.
+    workers : int, optional
+        Processes computing cells in parallel (default 1).
+    cluster : optional
+        Dask scheduler: stochastic runs go there (cells computed in turn).
+    done : mapping of (n, gap) to RegimeCell, optional
+        Cells already finished (resume): not recomputed.
+    on_cell : callable, optional
+        Called with each newly finished cell, in the calling process, as it
+        finishes (to append it to a results file).
+    progress : callable (done, total), optional
+
+    Returns
+    -------
+    RegimeMap
+
+    References
+    ----------
+    Angluin, Aspnes, Eisenstat, Distributed Computing 21(2), 2008, and Condon,
+    Hajiaghayi, Kirkpatrick, Manuch, Natural Computing 2020: for approximate
+    majority the critical gap grows like sqrt(n) up to log factors.
+    """
+    if not 0 < risk < 1:
+        raise CRNError(f"risk must lie in (0, 1), got {risk}")
+    if time_factor <= 1:
+        raise CRNError(f"time factor must exceed 1, got {time_factor}")
+    if runs_max < 1:
+        raise CRNError(f"runs_max must be >= 1, got {runs_max}")
+    if until is not None and not until > 0:
+        raise CRNError(f"until must be positive, got {until}")
+    seq = rng if isinstance(rng, np.random.SeedSequence) else np.random.SeedSequence(rng)
+    entropy = int(seq.entropy)
+    stream = seq if seq.spawn_key else entropy
+    cells, skipped = plan_cells(ns, gaps, gap_fractions)
+    finished = {tuple(k): v for k, v in (done or {}).items()}
+    todo = [c for c in cells if c not in finished]
+    options = dict(risk=risk, until=until, runs_max=int(runs_max), time_factor=time_factor,
+                   method=method, exact_max=exact_max, entropy=stream, cluster=cluster)
+    total, count = len(cells), len(cells) - len(todo)
+    if progress:
+        progress(count, total)
+
+    def finish(cell):
+        nonlocal count
+        finished[(cell.n, cell.gap)] = cell
+        count += 1
+        if on_cell:
+            on_cell(cell)
+        if progress:
+            progress(count, total)
+
+    if workers and workers > 1 and cluster is None and len(todo) > 1:
+        from concurrent.futures import ProcessPoolExecutor, as_completed
+
+        # the costliest cells (largest n) first, so no worker idles at the end
+        ordered = sorted(todo, key=lambda c: -c[0])
+        with ProcessPoolExecutor(max_workers=int(workers)) as pool:
+            futures = [pool.submit(_cell_task, (networks, n, g, options)) for n, g in ordered]
+            for future in as_completed(futures):
+                finish(future.result())
+    else:
+        for n, g in todo:
+            finish(evaluate_cell(networks, n, g, **options))
+    ordered_cells = tuple(finished[c] for c in cells)
+    return RegimeMap(cells=ordered_cells, boundary=fit_boundary(ordered_cells, risk, rng=entropy),
+                     risk=float(risk), time_factor=float(time_factor), seed_entropy=entropy,
+                     skipped=tuple(skipped))
+
+
+def _critical_gap(rows, risk):
+    """Interpolated gap where p crosses the risk, scanning down from the largest gap."""
+    rows = sorted(rows)
+    for i in range(len(rows) - 1, 0, -1):
+        g1, p1 = rows[i - 1]
+        g2, p2 = rows[i]
+        if i == len(rows) - 1 and p2 > risk:
+            return None  # even the largest gap misleads: the crossing lies beyond the grid
+        if p1 > risk >= p2:
+            t = (math.log(p1) - math.log(risk)) / (math.log(p1) - math.log(p2))
+            return math.exp(math.log(g1) + t * (math.log(g2) - math.log(g1)))
+    return None
+
+
+def _floor(cell: RegimeCell, p: float) -> float:
+    # log space needs p > 0: half a run for sampled cells, a tiny value for exact ones
+    return max(p, 0.5 / cell.runs if cell.runs else 1e-12)
+
+
+def _critical_gaps(cells, risk, probabilities):
+    by_n: dict[int, list] = {}
+    for cell, p in zip(cells, probabilities, strict=True):
+        if cell.gap > 0:
+            by_n.setdefault(cell.n, []).append((cell.gap, _floor(cell, p)))
+    out = []
+    for n in sorted(by_n):
+        g = _critical_gap(by_n[n], risk)
+        if g is not None:
+            out.append((n, g))
+    return out
+
+
+def _brackets(cells, risk, probabilities):
+    """(n, lower, upper) grid gaps around each crossing: the crossing lies between them."""
+    by_n: dict[int, list] = {}
+    for cell, p in zip(cells, probabilities, strict=True):
+        if cell.gap > 0:
+            by_n.setdefault(cell.n, []).append((cell.gap, p))
+    out = {}
+    for n, rows in by_n.items():
+        rows.sort()
+        for i in range(len(rows) - 1, 0, -1):
+            if rows[i - 1][1] > risk >= rows[i][1]:
+                out[n] = (rows[i - 1][0], rows[i][0])
+                break
+    return out
+
+
+def _extreme_slopes(points, brackets):
+    """Least and greatest least-squares slope with each log gap anywhere in its bracket."""
+    x = np.log([n for n, _ in points])
+    weights = (x - x.mean()) / ((x - x.mean()) ** 2).sum()
+    lower = np.log([brackets[n][0] for n, _ in points])
+    upper = np.log([brackets[n][1] for n, _ in points])
+    high = float(np.where(weights > 0, upper, lower) @ weights)
+    low = float(np.where(weights > 0, lower, upper) @ weights)
+    return low, high
+
+
+def _slope(points):
+    x = np.log([n for n, _ in points])
+    y = np.log([g for _, g in points])
+    slope, intercept = np.polyfit(x, y, 1)
+    return float(slope), float(intercept), x, y
+
+
+def fit_boundary(cells: Sequence[RegimeCell], risk: float, *, rng=None,
+                 replicates: int = 2000) -> Boundary:
+    """Fit ``log gap_c = log a + b log n`` over the n that have a crossing.
+
+    For each n the critical gap is where the disagreement probability crosses
+    ``risk``, interpolated linearly between neighbouring gaps in
+    (log gap, log p). The interval on the exponent b is the hull of (i) the
+    95% t-interval of the least-squares slope (scatter of the points about the
+    line; needs three or more n), (ii) a 95% parametric-bootstrap percentile
+    interval redrawing each sampled cell's count from Binomial(runs, p)
+    (sampling error; exact cells are fixed), and (iii) the least and greatest
+    slope with every critical gap anywhere between the two grid gaps around
+    its crossing (the grid's resolution: coarse grids give wide intervals).
+
+    Parameters
+    ----------
+    cells : sequence of RegimeCell
+    risk : float
+    rng : int, SeedSequence or None
+        Seed of the bootstrap.
+    replicates : int
+
+    Returns
+    -------
+    Boundary
+    """
+    cells = list(cells)
+    base = _critical_gaps(cells, risk, [c.p_wrong for c in cells])
+    if len(base) < 2 or len({n for n, _ in base}) < 2:
+        return Boundary(None, None, None, None, tuple(base))
+    slope, intercept, x, y = _slope(base)
+    lows, highs = [], []
+    if len(base) >= 3:
+        resid = y - (slope * x + intercept)
+        dof = len(base) - 2
+        se = math.sqrt(float(resid @ resid) / dof / float(((x - x.mean()) ** 2).sum()))
+        half = float(_stats.t.ppf(0.975, dof)) * se
+        lows.append(slope - half)
+        highs.append(slope + half)
+    generator = np.random.default_rng(rng)
+    runs = np.array([c.runs for c in cells])
+    p_hat = np.array([c.p_wrong for c in cells])
+    slopes = []
+    if (runs > 0).any():
+        for _ in range(int(replicates)):
+            k = generator.binomial(np.maximum(runs, 1), np.where(runs > 0, p_hat, 0.0))
+            p_star = np.where(runs > 0, k / np.maximum(runs, 1), p_hat)
+            points = _critical_gaps(cells, risk, p_star)
+            if len({n for n, _ in points}) >= 2:
+                slopes.append(_slope(points)[0])
+    if slopes:
+        lo, hi = np.quantile(slopes, [0.025, 0.975])
+        lows.append(float(lo))
+        highs.append(float(hi))
+    brackets = _brackets(cells, risk, [c.p_wrong for c in cells])
+    if all(n in brackets for n, _ in base):
+        lo, hi = _extreme_slopes(base, brackets)
+        lows.append(lo)
+        highs.append(hi)
+    low = min(lows + [slope])
+    high = max(highs + [slope])
+    return Boundary(slope, low, high, float(math.exp(intercept)), tuple(base))

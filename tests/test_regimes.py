@@ -1,0 +1,139 @@
+"""Regime maps: where the mean field's decision can be trusted (crn.regimes)."""
+
+import math
+
+import numpy as np
+import pytest
+
+from crn.io.models import load_model
+from crn.probes import InitialSplit, gap_for_fraction
+from crn.regimes import evaluate_cell, fit_boundary, plan_cells, regime_map, risk_flag
+
+AM = "models/approximate_majority.toml"
+EM = "models/exact_majority.toml"
+NS = [40, 80, 160, 320]
+FRACTIONS = [0.08, 0.12, 0.18, 0.27, 0.4]
+
+
+@pytest.fixture(scope="module")
+def am_map():
+    net = load_model(AM).network
+    return regime_map(InitialSplit(net), NS, gap_fractions=FRACTIONS, method="exact", rng=1)
+
+
+def test_gap_rounding_keeps_parity():
+    # derived: (n + gap) / 2 must be whole, so gap has n's parity; a tie is raised to the
+    # smallest positive gap
+    assert gap_for_fraction(100, 0.05) == 6 or gap_for_fraction(100, 0.05) == 4
+    assert gap_for_fraction(101, 0.05) == 5
+    assert gap_for_fraction(1000, 0.001) == 2
+    assert gap_for_fraction(999, 0.0001) == 1
+    cells, skipped = plan_cells([100, 101], gaps=[2, 3])
+    assert cells == [(100, 2), (101, 3)]
+    assert skipped == [(100, 3), (101, 2)]
+
+
+def test_flags_follow_design_rule():
+    # DESIGN.md: misleading when the lower bound exceeds the risk, ok when the upper is below
+    assert risk_flag(0.02, 0.3, 0.01) == "misleading"
+    assert risk_flag(0.0, 0.009, 0.01) == "ok"
+    assert risk_flag(0.005, 0.02, 0.01) == "uncertain"
+
+
+def test_misleading_region_shrinks_with_n(am_map):
+    # Angluin, Aspnes, Eisenstat 2008 / Perron et al. 2009: at a fixed relative gap the error
+    # of approximate majority decays exponentially in n, so fewer relative gaps mislead as n grows
+    misleading = {n: sum(c.flag == "misleading" for c in am_map.cells if c.n == n) for n in NS}
+    counts = [misleading[n] for n in NS]
+    assert all(a >= b for a, b in zip(counts, counts[1:], strict=False)), counts
+    assert counts[-1] < counts[0], counts
+    for f in FRACTIONS:
+        p = [next(c.p_wrong for c in am_map.cells if c.n == n and c.gap ==
+                  gap_for_fraction(n, f)) for n in NS]
+        assert all(a > b for a, b in zip(p, p[1:], strict=False)), (f, p)
+
+
+def test_boundary_exponent_near_one_half(am_map):
+    # REFERENCES.md: critical margin ~ sqrt(n) up to log factors (Angluin, Aspnes, Eisenstat 2008;
+    # Condon et al. 2020); the issue's acceptance band is 0.35..0.65
+    b = am_map.boundary
+    assert len(b.critical_gaps) == len(NS)
+    assert 0.35 <= b.exponent <= 0.65
+    assert b.low <= b.exponent <= b.high
+    # every critical gap lies inside the grid bracket where the exact probability crosses the risk
+    for n, g in b.critical_gaps:
+        rows = sorted((c.gap, c.p_wrong) for c in am_map.cells if c.n == n)
+        below = max(gap for gap, p in rows if p > am_map.risk)
+        above = min(gap for gap, p in rows if gap > below)
+        assert below <= g <= above
+
+
+def test_exact_cells_are_exact_probabilities(am_map):
+    # exact absorption: the eventual error is exact (low); high adds only Cantelli's bound on
+    # consensus after the horizon, small when the horizon is 10x the ODE time
+    for c in am_map.cells:
+        assert c.method == "exact" and c.runs == 0
+        assert 0 <= c.high - c.low < 0.01
+
+
+def test_exact_and_stochastic_intervals_overlap():
+    # both estimate the same probability; the Wilson interval covers it with 95% confidence
+    # (alpha = 0.05 per cell; fixed seed)
+    nets = InitialSplit(load_model(AM).network)
+    for n, gap in [(60, 6), (120, 20), (200, 40)]:
+        exact = evaluate_cell(nets, n, gap, method="exact", entropy=7)
+        sampled = evaluate_cell(nets, n, gap, method="stochastic", runs_max=400, entropy=7)
+        assert sampled.runs >= 50
+        assert sampled.low <= exact.high and exact.low <= sampled.high, (exact, sampled)
+        assert exact.ode_label == sampled.ode_label == "X"
+
+
+def test_seeded_cells_do_not_depend_on_order_or_workers():
+    nets = InitialSplit(load_model(AM).network)
+    one = regime_map(nets, [300, 600], gaps=[10, 30], method="stochastic", runs_max=100, rng=5)
+    two = regime_map(nets, [600, 300], gaps=[30, 10], method="stochastic", runs_max=100, rng=5,
+                     workers=2)
+    by_key = {(c.n, c.gap): c for c in two.cells}
+    for c in one.cells:
+        assert by_key[(c.n, c.gap)] == c
+
+
+def test_four_state_exact_majority_never_misleads_and_slows_with_smaller_gap():
+    # Mertzios et al. 2014/2017: the four-state protocol is always correct, so it never
+    # disagrees with the ODE's (correct) label. Alistarh, Gelashvili, Vojnovic PODC 2015 and
+    # Draief, Vojnovic 2012: its time grows as the margin shrinks, like 1 / epsilon.
+    net = load_model(EM).network
+    gaps = [2, 4, 8, 16, 32]
+    result = regime_map(InitialSplit(net), [64, 128], gaps=gaps, rng=3, method="exact")
+    for c in result.cells:
+        assert c.flag == "ok"
+        assert c.low == pytest.approx(0.0, abs=1e-9)
+        assert c.ode_label == "A"
+    for n in (64, 128):
+        cells = sorted((c for c in result.cells if c.n == n), key=lambda c: c.gap)
+        ode = [c.ode_time for c in cells]
+        ssa = [c.ssa_median_time for c in cells]
+        assert all(a > b for a, b in zip(ode, ode[1:], strict=False))
+        assert all(a > b for a, b in zip(ssa, ssa[1:], strict=False))
+        # slope of log time against log gap near -1 (Omega(1/epsilon)); derived bound: the last
+        # phase (weak minority converted by `gap` strong agents) takes about n ln(n) / (2 gap)
+        slope = np.polyfit(np.log(gaps), np.log(ssa), 1)[0]
+        assert -1.3 < slope < -0.6, slope
+
+
+def test_fit_boundary_recovers_a_planted_exponent():
+    # derived: with p(n, gap) = exp(-gap^2 / n), the gap where p = risk is sqrt(n ln(1/risk)),
+    # an exponent of exactly 1/2
+    from crn.regimes import RegimeCell
+
+    risk = 0.01
+    cells = []
+    for n in (100, 1000, 10000, 100000):
+        for g in np.geomspace(0.3, 5, 25) * math.sqrt(n):
+            p = math.exp(-(g * g) / n)
+            cells.append(RegimeCell(n, float(g), "X", 1.0, p, p, p, 0, 0, "ok", "ok", 1.0,
+                                    "exact", 10.0))
+    b = fit_boundary(cells, risk)
+    assert b.exponent == pytest.approx(0.5, abs=0.01)
+    for n, g in b.critical_gaps:
+        assert g == pytest.approx(math.sqrt(n * math.log(1 / risk)), rel=0.02)
