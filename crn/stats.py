@@ -35,7 +35,9 @@ def wilson_interval(successes: int, trials: int, confidence: float = 0.95):
     denom = 1 + z * z / trials
     centre = (p + z * z / (2 * trials)) / denom
     half = z * np.sqrt(p * (1 - p) / trials + z * z / (4 * trials * trials)) / denom
-    return p, max(0.0, centre - half), min(1.0, centre + half)
+    low = 0.0 if successes == 0 else max(0.0, centre - half)
+    high = 1.0 if successes == trials else min(1.0, centre + half)
+    return float(p), float(low), float(high)
 
 
 def time_summary(times) -> dict | None:
