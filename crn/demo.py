@@ -18,9 +18,9 @@ from pathlib import Path
 import numpy as np
 
 from .copies import Prober, smallest_n
+from .io.atomic import atomic_path, write_atomic
 from .io.models import load_model
 from .io.regime_tables import table_csv
-from .io.sweep_store import atomic_path, write_atomic
 from .probes import InitialSplit, gap_for_fraction, ode_decision, stochastic_decisions
 from .regimes import regime_map
 from .stats import wilson_interval

@@ -8,8 +8,9 @@ from hypothesis import given, settings
 from hypothesis import strategies as st
 
 from crn.errors import CRNError, ModelError
+from crn.io.atomic import write_atomic
 from crn.io.contract import network_from_json, network_to_dict, network_to_json
-from crn.io.exports import export_network, write_atomic
+from crn.io.exports import export_network
 from crn.io.latex import network_to_latex
 from crn.io.models import load_model
 from crn.io.sbml import network_from_sbml, network_to_sbml, sbml_consistency
@@ -319,7 +320,7 @@ def test_atomic_write_leaves_the_old_file_when_writing_fails(tmp_path, monkeypat
     def broken(src, dst):
         raise OSError(28, "No space left on device")
 
-    monkeypatch.setattr("crn.io.exports.os.replace", broken)
+    monkeypatch.setattr("crn.io.atomic.os.replace", broken)
     with pytest.raises(CRNError, match="No space left"):
         write_atomic(target, "new\n")
     assert target.read_text() == "old\n"

@@ -12,7 +12,8 @@ from click.testing import CliRunner
 
 from crn.cli import cli, main
 from crn.errors import CRNError
-from crn.io.sweep_store import SweepStore, atomic_path, write_atomic
+from crn.io.atomic import atomic_path, write_atomic
+from crn.io.sweep_store import SweepStore
 
 ROOT = Path(__file__).resolve().parent.parent
 AM = str(ROOT / "models" / "approximate_majority.toml")

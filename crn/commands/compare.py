@@ -101,7 +101,7 @@ def _write_plot(path, ode, ensemble, differ, name):
     matplotlib.use("Agg")
     import matplotlib.pyplot as plt
 
-    from ..io.sweep_store import atomic_path
+    from ..io.atomic import atomic_path
     from ..plots.compare import plot_compare
 
     ax = plot_compare(ode, ensemble, disagreement=differ,

@@ -142,7 +142,7 @@ def _plot(result, name: str, path) -> None:
     matplotlib.use("Agg")
     import matplotlib.pyplot as plt
 
-    from ..io.ode_files import save_figure
+    from ..io.atomic import save_figure
     from ..plots.ode import plot_mean_field
 
     ax = plot_mean_field(result, title=f"Mean-field ODE of {name}")

@@ -12,8 +12,9 @@ import click
 import numpy as np
 
 from ..errors import CRNError
+from ..io.atomic import atomic_path, write_atomic
 from ..io.regime_tables import table_csv
-from ..io.sweep_store import SweepStore, atomic_path, write_atomic
+from ..io.sweep_store import SweepStore
 from ..model import parse_overrides
 from ..probes import InitialSplit, ModelParameters
 from ..regimes import RegimeCell, RegimeMap, plan_cells, regime_map

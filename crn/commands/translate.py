@@ -5,8 +5,9 @@ from __future__ import annotations
 import click
 
 from ..errors import CRNError
+from ..io.atomic import write_atomic
 from ..io.contract import network_to_dict
-from ..io.exports import FORMATS, export_network, write_atomic
+from ..io.exports import FORMATS, export_network
 from ..io.sbml import sbml_consistency
 from .options import emit_json, json_option, load, model_argument, set_option
 

@@ -2,18 +2,17 @@
 
 from __future__ import annotations
 
-import os
-import tempfile
 from pathlib import Path
 
 from ..errors import CRNError, ModelError
 from ..network import Network
+from .atomic import write_atomic
 from .contract import network_from_json, network_to_json
 from .latex import network_to_latex
 from .sbml import network_from_sbml, network_to_sbml
 from .text import network_to_text
 
-__all__ = ["FORMATS", "export_network", "write_atomic", "write_network", "read_sbml",
+__all__ = ["FORMATS", "export_network", "write_network", "read_sbml",
            "read_network_json"]
 
 #: Format name -> function writing a network as text.
@@ -38,39 +37,6 @@ def export_network(net: Network, fmt: str) -> str:
     except KeyError:
         raise CRNError(f"unknown format {fmt!r}; expected one of {', '.join(FORMATS)}") from None
     return writer(net)
-
-
-def write_atomic(path, text: str) -> None:
-    """Write text to ``path`` through a temporary file in the same folder and a rename.
-
-    Readers see the old file or the complete new one, never a half-written one;
-    on failure the temporary file is removed and ``path`` is untouched.
-
-    Raises
-    ------
-    CRNError
-        When the folder does not exist or cannot be written.
-    """
-    path = Path(path)
-    folder = path.parent if str(path.parent) else Path(".")
-    try:
-        fd, tmp = tempfile.mkstemp(prefix=f".{path.name}.", suffix=".tmp", dir=folder)
-    except OSError as err:
-        raise CRNError(f"{path}: cannot write: {err.strerror}") from err
-    try:
-        with os.fdopen(fd, "w", encoding="utf-8") as handle:
-            handle.write(text)
-            handle.flush()
-            os.fsync(handle.fileno())
-        os.replace(tmp, path)
-    except BaseException as err:
-        try:
-            os.unlink(tmp)
-        except OSError:
-            pass
-        if isinstance(err, OSError):
-            raise CRNError(f"{path}: cannot write: {err.strerror}") from err
-        raise
 
 
 def write_network(net: Network, fmt: str, path) -> None:

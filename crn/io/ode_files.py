@@ -2,30 +2,12 @@
 
 from __future__ import annotations
 
-import contextlib
 import csv
 import io
-import os
-import tempfile
-from pathlib import Path
 
-__all__ = ["atomic_target", "write_mean_field_csv", "mean_field_csv", "save_figure"]
+from .atomic import write_atomic
 
-
-@contextlib.contextmanager
-def atomic_target(path, suffix: str = ""):
-    """Yield a temporary path next to ``path``; rename it over ``path`` when the block succeeds."""
-    path = Path(path)
-    handle, tmp = tempfile.mkstemp(prefix=f".{path.name}.", suffix=suffix or path.suffix,
-                                   dir=path.parent if str(path.parent) else ".")
-    os.close(handle)
-    try:
-        yield Path(tmp)
-        os.replace(tmp, path)
-    except BaseException:
-        with contextlib.suppress(OSError):
-            os.unlink(tmp)
-        raise
+__all__ = ["write_mean_field_csv", "mean_field_csv"]
 
 
 def mean_field_csv(result) -> str:
@@ -41,13 +23,4 @@ def mean_field_csv(result) -> str:
 def write_mean_field_csv(path, result) -> None:
     """Write :func:`mean_field_csv` to ``path`` atomically."""
     text = mean_field_csv(result)
-    with atomic_target(path) as tmp:
-        tmp.write_text(text, encoding="utf-8")
-
-
-def save_figure(path, figure) -> None:
-    """Save a matplotlib figure atomically; the format follows the file suffix."""
-    path = Path(path)
-    fmt = path.suffix.lstrip(".").lower() or "png"
-    with atomic_target(path) as tmp:
-        figure.savefig(tmp, format=fmt, dpi=150)
+    write_atomic(path, text)

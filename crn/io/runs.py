@@ -7,7 +7,7 @@ import io
 
 import numpy as np
 
-from .exports import write_atomic
+from .atomic import write_atomic
 
 __all__ = ["runs_csv", "write_runs_csv"]
 

@@ -14,13 +14,13 @@ from __future__ import annotations
 import json
 import math
 import os
-import tempfile
 import warnings
 from pathlib import Path
 
 from ..errors import CRNError
+from .atomic import write_atomic
 
-__all__ = ["SweepStore", "write_atomic", "atomic_path"]
+__all__ = ["SweepStore"]
 
 _FORMAT = "crn-sweep/1"
 
@@ -36,68 +36,6 @@ def _plain(value):
     if hasattr(value, "item") and not isinstance(value, str | bytes):
         return _plain(value.item())
     return value
-
-
-def write_atomic(path, data) -> Path:
-    """Write ``data`` (str or bytes) to ``path`` whole or not at all.
-
-    The data goes to a temporary file in the same directory, is fsync'ed and
-    then renamed over ``path`` with :func:`os.replace` (atomic on POSIX).
-
-    Returns
-    -------
-    Path
-    """
-    path = Path(path)
-    with atomic_path(path) as tmp:
-        mode = "wb" if isinstance(data, bytes) else "w"
-        with open(tmp, mode, **({} if mode == "wb" else {"encoding": "utf-8"})) as fh:
-            fh.write(data)
-            fh.flush()
-            os.fsync(fh.fileno())
-    return path
-
-
-class atomic_path:  # noqa: N801 - used like a function: ``with atomic_path(p) as tmp``
-    """Context manager giving a temporary path that replaces ``path`` on success.
-
-    For writers that insist on a file name (matplotlib's ``savefig``): write to
-    the yielded path; on normal exit it is renamed over ``path``, on an
-    exception it is removed and ``path`` is untouched. The temporary name keeps
-    the suffix so format detection by extension still works.
-    """
-
-    def __init__(self, path):
-        self.path = Path(path)
-
-    def __enter__(self) -> Path:
-        self.path.parent.mkdir(parents=True, exist_ok=True)
-        fd, name = tempfile.mkstemp(prefix=f".{self.path.name}.", suffix=self.path.suffix,
-                                    dir=self.path.parent)
-        os.close(fd)
-        self.tmp = Path(name)
-        return self.tmp
-
-    def __exit__(self, kind, value, tb):
-        if kind is None:
-            os.replace(self.tmp, self.path)
-            _fsync_dir(self.path.parent)
-        else:
-            self.tmp.unlink(missing_ok=True)
-        return False
-
-
-def _fsync_dir(directory: Path) -> None:
-    try:
-        fd = os.open(directory, os.O_RDONLY)
-    except OSError:
-        return
-    try:
-        os.fsync(fd)
-    except OSError:
-        pass
-    finally:
-        os.close(fd)
 
 
 class SweepStore:
