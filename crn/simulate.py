@@ -353,11 +353,12 @@ def _on_pool(workers, task, children, done, report):
             report(len(done), len(children))
     except BaseException:
         _terminate(pool)
-        raise
-    finally:
         # not cancel_futures: after the workers are terminated the pool fails the queued
         # futures itself, and Python 3.11 errors on failing a future cancelled before.
         pool.shutdown(wait=False)
+        raise
+    # every future is done: joining is immediate, and leaves no pool thread for exit to trip on
+    pool.shutdown(wait=True)
 
 
 def _terminate(pool) -> None:

@@ -114,7 +114,7 @@ def test_output_file_in_a_missing_folder(tmp_path, capsys):
     target = tmp_path / "no" / "x.xml"
     message = fail(["translate", write(tmp_path, GOOD), "--to", "sbml", "-o", str(target)],
                    capsys)
-    assert str(target) in message and "cannot write" in message
+    assert str(target.parent) in message and "does not exist" in message
     assert not target.parent.exists()
 
 
@@ -123,3 +123,20 @@ def test_python_model_that_raises(tmp_path, capsys):
     path.write_text("def build(parameters):\n    return 1 / 0\n")
     message = fail(["translate", str(path)], capsys)
     assert message.startswith(f"crn: {path}") and "ZeroDivisionError" in message
+
+
+@pytest.mark.parametrize(
+    "argv",
+    [
+        ["ssa", "models/approximate_majority.toml", "--set", "n=20", "--runs", "2",
+         "--csv", "missing-folder/runs.csv"],
+        ["ode", "models/approximate_majority.toml", "--plot", "missing-folder/ode.png"],
+        ["translate", "models/approximate_majority.toml", "-o", "missing-folder/net.xml"],
+    ],
+)
+def test_output_into_a_missing_folder_fails_before_any_work(argv, capsys):
+    # common practice: refuse an unwritable output before a long run, not after it
+    assert main(argv) == 2
+    err = capsys.readouterr().err.strip()
+    assert len(err.splitlines()) == 1
+    assert "missing-folder" in err and "does not exist" in err

@@ -5,7 +5,15 @@ from __future__ import annotations
 import click
 import numpy as np
 
-from .options import emit_json, json_option, load, model_argument, seed_option, set_option
+from .options import (
+    OUTPUT_FILE,
+    emit_json,
+    json_option,
+    load,
+    model_argument,
+    seed_option,
+    set_option,
+)
 from .ssa import _finish_interrupted, ensemble_options, ensemble_summary, run_ensemble
 
 __all__ = ["compare", "compare_window", "disagreement"]
@@ -37,7 +45,7 @@ def disagreement(labels, ode_label) -> tuple[float, float, float]:
 @ensemble_options
 @seed_option
 @json_option
-@click.option("--plot", "plot_path", type=click.Path(dir_okay=False), default=None,
+@click.option("--plot", "plot_path", type=OUTPUT_FILE, default=None,
               help="Write the figure (ODE over the stochastic median and 5-95% band).")
 def compare(model, sets, runs, until, engine, workers, cluster, seed, as_json, plot_path):
     """Put MODEL's mean-field ODE next to its exact stochastic runs: each label's

@@ -8,7 +8,7 @@ import click
 import numpy as np
 
 from ..ode import METHODS, solve_mean_field
-from .options import emit_json, json_option, load, model_argument, set_option
+from .options import OUTPUT_FILE, emit_json, json_option, load, model_argument, set_option
 
 __all__ = ["ode"]
 
@@ -74,9 +74,9 @@ def _format_eigenvalues(values) -> str:
                                 "consensus, capped at a multiple of the natural time scale.")
 @click.option("--at", "at", default=None, metavar="t1,t2,...",
               help="Report the solution at these times (the solve then runs past consensus).")
-@click.option("--plot", "plot_file", type=click.Path(dir_okay=False), default=None,
+@click.option("--plot", "plot_file", type=OUTPUT_FILE, default=None,
               metavar="FILE", help="Save a figure of the fractions against time (png, pdf, svg).")
-@click.option("--csv", "csv_file", type=click.Path(dir_okay=False), default=None,
+@click.option("--csv", "csv_file", type=OUTPUT_FILE, default=None,
               metavar="FILE", help="Write the trajectory as CSV (time, then one column per "
                                    "species).")
 @json_option

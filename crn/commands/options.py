@@ -12,7 +12,7 @@ from ..io.models import load_model
 from ..model import parse_overrides
 
 __all__ = ["model_argument", "set_option", "seed_option", "json_option", "load", "emit_json",
-           "progress_bar", "to_jsonable"]
+           "progress_bar", "to_jsonable", "OUTPUT_FILE"]
 
 
 def model_argument(func):
@@ -97,3 +97,27 @@ def _force_progress() -> bool:
     import os
 
     return os.environ.get("CRN_PROGRESS") == "1"
+
+
+class OutputFile(click.ParamType):
+    """A file the command will write: checked before any work starts, so a typo in a
+    folder name fails at once instead of after a long run."""
+
+    name = "file"
+
+    def convert(self, value, param, ctx):
+        import os
+        from pathlib import Path
+
+        path = Path(value)
+        if path.is_dir():
+            self.fail(f"{value!r} is a folder, not a file", param, ctx)
+        folder = path.parent if str(path.parent) else Path(".")
+        if not folder.is_dir():
+            self.fail(f"folder {str(folder)!r} of {value!r} does not exist", param, ctx)
+        if not os.access(folder, os.W_OK):
+            self.fail(f"folder {str(folder)!r} of {value!r} is not writable", param, ctx)
+        return str(path)
+
+
+OUTPUT_FILE = OutputFile()

@@ -19,6 +19,7 @@ from ..model import parse_overrides
 from ..probes import InitialSplit, ModelParameters
 from ..regimes import RegimeCell, RegimeMap, plan_cells, regime_map
 from .options import (
+    OUTPUT_FILE,
     emit_json,
     json_option,
     load,
@@ -107,9 +108,9 @@ def _fmt(value, spec=".3g"):
               show_default=True, help="Flag times when SSA median and ODE differ by more.")
 @click.option("--method", type=click.Choice(["auto", "exact", "stochastic"]), default="auto",
               show_default=True, help="Exact analysis, stochastic runs, or exact when small.")
-@click.option("--plot", "plot_file", type=click.Path(dir_okay=False), default=None,
+@click.option("--plot", "plot_file", type=OUTPUT_FILE, default=None,
               help="Write the heatmap figure (png, pdf, svg).")
-@click.option("--csv", "csv_file", type=click.Path(dir_okay=False), default=None,
+@click.option("--csv", "csv_file", type=OUTPUT_FILE, default=None,
               help="Write the table as CSV.")
 @click.option("--out", "out_dir", type=click.Path(file_okay=False), default=None,
               help="Directory for the results file (each cell appended as it finishes) and "

@@ -7,6 +7,7 @@ import click
 from ..simulate import ENGINES, Ensemble, SimulationInterrupted, simulate
 from ..stats import wilson_interval
 from .options import (
+    OUTPUT_FILE,
     emit_json,
     json_option,
     load,
@@ -116,7 +117,7 @@ def _finish_interrupted(ensemble: Ensemble):
 @ensemble_options
 @seed_option
 @json_option
-@click.option("--csv", "csv_path", type=click.Path(dir_okay=False), default=None,
+@click.option("--csv", "csv_path", type=OUTPUT_FILE, default=None,
               help="Also write one row per run to this CSV file.")
 def ssa(model, sets, runs, until, engine, workers, cluster, seed, as_json, csv_path):
     """Run MODEL's exact stochastic dynamics RUNS times and report who won and when.

@@ -9,7 +9,7 @@ from ..io.atomic import write_atomic
 from ..io.contract import network_to_dict
 from ..io.exports import FORMATS, export_network
 from ..io.sbml import sbml_consistency
-from .options import emit_json, json_option, load, model_argument, set_option
+from .options import OUTPUT_FILE, emit_json, json_option, load, model_argument, set_option
 
 __all__ = ["translate"]
 
@@ -19,7 +19,7 @@ __all__ = ["translate"]
 @set_option
 @click.option("--to", "fmt", type=click.Choice(list(FORMATS)), default=None,
               help="Export format (default text).")
-@click.option("-o", "--output", "output", type=click.Path(dir_okay=False), default=None,
+@click.option("-o", "--output", "output", type=OUTPUT_FILE, default=None,
               help="Write the export to FILE (atomically) instead of standard output.")
 @json_option
 def translate(model, sets, fmt, output, as_json):
