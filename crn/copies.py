@@ -5,8 +5,9 @@ The population n runs over a lattice on which the requested gap is exact
 ``n = G + 2, G + 4, ...``). At each probed n the probability of correct
 consensus by the deadline comes from exact analysis where the state space is
 small and from seeded stochastic runs otherwise (added in rounds until the 95%
-Wilson interval lies wholly above or below the target, or ``runs_max`` is
-spent). Bracketing by doubling and bisection then find the smallest n whose
+interval simultaneous over the sequential looks, Clopper-Pearson with a
+Bonferroni correction, lies wholly above or below the target, or ``runs_max``
+is spent). Bracketing by doubling and bisection then find the smallest n whose
 estimate meets ``1 - risk`` and, from the interval bounds, the smallest n that
 could meet it (low) and the smallest n that surely meets it (high).
 """
@@ -24,21 +25,21 @@ from .errors import CRNError
 from .network import Network
 from .outcome import correct_label
 from .probes import (
-    cantelli_tail,
+    FIRST_ROUND,
     cell_seed,
     configurations,
     exact_absorption,
     exact_decision,
+    late_consensus_bound,
     ode_decision,
+    sample_until_decided,
     stochastic_decisions,
 )
-from .stats import wilson_interval
 from .units import AVOGADRO
 
 __all__ = ["Probe", "CopiesResult", "Prober", "Lattice", "lattice", "smallest_n",
            "physical_outputs"]
 
-_FIRST_ROUND = 25
 _TIMING_RUNS = 200
 
 
@@ -50,7 +51,9 @@ class Probe:
     ----------
     n, gap : int
     p, low, high : float
-        Estimate and 95% interval (Wilson for runs; for exact analysis
+        Estimate and 95% interval (for runs: simultaneous over the sequential
+        looks, Clopper-Pearson with a Bonferroni correction, see
+        :func:`crn.probes.sample_until_decided`; for exact analysis
         ``low == high == p``, or the eventual probability less a Cantelli
         bound on consensus after the deadline).
     successes, trials : int
@@ -100,7 +103,8 @@ def lattice(gap_fraction: float | None = None, gap: int | None = None) -> Lattic
     Raises
     ------
     CRNError
-        Unless exactly one of the two is given, F lies in (0, 1) and G >= 0.
+        Unless exactly one of the two is given, F lies in (0, 1) and G >= 1
+        (a gap of 0 is a tie, with no majority to find).
     """
     if (gap_fraction is None) == (gap is None):
         raise CRNError("give exactly one of gap fraction and gap")
@@ -112,8 +116,9 @@ def lattice(gap_fraction: float | None = None, gap: int | None = None) -> Lattic
             raise CRNError(f"gap fraction {gap_fraction} is not a ratio of small whole numbers")
         step = f.denominator * (1 if (f.denominator - f.numerator) % 2 == 0 else 2)
         return Lattice(first=step, step=step, fraction=f, gap=None)
-    if int(gap) != gap or gap < 0:
-        raise CRNError(f"the gap must be a whole number >= 0, got {gap}")
+    if int(gap) != gap or gap < 1:
+        raise CRNError(f"--gap must be a whole number >= 1 (a tie has no majority to find), "
+                       f"got {gap}")
     return Lattice(first=int(gap) + 2, step=2, fraction=None, gap=int(gap))
 
 
@@ -208,27 +213,27 @@ class Prober:
                     found.high < target:
                 return found
         key = (n, gap)
-        store = self._runs.setdefault(key, {"labels": [], "times": np.zeros(0), "rounds": 0,
+        store = self._runs.setdefault(key, {"labels": [], "times": np.zeros(0),
                                             "horizon": self._horizon(net, deadline)})
         limit = store["horizon"] if deadline is None else deadline
         if deadline is not None and deadline > store["horizon"] * (1 + 1e-12):
             raise CRNError(f"deadline {deadline} exceeds the runs' horizon {store['horizon']}")
-        while True:
-            done = len(store["labels"])
-            if done:
-                ok = np.array([label == truth for label in store["labels"]]) & \
-                    (np.nan_to_num(store["times"], nan=np.inf) <= limit)
-                p, low, high = wilson_interval(int(ok.sum()), done)
-                if low >= target or high < target or done >= self.runs_max:
-                    return Probe(n, gap, p, low, high, int(ok.sum()), done, "stochastic",
-                                 deadline)
-            size = min(max(done, _FIRST_ROUND), self.runs_max - done)
+
+        def count():
+            ok = np.array([label == truth for label in store["labels"]], dtype=bool) & \
+                (np.nan_to_num(store["times"], nan=np.inf) <= limit)
+            return int(ok.sum()), len(store["labels"])
+
+        def draw(round_index, size):
             labels, times = stochastic_decisions(
-                net, size, store["horizon"], cell_seed(self._stream, n, gap, store["rounds"]),
+                net, size, store["horizon"], cell_seed(self._stream, n, gap, round_index),
                 workers=self.workers, cluster=self.cluster)
             store["labels"].extend(labels)
             store["times"] = np.concatenate([store["times"], times])
-            store["rounds"] += 1
+
+        est = sample_until_decided(count, draw, target, self.runs_max, first=FIRST_ROUND)
+        return Probe(n, gap, est.p, est.low, est.high, est.successes, est.trials, "stochastic",
+                     deadline)
 
     def _exact_probe(self, net, n, gap, deadline, truth, kind) -> Probe:
         if kind == "exact" and deadline is not None:
@@ -238,8 +243,7 @@ class Prober:
         p = probabilities.get(truth, 0.0)
         if deadline is None:
             return Probe(n, gap, p, p, p, 0, 0, "exact", None)
-        absorbed = 1.0 - probabilities.get("none", 0.0)
-        low = max(0.0, p - absorbed * cantelli_tail(mean, std, deadline))
+        low = max(0.0, p - late_consensus_bound(probabilities, mean, std, deadline, label=truth))
         return Probe(n, gap, low, low, p, 0, 0, "exact-bound", deadline)
 
     def median_time(self, n: int, gap: int) -> float | None:
@@ -278,6 +282,11 @@ class CopiesResult:
         Methods used at the probes (``exact``, ``stochastic``, or both).
     probes : tuple of Probe
     seed_entropy : int
+    ended : str
+        Why the search for ``estimate`` ended: ``found``; ``n_max`` (no n up
+        to ``n_max`` qualifies); or ``deadline_binds`` (stopped early: the
+        optimistic bound fell from its best while growing n, as when a
+        deadline binds).
     """
 
     estimate: int | None
@@ -290,11 +299,16 @@ class CopiesResult:
     method: str
     probes: tuple = field(default=())
     seed_entropy: int = 0
+    ended: str = "found"
 
 
 def _search(lat: Lattice, passes: Callable[[int], bool], n_max: int,
-            score: Callable[[int], float] | None = None, target: float = 1.0) -> int | None:
+            score: Callable[[int], float] | None = None,
+            target: float = 1.0) -> tuple[int | None, str]:
     """Smallest lattice n that passes, by doubling then bisection; None if none up to n_max.
+
+    Returns the n (or None) and why the search ended: ``found``, ``n_max`` or
+    ``deadline_binds`` (stopped early, below).
 
     With ``score`` (an optimistic probability), doubling stops early when the
     score, short of ``target``, has fallen below its best (which came within
@@ -302,9 +316,9 @@ def _search(lat: Lattice, passes: Callable[[int], bool], n_max: int,
     past the point where a deadline binds, larger populations only take longer.
     """
     if lat.n(0) > n_max:
-        return None
+        return None, "n_max"
     if passes(lat.n(0)):
-        return lat.n(0)
+        return lat.n(0), "found"
     lo, hi = 0, 1
     history = [] if score is None else [score(lat.n(0))]
     while not passes(lat.n(hi)):
@@ -314,13 +328,13 @@ def _search(lat: Lattice, passes: Callable[[int], bool], n_max: int,
             peak = max(history)
             if (len(last) == 3 and peak >= target / 2 and last[-1] < min(target, peak)
                     and last[0] >= last[1] >= last[2]):
-                return None
+                return None, "deadline_binds"
         lo = hi
         hi *= 2
         if lat.n(hi) > n_max:
             last_k = (n_max - lat.first) // lat.step
             if last_k <= lo or not passes(lat.n(last_k)):
-                return None
+                return None, "n_max"
             hi = last_k
             break
     while hi - lo > 1:
@@ -329,7 +343,7 @@ def _search(lat: Lattice, passes: Callable[[int], bool], n_max: int,
             hi = mid
         else:
             lo = mid
-    return lat.n(hi)
+    return lat.n(hi), "found"
 
 
 def smallest_n(networks: Callable[[int, int], Network], *, gap_fraction: float | None = None,
@@ -398,9 +412,9 @@ def smallest_n(networks: Callable[[int, int], Network], *, gap_fraction: float |
     def optimistic(n):
         return probe(n).high
 
-    estimate = _search(lat, lambda n: probe(n).p >= target, n_max, optimistic, target)
-    low = _search(lat, lambda n: probe(n).high >= target, n_max, optimistic, target)
-    high = _search(lat, lambda n: probe(n).low >= target, n_max, optimistic, target)
+    estimate, ended = _search(lat, lambda n: probe(n).p >= target, n_max, optimistic, target)
+    low, _ = _search(lat, lambda n: probe(n).high >= target, n_max, optimistic, target)
+    high, _ = _search(lat, lambda n: probe(n).low >= target, n_max, optimistic, target)
     median = None if estimate is None else prober.median_time(estimate, lat.gap_of(estimate))
     methods = sorted({p.method for p in seen.values()})
     return CopiesResult(
@@ -408,7 +422,7 @@ def smallest_n(networks: Callable[[int, int], Network], *, gap_fraction: float |
         gap_estimate=None if estimate is None else lat.gap_of(estimate), risk=float(risk),
         deadline=None if estimate is None else deadline_at(estimate), median_time=median,
         method="+".join(methods), probes=tuple(seen[n] for n in sorted(seen)),
-        seed_entropy=prober.entropy,
+        seed_entropy=prober.entropy, ended=ended,
     )
 
 

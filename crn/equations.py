@@ -92,8 +92,8 @@ def conservation_laws(net: Network) -> list[dict[str, sympy.Rational]]:
             chosen.append(vector)
     laws = []
     for vector in chosen:
-        vector = vector * sympy.ilcm(*[sympy.fraction(v)[1] for v in vector])
-        content = sympy.igcd(*[int(v) for v in vector if v != 0])
+        vector = vector * sympy.ilcm(1, *[sympy.fraction(v)[1] for v in vector])
+        content = sympy.igcd(0, *[int(v) for v in vector if v != 0])
         sign = -1 if next(v for v in vector if v != 0) < 0 else 1
         laws.append({s: sympy.Integer(sign * v / content) for s, v in zip(net.species, vector,
                                                                          strict=True) if v != 0})

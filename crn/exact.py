@@ -395,12 +395,13 @@ def transient_outcomes(net: Network, until, *, max_states: int | None = None,
     for idx in order:
         step = times[idx] - now
         if step > 0:
-            p = spla.expm_multiply(forward * step, p)
+            # expm_multiply can overshoot by rounding: probabilities stay in [0, 1]
+            p = np.clip(spla.expm_multiply(forward * step, p), 0.0, 1.0)
             now = times[idx]
         for k in range(len(net.labels)):
             rows[idx, k] = p[stable == k].sum()
         kept = p.sum()
-        rows[idx, -2] = p[stable < 0].sum()
+        rows[idx, -2] = min(p[stable < 0].sum(), 1.0)
         # a complete enumeration loses nothing; 1 - kept would only be rounding there
         rows[idx, -1] = 0.0 if space.complete else max(1.0 - kept, 0.0)
     keys = list(net.labels) + [NO_CONSENSUS, "lost"]

@@ -44,8 +44,9 @@ __all__ = [
 #: Methods of :func:`scipy.integrate.solve_ivp` accepted by :func:`solve_mean_field`.
 METHODS = ("LSODA", "BDF", "Radau", "RK45", "DOP853")
 _IMPLICIT = ("LSODA", "BDF", "Radau")
-#: Relative slack on "fewer than one molecule" at an event: the root finder
-#: places the event on either side of the threshold by a rounding error.
+#: The consensus event fires this far below one molecule: the root finder places
+#: an event on either side of its threshold by a rounding error, and the strict
+#: "fewer than one" test must hold at the event.
 _EVENT_SLACK = 1e-9
 
 
@@ -327,16 +328,26 @@ def _validate_times(until, times):
 
 
 def _consensus_gap(net: Network, scale: float):
-    """Event function: molecules not reporting the leading label, minus one."""
+    """Event function: molecules not reporting the leading label, minus (just under) one.
+
+    The others are summed directly (unlabelled species plus every label but the
+    leader), never as total minus leader, whose cancellation would turn exactly
+    one molecule into slightly fewer. The event fires a hair below one molecule,
+    so a trajectory that settles at exactly one never counts as consensus.
+    """
     labels = np.asarray(net.species_label)
     labelled = np.flatnonzero(labels >= 0)
+    unlabelled = np.flatnonzero(labels < 0)
     label_of = labels[labelled]
     n_labels = len(net.labels)
 
     def gap(t, y):
         y = np.maximum(y, 0.0)
-        totals = np.bincount(label_of, weights=y[labelled], minlength=n_labels)
-        return (y.sum() - totals.max()) * scale - 1.0
+        totals = np.sort(np.bincount(label_of, weights=y[labelled], minlength=n_labels))
+        if totals[-1] <= 0.0:
+            return 1.0
+        others = y[unlabelled].sum() + totals[:-1].sum()
+        return others * scale - (1.0 - _EVENT_SLACK)
 
     return gap
 
@@ -412,9 +423,9 @@ def solve_mean_field(net: Network, *, until=None, times=None, method: str = "LSO
     common = dict(species=net.species, units=units, molecules_per_unit=scale, method=method)
 
     start = mean_field_consensus_index(labels, n_labels, y0, scale)
-    if start >= 0 and stop_at_consensus:
-        shown = np.array([0.0]) if times is None else times[times <= 0]
-        values = np.repeat(y0[None, :], shown.size, axis=0)
+    if start >= 0 and stop_at_consensus and times is None:
+        shown = np.array([0.0])
+        values = y0[None, :].copy()
         return MeanFieldResult(times=shown, values=values,
                                consensus=RunOutcome.from_indices(net, start, 0.0, start),
                                status=1, message="consensus at the start", **common)
@@ -430,22 +441,27 @@ def solve_mean_field(net: Network, *, until=None, times=None, method: str = "LSO
         options["jac"] = system.jacobian
     elif method == "LSODA":
         options["jac"] = lambda t, y: system.jacobian(t, y).toarray()
+    # the state at the horizon decides the final label even when the user's times end earlier
+    t_eval = times if times is None or times[-1] >= until else np.append(times, until)
     with np.errstate(over="ignore", invalid="ignore"):
-        sol = solve_ivp(system.rhs, (0.0, until), y0, method=method, t_eval=times,
+        sol = solve_ivp(system.rhs, (0.0, until), y0, method=method, t_eval=t_eval,
                         events=events, rtol=rtol, atol=atol, **options)
     values = np.asarray(sol.y, dtype=np.float64).T.reshape(-1, net.n_species)
+    shown_t = np.asarray(sol.t, dtype=np.float64)
+    horizon_state = values[-1] if values.shape[0] else y0
+    if t_eval is not times and shown_t.size and shown_t[-1] == until:
+        shown_t, values = shown_t[:-1], values[:-1]
 
     first, first_time = start, 0.0 if start >= 0 else float("nan")
     if first < 0 and events is not None and sol.t_events[0].size:
         first_time = float(sol.t_events[0][0])
-        first = mean_field_consensus_index(labels, n_labels, sol.y_events[0][0],
-                                           scale * (1 - _EVENT_SLACK))
+        first = mean_field_consensus_index(labels, n_labels, sol.y_events[0][0], scale)
     if sol.status == 1 and events is not None:
         end = sol.y_events[0][-1]
     else:
-        end = values[-1] if values.shape[0] else y0
+        end = horizon_state
     last = mean_field_consensus_index(labels, n_labels, np.asarray(end, dtype=np.float64),
-                                      scale * (1 - _EVENT_SLACK))
-    return MeanFieldResult(times=np.asarray(sol.t, dtype=np.float64), values=values,
+                                      scale)
+    return MeanFieldResult(times=shown_t, values=values,
                            consensus=RunOutcome.from_indices(net, first, first_time, last),
                            status=int(sol.status), message=str(sol.message), **common)

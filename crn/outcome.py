@@ -84,6 +84,8 @@ def mean_field_consensus_index(species_label, n_labels, y, molecules_per_unit):
     for k in range(1, n_labels):
         if totals[k] > totals[best]:
             best = k
+    if totals[best] <= 0.0:
+        return -1  # no molecule reports any label
     # Sum the others directly rather than as total minus leader: the difference
     # would turn exactly one molecule into 0.999... by cancellation.
     others = 0.0

@@ -9,7 +9,9 @@ imported when first used.
 from __future__ import annotations
 
 import math
+from collections.abc import Callable
 from dataclasses import dataclass
+from functools import lru_cache
 
 import numpy as np
 
@@ -26,6 +28,12 @@ __all__ = [
     "exact_decision",
     "exact_absorption",
     "cantelli_tail",
+    "late_consensus_bound",
+    "look_schedule",
+    "simultaneous_interval",
+    "SequentialEstimate",
+    "sample_until_decided",
+    "FIRST_ROUND",
     "stochastic_decisions",
     "configurations",
 ]
@@ -193,6 +201,142 @@ def cantelli_tail(mean: float, std: float, horizon: float) -> float:
     if slack <= 0:
         return 1.0
     return float(std * std / (std * std + slack * slack))
+
+
+def late_consensus_bound(probabilities: dict, mean: float, std: float, horizon: float,
+                         label: str | None = None) -> float:
+    """Upper bound on the probability of reaching stable consensus only after ``horizon``.
+
+    The mean and std of the consensus time tau from :func:`exact_absorption`
+    are conditioned on reaching consensus at all (on any label), so Cantelli's
+    bound applies to that conditional law: ``P(absorbed, tau > horizon) <=
+    P(absorbed) * cantelli_tail(mean, std, horizon)``. With ``label`` the
+    bound is on consensus on that label after the horizon, which is also at
+    most ``P(label)``.
+
+    Parameters
+    ----------
+    probabilities : dict of str to float
+        Eventual consensus probabilities, ``"none"`` for never.
+    mean, std : float
+        Of the consensus time given consensus.
+    horizon : float
+    label : str, optional
+
+    Returns
+    -------
+    float
+        In ``[0, P(label)]`` (``[0, P(absorbed)]`` without a label).
+    """
+    absorbed = min(max(1.0 - float(probabilities.get("none", 0.0)), 0.0), 1.0)
+    bound = absorbed * cantelli_tail(mean, std, horizon)
+    if label is not None:
+        bound = min(bound, float(probabilities.get(label, 0.0)))
+    return float(max(bound, 0.0))
+
+
+#: Runs in the first round of a sequential estimate; the total then doubles each round.
+FIRST_ROUND = 50
+
+
+def look_schedule(runs_max: int, first: int = FIRST_ROUND) -> tuple[int, ...]:
+    """Cumulative run counts at which a sequential estimate looks: first, 2 first, ..., runs_max.
+
+    The totals double from ``first`` and the last is ``runs_max``; its length
+    is the number of looks K the Bonferroni correction divides by.
+    """
+    runs_max, first = int(runs_max), int(first)
+    if runs_max < 1 or first < 1:
+        raise CRNError(f"runs_max and the first round must be >= 1, got {runs_max}, {first}")
+    totals, total = [], min(first, runs_max)
+    while total < runs_max:
+        totals.append(total)
+        total *= 2
+    totals.append(runs_max)
+    return tuple(totals)
+
+
+@lru_cache(maxsize=65536)
+def simultaneous_interval(successes: int, trials: int, looks: int = 1,
+                          confidence: float = 0.95) -> tuple[float, float, float]:
+    """Clopper-Pearson interval at level ``1 - (1 - confidence) / looks`` (Bonferroni).
+
+    Over a sequential estimate that looks at most ``looks`` times, the
+    intervals at every look cover the true probability simultaneously with
+    probability at least ``confidence``, so stopping at any look keeps it.
+
+    Returns
+    -------
+    p, low, high : float
+        ``successes / trials`` and the interval (``0, 0, 1`` for no trials).
+
+    References
+    ----------
+    Clopper, Pearson, Biometrika 26(4), 1934; Bonferroni correction over looks
+    (e.g. Jennison, Turnbull, "Group Sequential Methods", 2000, ch. 1).
+    """
+    from scipy.stats import binomtest
+
+    k, n = int(successes), int(trials)
+    if n == 0:
+        return 0.0, 0.0, 1.0
+    if not 0 <= k <= n:
+        raise CRNError(f"need 0 <= successes <= trials, got {k} of {n}")
+    level = 1.0 - (1.0 - float(confidence)) / max(int(looks), 1)
+    ci = binomtest(k, n).proportion_ci(confidence_level=level, method="exact")
+    return k / n, float(ci.low), float(ci.high)
+
+
+@dataclass(frozen=True)
+class SequentialEstimate:
+    """Result of :func:`sample_until_decided`: counts and the simultaneous interval."""
+
+    successes: int
+    trials: int
+    p: float
+    low: float
+    high: float
+
+
+def sample_until_decided(count: Callable[[], tuple[int, int]],
+                         draw: Callable[[int, int], None], threshold: float, runs_max: int, *,
+                         first: int = FIRST_ROUND, confidence: float = 0.95) -> SequentialEstimate:
+    """Add runs in rounds until the interval lies wholly above or below ``threshold``.
+
+    Looks happen at the totals of :func:`look_schedule` (``first``, doubling,
+    up to ``runs_max``); at each the interval is Clopper-Pearson at level
+    ``1 - (1 - confidence) / K`` with K the number of looks the schedule can
+    make (Bonferroni), so it is a ``confidence`` interval simultaneous over
+    the sequential looks and the decision ``low > threshold`` (or ``high <
+    threshold``) is wrong with probability at most ``(1 - confidence) / 2``
+    on each side.
+
+    Parameters
+    ----------
+    count : callable () -> (successes, trials)
+        Counts over the runs drawn so far (runs may already exist: a cache).
+    draw : callable (round, size) -> None
+        Adds ``size`` runs; ``round`` is the index of the look they lead to
+        (0 for the first), to key the random stream.
+    threshold : float
+    runs_max : int
+    first : int
+    confidence : float
+
+    Returns
+    -------
+    SequentialEstimate
+    """
+    schedule = look_schedule(runs_max, first)
+    looks = len(schedule)
+    while True:
+        k, n = count()
+        if n:
+            p, low, high = simultaneous_interval(k, n, looks, confidence)
+            if low > threshold or high < threshold or n >= schedule[-1]:
+                return SequentialEstimate(int(k), int(n), p, low, high)
+        index = next(i for i, total in enumerate(schedule) if total > n)
+        draw(index, schedule[index] - n)
 
 
 def stochastic_decisions(net: Network, runs: int, until: float, rng, *, workers=1,

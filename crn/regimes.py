@@ -2,8 +2,9 @@
 
 For each cell (n, gap) the ODE gives a label and a consensus time; exact
 analysis (small state spaces) or seeded stochastic runs give the probability
-that a run disagrees with the ODE's label, with a 95% Wilson interval, and the
-stochastic median consensus time. A cell is ``misleading`` when the interval
+that a run disagrees with the ODE's label, with a 95% interval simultaneous
+over the sequential looks (Clopper-Pearson, Bonferroni), and the stochastic
+median consensus time. A cell is ``misleading`` when the interval
 lies wholly above the risk, ``ok`` when wholly below, ``uncertain`` otherwise
 (DESIGN.md); its time flag says whether the stochastic median and the ODE time
 differ by more than a factor. The boundary where the disagreement probability
@@ -23,14 +24,15 @@ from .errors import CRNError
 from .network import Network
 from .outcome import correct_label
 from .probes import (
-    cantelli_tail,
+    FIRST_ROUND,
     configurations,
     exact_absorption,
     gap_for_fraction,
+    late_consensus_bound,
     ode_decision,
+    sample_until_decided,
     stochastic_decisions,
 )
-from .stats import wilson_interval
 
 __all__ = [
     "FLAGS",
@@ -49,12 +51,12 @@ __all__ = [
 
 FLAGS = ("ok", "uncertain", "misleading")
 #: ``slower``/``faster``: the stochastic median exceeds / falls short of the ODE time by more
-#: than the factor; ``unknown``: one of the two has no consensus time.
+#: than the factor (``slower`` also when more than half the runs have no consensus by a horizon of
+#: at least the factor times the ODE time); ``unknown``: otherwise without a time to compare.
 TIME_FLAGS = ("ok", "slower", "faster", "unknown")
 #: Largest estimated configuration count for which a cell is solved exactly.
 DEFAULT_EXACT_MAX = 100_000
 _HORIZON_FACTOR = 10.0
-_FIRST_ROUND = 50
 _TIMING_RUNS = 200
 
 
@@ -72,11 +74,18 @@ class RegimeCell:
         The mean field's consensus time (parallel time for protocols).
     p_wrong, low, high : float
         Probability that a stochastic run disagrees with ``ode_label`` (no
-        consensus by the horizon counts as disagreement), with its 95% Wilson
-        interval. For exact cells ``p_wrong == low`` is the exact probability
-        of never settling on ``ode_label`` and ``high`` adds Cantelli's bound on
-        settling only after the horizon (from the exact mean and standard
-        deviation of the time), so the true value lies in ``[low, high]``.
+        consensus by the horizon counts as disagreement). For stochastic cells
+        ``[low, high]`` is a 95% interval simultaneous over the sequential
+        looks (Clopper-Pearson at level ``1 - 0.05 / K`` for the K looks the
+        round schedule can make, Bonferroni), the interval the stopping rule
+        and the flag use. For exact cells ``p_wrong`` is the exact probability
+        of eventually disagreeing and ``[low, high]`` bounds the probability
+        of disagreeing by the horizon: consensus reached only after the
+        horizon is bounded by Cantelli's inequality (from the exact mean and
+        standard deviation of the time given consensus). With an ODE label,
+        ``low = p_wrong`` (never settling on the label) and ``high`` adds that
+        bound; without one (a run agrees when it has no consensus by the
+        horizon), ``high = p_wrong = P(consensus)`` and ``low`` subtracts it.
     wrong, runs : int
         Disagreeing runs and runs (0 and 0 for exact cells).
     flag : str
@@ -169,9 +178,24 @@ def risk_flag(low: float, high: float, risk: float) -> str:
     return "uncertain"
 
 
-def time_flag(ssa_median: float | None, ode_time: float | None, factor: float) -> str:
-    """Compare the stochastic median consensus time with the ODE's, by ``factor``."""
-    if ssa_median is None or ode_time is None or ode_time <= 0:
+def time_flag(ssa_median: float | None, ode_time: float | None, factor: float, *,
+              censored_at: float | None = None) -> str:
+    """Compare the stochastic median consensus time with the ODE's, by ``factor``.
+
+    Parameters
+    ----------
+    ssa_median, ode_time : float or None
+    factor : float
+    censored_at : float, optional
+        The horizon, when the median is censored (more than half the runs
+        have no consensus by it, ``ssa_median`` None): the median then exceeds
+        it, so it is ``slower`` when ``censored_at >= factor * ode_time``.
+    """
+    if ode_time is None or ode_time <= 0:
+        return "unknown"
+    if ssa_median is None:
+        if censored_at is not None and censored_at >= factor * ode_time:
+            return "slower"
         return "unknown"
     if ssa_median > factor * ode_time:
         return "slower"
@@ -262,8 +286,10 @@ def evaluate_cell(networks: Callable[[int, int], Network], n: int, gap: int, *,
         Horizon of the ODE and of the runs; by default 10 times the ODE's
         consensus time (``100 (1 + ln n)`` when the ODE has none).
     runs_max : int
-        Most stochastic runs; rounds of 50, 50, 100, 200, ... (doubling) are
-        added until the interval lies wholly above or below ``risk``.
+        Most stochastic runs; rounds of 50, 50, 100, 200, ... (doubling, see
+        :func:`crn.probes.sample_until_decided`) are added until the 95%
+        interval simultaneous over the sequential looks (Clopper-Pearson,
+        Bonferroni) lies wholly above or below ``risk``.
     time_factor : float
     method : {"auto", "exact", "stochastic"}
         ``auto``: exact when at most ``exact_max`` configurations, else
@@ -303,41 +329,42 @@ def evaluate_cell(networks: Callable[[int, int], Network], n: int, gap: int, *,
     if use_exact:
         # eventual outcome exactly; consensus after the horizon bounded by Cantelli's inequality
         probabilities, mean, std = exact_absorption(net)
+        late = late_consensus_bound(probabilities, mean, std, horizon, label=ode_label)
         if ode_label is None:
-            agree = probabilities.get("none", 0.0)
-            low = 1.0 - agree
-            high = 1.0
+            # a run agrees with "none" unless it reaches consensus by the horizon
+            high = p = min(max(1.0 - probabilities.get("none", 0.0), 0.0), 1.0)
+            low = max(0.0, high - late)
         else:
-            agree = probabilities.get(ode_label, 0.0)
-            low = min(max(1.0 - agree, 0.0), 1.0)
-            high = min(1.0, low + agree * cantelli_tail(mean, std, horizon))
-        p = low
+            low = p = min(max(1.0 - probabilities.get(ode_label, 0.0), 0.0), 1.0)
+            high = min(1.0, low + late)
         wrong = runs = 0
         _, times = stochastic_decisions(net, timing_runs, horizon, cell_seed(entropy, n, gap, 0),
                                         cluster=cluster)
     else:
-        disagree = np.zeros(0, dtype=bool)
-        times = np.zeros(0)
-        size, round_index = min(_FIRST_ROUND, runs_max), 0
-        while True:
+        store = {"disagree": np.zeros(0, dtype=bool), "times": np.zeros(0)}
+
+        def draw(round_index, size):
             labels, t = stochastic_decisions(net, size, horizon,
                                              cell_seed(entropy, n, gap, round_index),
                                              cluster=cluster)
-            disagree = np.concatenate([disagree, _disagrees(labels, ode_label)])
-            times = np.concatenate([times, t])
-            p, low, high = wilson_interval(int(disagree.sum()), disagree.size)
-            if low > risk or high < risk or disagree.size >= runs_max:
-                break
-            round_index += 1
-            size = min(disagree.size, runs_max - disagree.size)
-        wrong, runs = int(disagree.sum()), int(disagree.size)
+            store["disagree"] = np.concatenate([store["disagree"], _disagrees(labels, ode_label)])
+            store["times"] = np.concatenate([store["times"], t])
+
+        estimate = sample_until_decided(
+            lambda: (int(store["disagree"].sum()), int(store["disagree"].size)), draw, risk,
+            runs_max, first=FIRST_ROUND)
+        p, low, high = estimate.p, estimate.low, estimate.high
+        wrong, runs, times = estimate.successes, estimate.trials, store["times"]
     median = _median_time(times)
+    # more than half the runs without consensus by the horizon: the median lies beyond it
+    censored = horizon if times.size and median is None else None
     return RegimeCell(
         n=int(n), gap=int(gap), ode_label=ode_label,
         ode_time=None if ode_time is None else float(ode_time),
         p_wrong=float(p), low=float(low), high=float(high), wrong=wrong, runs=runs,
         flag=risk_flag(low, high, risk),
-        time_flag=time_flag(median, ode_time, time_factor), ssa_median_time=median,
+        time_flag=time_flag(median, ode_time, time_factor, censored_at=censored),
+        ssa_median_time=median,
         method="exact" if use_exact else "stochastic", horizon=float(horizon),
         correct_label=truth,
     )

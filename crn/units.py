@@ -168,7 +168,8 @@ def parse_rate_constant(text: str) -> float:
     ----------
     text : str
         A number and a unit ``/C/T``, ``C^-1 T^-1`` or ``/(C T)`` with ``C`` a
-        concentration unit and ``T`` a time unit. A bare number is read in /M/s.
+        concentration unit and ``T`` a time unit. A bare number (no unit) is
+        rejected like any other bare quantity.
 
     Returns
     -------
@@ -178,12 +179,12 @@ def parse_rate_constant(text: str) -> float:
     Raises
     ------
     CRNError
-        For an unknown unit (the message lists the accepted forms) or a value
-        that is not positive.
+        For a missing or unknown unit (the message lists the accepted forms)
+        or a value that is not positive.
     """
     number, unit = _split(text, "rate constant", RATE_UNITS_HELP)
     if not unit:
-        return _positive(float(number), text, "rate constant")
+        raise CRNError(f"rate constant {text!r} has no unit; accepted units: {RATE_UNITS_HELP}")
     for form in _RATE_FORMS:
         match = form.match(unit)
         if match and match.group("c") in CONCENTRATION_UNITS and match.group("t") in TIME_UNITS:

@@ -5,8 +5,9 @@ import json
 import pytest
 from click.testing import CliRunner
 
-from crn.cli import cli
+from crn.cli import cli, main
 from crn.copies import lattice, physical_outputs, smallest_n
+from crn.errors import CRNError
 from crn.exact import exact_outcomes, transient_outcomes
 from crn.io.models import load_model
 from crn.probes import InitialSplit
@@ -42,13 +43,15 @@ def test_lattice_keeps_the_gap_exact():
 
 def test_stochastic_search_interval_contains_exact_smallest_n():
     # the exact engine scanned over every lattice n is the reference (Kemeny-Snell absorption);
-    # the stochastic search must bracket it: [low, high] come from 95% Wilson bounds
+    # the stochastic search must bracket it: [low, high] come from 95% Clopper-Pearson bounds
+    # simultaneous over the sequential looks (Bonferroni)
     nets = InitialSplit(load_model(AM).network)
     risk = 0.05
     exact_n = _exact_smallest(nets, lattice(0.2), 1 - risk)
     result = smallest_n(nets, gap_fraction=0.2, risk=risk, method="stochastic", rng=11,
                         runs_max=4000)
     assert result.low <= exact_n <= result.high, (result.low, exact_n, result.high)
+    assert result.ended == "found"
     assert result.low <= result.estimate <= result.high
     assert "stochastic" in result.method
     exact = smallest_n(nets, gap_fraction=0.2, risk=risk, method="exact", rng=11)
@@ -93,3 +96,21 @@ def test_cli_json_keys_and_units():
     result = runner.invoke(cli, ["copies", AM, "--gap-fraction", "0.2", "--json",
                                  "--method", "exact"])
     assert json.loads(result.output)["seconds"] is None
+
+
+def test_tie_gap_rejected(capsys):
+    # a gap of 0 is a tie: no majority to find
+    with pytest.raises(CRNError, match="--gap"):
+        lattice(gap=0)
+    assert main(["copies", AM, "--gap", "0", "--json"]) == 2
+    assert "--gap" in capsys.readouterr().err
+
+
+def test_search_records_why_it_ended():
+    # derived: at gap fraction 0.2 and risk 0.05 the exact smallest n exceeds the first lattice
+    # point (5); with n_max = 5 nothing qualifies and the search ends at n_max
+    nets = InitialSplit(load_model(AM).network)
+    exact_n = _exact_smallest(nets, lattice(0.2), 0.95)
+    assert exact_n > 5
+    result = smallest_n(nets, gap_fraction=0.2, risk=0.05, method="exact", n_max=5, rng=1)
+    assert result.estimate is None and result.ended == "n_max"

@@ -11,6 +11,8 @@ import sympy
 from crn.equations import conservation_laws, format_equations, mean_field_equations
 from crn.fixed_points import classify, conservation_basis, find_fixed_points
 from crn.io.models import load_model
+from crn.protocol import Outcome, Protocol
+from crn.translate import protocol_to_network
 
 ROOT = Path(__file__).resolve().parent.parent
 
@@ -153,3 +155,15 @@ def test_format_equations_text_and_latex():
     assert "dI/dt = 2*I*S" in text and "dS/dt = -2*I*S" in text and "I + S = 1" in text
     latex = format_equations(_load("approximate_majority"), latex=True)
     assert r"\begin{align*}" in latex and r"\frac{dX}{dt} &= X \left(B - Y\right)" in latex
+
+
+def test_an_inert_state_gives_its_own_conservation_law():
+    # derived: U takes part in no rule, so U alone is conserved (a law with one
+    # coefficient), next to X + Y; the equations and fixed points must still work.
+    protocol = Protocol("spread", ("U", "X", "Y"), {("X", "Y"): (Outcome("X", "X"),)},
+                        {"U": 1, "X": 5, "Y": 4}, {"X": "X", "Y": "Y"})
+    net = protocol_to_network(protocol)
+    laws = conservation_laws(net)
+    assert {"U": 1} in [{k: int(v) for k, v in law.items()} for law in laws]
+    assert "dU/dt = 0" in format_equations(net)
+    assert find_fixed_points(net)

@@ -281,3 +281,34 @@ def test_agrees_with_gillespy2_ode_solver(net):
     theirs = _gillespy2_ode(net, times)
     assert ours.values.shape == theirs.shape
     assert np.abs(ours.values - theirs).max() < 1e-6
+
+
+@pytest.mark.parametrize("method", ["LSODA", "BDF", "RK45"])
+@pytest.mark.parametrize("n", [3, 100, 12345])
+def test_one_silent_agent_forever_blocks_consensus(method, n):
+    # derived: with X, Y -> X, X and one inert agent U that reports nothing, the U
+    # fraction stays exactly 1/n, i.e. exactly one molecule: never fewer than one
+    # (DESIGN.md), so the mean field never reaches consensus, whatever the integrator.
+    protocol = Protocol("spread", ("X", "Y", "U"), {("X", "Y"): (Outcome("X", "X"),)},
+                        {"X": n // 2, "Y": n - n // 2 - 1, "U": 1}, {"X": "X", "Y": "Y"})
+    result = solve_mean_field(protocol_to_network(protocol), until=200.0, method=method)
+    assert result.consensus.label is None
+    assert result.consensus.final_label is None
+
+
+def test_final_label_is_taken_at_the_horizon_not_at_the_last_requested_time():
+    # derived: approximate majority from 60% X reaches consensus near t = 12 (ODE), so
+    # with times up to 2 and a horizon of 100 the state at the horizon is all X.
+    net = _load("approximate_majority", n=1000, gap=200)
+    result = solve_mean_field(net, until=100.0, times=[0.0, 1.0, 2.0], stop_at_consensus=False)
+    assert result.times.tolist() == [0.0, 1.0, 2.0]
+    assert result.consensus.label == "X" and result.consensus.final_label == "X"
+    assert result.consensus.held
+
+
+def test_consensus_at_the_start_still_reports_the_requested_times():
+    net = _load("approximate_majority", n=1000, gap=1000)  # derived: all X from the start
+    result = solve_mean_field(net, times=[1.0, 2.0])
+    assert result.times.tolist() == [1.0, 2.0]
+    assert result.consensus.time == 0.0 and result.consensus.label == "X"
+    assert np.allclose(result.values[-1], [1.0, 0.0, 0.0])

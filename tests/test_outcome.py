@@ -55,3 +55,10 @@ def test_run_outcome_from_indices_and_tally():
     never = RunOutcome.from_indices(net, -1, float("nan"), -1)
     assert (never.label, never.time, never.held) == (None, None, False)
     assert tally(["X", None, "X", "Y"]) == {"X": 2, "none": 1, "Y": 1}
+
+
+def test_mean_field_has_no_consensus_when_no_molecule_reports_a_label():
+    net = _am()
+    # derived: nothing but blanks, and fewer than one of them: no label has a carrier
+    assert mean_field_consensus_index(net.species_label, 2, np.array([0.0, 0.0, 0.5 / 1000]),
+                                      1000) == -1

@@ -6,10 +6,25 @@ import numpy as np
 import pytest
 
 from crn.io.models import load_model
-from crn.probes import InitialSplit, gap_for_fraction
-from crn.regimes import evaluate_cell, fit_boundary, plan_cells, regime_map, risk_flag
+from crn.probes import (
+    InitialSplit,
+    gap_for_fraction,
+    late_consensus_bound,
+    look_schedule,
+    sample_until_decided,
+    simultaneous_interval,
+)
+from crn.regimes import (
+    evaluate_cell,
+    fit_boundary,
+    plan_cells,
+    regime_map,
+    risk_flag,
+    time_flag,
+)
 
 AM = "models/approximate_majority.toml"
+VOTER = "models/voter.toml"
 EM = "models/exact_majority.toml"
 NS = [40, 80, 160, 320]
 FRACTIONS = [0.08, 0.12, 0.18, 0.27, 0.4]
@@ -23,8 +38,9 @@ def am_map():
 
 def test_gap_rounding_keeps_parity():
     # derived: (n + gap) / 2 must be whole, so gap has n's parity; a tie is raised to the
-    # smallest positive gap
-    assert gap_for_fraction(100, 0.05) == 6 or gap_for_fraction(100, 0.05) == 4
+    # smallest positive gap. 0.05 * 100 = 5 is odd, equally far from 4 and 6; the nearer-gap
+    # rule keeps 4 only when strictly nearer (5 - 4 < 6 - 5 is false), so the tie goes up to 6
+    assert gap_for_fraction(100, 0.05) == 6
     assert gap_for_fraction(101, 0.05) == 5
     assert gap_for_fraction(1000, 0.001) == 2
     assert gap_for_fraction(999, 0.0001) == 1
@@ -77,7 +93,8 @@ def test_exact_cells_are_exact_probabilities(am_map):
 
 
 def test_exact_and_stochastic_intervals_overlap():
-    # both estimate the same probability; the Wilson interval covers it with 95% confidence
+    # both estimate the same probability; the runs' simultaneous Clopper-Pearson
+    # interval covers it with 95% confidence
     # (alpha = 0.05 per cell; fixed seed)
     nets = InitialSplit(load_model(AM).network)
     for n, gap in [(60, 6), (120, 20), (200, 40)]:
@@ -137,3 +154,77 @@ def test_fit_boundary_recovers_a_planted_exponent():
     assert b.exponent == pytest.approx(0.5, abs=0.01)
     for n, g in b.critical_gaps:
         assert g == pytest.approx(math.sqrt(n * math.log(1 / risk)), rel=0.02)
+
+
+def test_exact_and_stochastic_overlap_without_ode_consensus():
+    # the voter model's mean field is neutral (no ODE consensus), so a run agrees with the ODE
+    # when it has no consensus by the horizon: the exact interval is [P(consensus) - Cantelli
+    # bound on consensus after the horizon, P(consensus)], not [1, 1]; both intervals must
+    # cover the same probability (95% simultaneous interval for the runs; fixed seed)
+    nets = InitialSplit(load_model(VOTER).network)
+    exact = evaluate_cell(nets, 400, 40, method="exact", entropy=7)
+    sampled = evaluate_cell(nets, 400, 40, method="stochastic", runs_max=400, entropy=7)
+    assert exact.ode_label is None and sampled.ode_label is None
+    # derived: the voter model reaches consensus with probability 1 on a complete graph
+    assert exact.high == pytest.approx(1.0) and exact.p_wrong == exact.high
+    assert exact.low < 0.95
+    assert sampled.low <= exact.high and exact.low <= sampled.high, (exact, sampled)
+
+
+def test_late_consensus_bound_is_conditional_on_absorption():
+    # derived: E[tau | absorbed] = 10, sd 5, horizon 20: Cantelli gives 25 / (25 + 100) = 0.2
+    # for the absorbed runs, so the unconditional mass after the horizon is P(absorbed) * 0.2
+    probabilities = {"X": 0.5, "Y": 0.1, "none": 0.4}
+    assert late_consensus_bound(probabilities, 10.0, 5.0, 20.0) == pytest.approx(0.6 * 0.2)
+    # on one label the mass after the horizon is also at most that label's probability
+    assert late_consensus_bound(probabilities, 10.0, 5.0, 20.0, "Y") == pytest.approx(0.1)
+    assert late_consensus_bound(probabilities, 10.0, 5.0, 20.0, "X") == pytest.approx(0.12)
+    # a horizon at or before the mean bounds nothing beyond P(absorbed)
+    assert late_consensus_bound(probabilities, 10.0, 5.0, 5.0) == pytest.approx(0.6)
+
+
+def test_simultaneous_interval_is_bonferroni_clopper_pearson():
+    # derived: for 0 successes the Clopper-Pearson upper bound at level 1 - a solves
+    # (1 - p)^n = a / 2; with K looks a = 0.05 / K (Bonferroni)
+    assert look_schedule(1000) == (50, 100, 200, 400, 800, 1000)
+    assert look_schedule(30) == (30,)
+    for looks in (1, 6):
+        p, low, high = simultaneous_interval(0, 50, looks)
+        assert (p, low) == (0.0, 0.0)
+        assert high == pytest.approx(1 - (0.025 / looks) ** (1 / 50), rel=1e-9)
+
+
+def test_sequential_stopping_keeps_false_misleading_rate():
+    # derived: `misleading` at true p = risk needs the lower bound above p at some look; each
+    # look's Clopper-Pearson bound at level 1 - 0.05 / K exceeds p with probability at most
+    # 0.025 / K (exact one-sided tail), so by the union bound over the K looks the rate is at
+    # most 0.025. Simulated with binomial counts (fixed seed, 20,000 repetitions); tolerance
+    # 4 standard errors of a proportion 0.025: 4 sqrt(0.025 * 0.975 / 20000).
+    reps, risk = 20_000, 0.01
+    tolerance = 0.025 + 4 * math.sqrt(0.025 * 0.975 / reps)
+    for runs_max in (1000, 4000):  # the regimes and copies defaults
+        rng = np.random.default_rng(20240601 + runs_max)
+        misleading = 0
+        for _ in range(reps):
+            state = [0, 0]
+
+            def draw(_round, size, state=state, rng=rng):
+                state[0] += int(rng.binomial(size, risk))
+                state[1] += size
+
+            est = sample_until_decided(lambda state=state: tuple(state), draw, risk, runs_max)
+            misleading += risk_flag(est.low, est.high, risk) == "misleading"
+        assert misleading / reps <= tolerance, (runs_max, misleading / reps)
+
+
+def test_censored_median_is_flagged_slower():
+    # more than half the runs have no consensus by the horizon, so the median exceeds it;
+    # a horizon of at least factor * ODE time makes the runs slower by more than the factor
+    assert time_flag(None, 10.0, 2.0, censored_at=20.0) == "slower"
+    assert time_flag(None, 10.0, 2.0, censored_at=100.0) == "slower"
+    assert time_flag(None, 10.0, 2.0, censored_at=15.0) == "unknown"
+    assert time_flag(None, 10.0, 2.0) == "unknown"
+    assert time_flag(None, None, 2.0, censored_at=100.0) == "unknown"
+    assert time_flag(30.0, 10.0, 2.0) == "slower"
+    assert time_flag(4.0, 10.0, 2.0) == "faster"
+    assert time_flag(15.0, 10.0, 2.0) == "ok"

@@ -74,6 +74,7 @@ def test_times():
     (parse_time, "2 days"),
     (parse_rate_constant, "1e6 /M"),
     (parse_rate_constant, "1e6 /s"),
+    (parse_rate_constant, "1e6"),       # no unit: a bare number is not read as /M/s
 ])
 def test_bad_units_rejected_with_the_accepted_list(parse, text):
     with pytest.raises(CRNError) as info:

@@ -64,7 +64,9 @@ def parse_deadline(text: str | None):
 def copies(model, sets, gap_fraction, gap, risk, deadline, concentration, volume, rate, n_max,
            runs_max, method, seed, as_json):
     """Smallest number of agents (molecules) of MODEL that reach the correct consensus by the
-    deadline with probability at least 1 - risk, with an interval for sampling error; and
+    deadline with probability at least 1 - risk, with an interval for sampling error (per
+    population a 95% interval, simultaneous over the sequential looks (Clopper-Pearson,
+    Bonferroni)); and
     with physical options the concentration or volume and the time in seconds and hours."""
     if (gap_fraction is None) == (gap is None):
         raise CRNError("give exactly one of --gap-fraction and --gap")

@@ -125,7 +125,8 @@ def _fmt(value, spec=".3g"):
 def regimes(model, sets, n_list, gap_list, fraction_list, risk, until, runs_max, time_factor,
             method, plot_file, csv_file, out_dir, resume, workers, cluster, seed, as_json):
     """Sweep MODEL over populations n and gaps: for each cell, the ODE's decision, the
-    probability that a stochastic run disagrees with it (95% interval), the flag, the times;
+    probability that a stochastic run disagrees with it (95% interval, simultaneous over the
+    sequential looks (Clopper-Pearson, Bonferroni)), the flag, the times;
     and the fitted growth of the critical gap with n."""
     if (gap_list is None) == (fraction_list is None):
         raise CRNError("give exactly one of --gap and --gap-fraction")
