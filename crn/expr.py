@@ -46,6 +46,9 @@ _MAX_EXPONENT = 4096
 _MAX_LENGTH = 1000
 
 
+_MAX_BITS = 4096
+
+
 def evaluate(expression, names: dict | None = None):
     """Evaluate an arithmetic expression over named numbers.
 
@@ -122,9 +125,12 @@ def _walk(node, names, source):
     if isinstance(node, ast.BinOp) and type(node.op) in _BINARY:
         left = _walk(node.left, names, source)
         right = _walk(node.right, names, source)
-        if isinstance(node.op, ast.Pow) and abs(right) > _MAX_EXPONENT:
-            raise ExpressionError(f"exponent {right} too large in {source!r}")
-        return _BINARY[type(node.op)](left, right)
+        if isinstance(node.op, ast.Pow) and (
+            abs(right) > _MAX_EXPONENT
+            or isinstance(left, int) and abs(right) * left.bit_length() > _MAX_BITS
+        ):
+            raise ExpressionError(f"power {left} ** {right} too large in {source!r}")
+        return _real(_BINARY[type(node.op)](left, right), source)
     if isinstance(node, ast.UnaryOp) and type(node.op) in _UNARY:
         return _UNARY[type(node.op)](_walk(node.operand, names, source))
     if isinstance(node, ast.Call):
@@ -134,9 +140,15 @@ def _walk(node, names, source):
         if node.keywords:
             raise ExpressionError(f"keyword arguments are not allowed in {source!r}")
         args = [_walk(arg, names, source) for arg in node.args]
-        return FUNCTIONS[node.func.id](*args)
+        return _real(FUNCTIONS[node.func.id](*args), source)
     raise ExpressionError(
         f"{type(node).__name__.lower()} is not allowed in {source!r}: "
         "only numbers, parameters, + - * / // % ** and "
         + ", ".join(sorted(FUNCTIONS))
     )
+
+
+def _real(value, source):
+    if isinstance(value, complex):
+        raise ExpressionError(f"{source!r} gives a complex number, {value}")
+    return value

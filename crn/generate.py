@@ -46,6 +46,9 @@ def _outcomes(result, a, b) -> list[tuple[float, Hashable, Hashable]]:
     """Normalise what a rule returns into (probability, initiator', responder') triples."""
     if result is None:
         return []
+    if isinstance(result, tuple) and len(result) == 2 and _is_single_weighted(result):
+        raise ModelError(f"rule({a!r}, {b!r}) returned one randomized outcome {result!r}; "
+                         "wrap randomized outcomes in a list: [(p, (a2, b2)), ...]", field="rule")
     if isinstance(result, tuple) and len(result) == 2 and not _is_weighted(result):
         return [(1.0, result[0], result[1])]
     out = []
@@ -58,6 +61,11 @@ def _outcomes(result, a, b) -> list[tuple[float, Hashable, Hashable]]:
         p, (c, d) = item
         out.append((float(p), c, d))
     return out
+
+
+def _is_single_weighted(result) -> bool:
+    p, pair = result
+    return (isinstance(p, float) and isinstance(pair, tuple) and len(pair) == 2)
 
 
 def _is_weighted(result) -> bool:
@@ -138,6 +146,10 @@ def protocol_from_rule(
                                 raise ModelError(
                                     f"the closure of the rule exceeds {max_states} states; "
                                     "raise max_states or check the rule", field="max_states")
+    for state in majority or ():
+        if state not in seen:
+            raise ModelError(f"majority names {state!r}, which the closure never reaches",
+                             field="majority")
     names = {s: naming(s) for s in order}
     if len(set(names.values())) != len(names):
         raise ModelError("two states get the same name; pass naming=", field="naming")

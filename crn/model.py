@@ -15,7 +15,7 @@ from dataclasses import dataclass, field
 
 from .errors import ExpressionError, ModelError
 from .expr import evaluate
-from .network import Network, Reaction
+from .network import MAX_COUNT, NO_CONSENSUS, Network, Reaction
 from .protocol import PROBABILITY_SLACK, Outcome, Protocol, is_identifier
 from .translate import protocol_to_network
 
@@ -90,7 +90,7 @@ class _Locator:
                 continue
             if key is not None and re.match(rf"^\s*\"?{re.escape(key)}\"?\s*=", raw):
                 return number
-            if needle is not None and needle in raw:
+            if needle is not None and needle in raw and not stripped.startswith("#"):
                 return number
         return None
 
@@ -127,6 +127,9 @@ def _count(value, expression, where: str, file, line):
     if value < 0:
         raise ModelError(f"{expression!r} gives {value}, a negative count", file=file, line=line,
                          field=where)
+    if value > MAX_COUNT:
+        raise ModelError(f"{expression!r} gives {value}, above the largest count 2**60",
+                         file=file, line=line, field=where)
     return int(value)
 
 
@@ -307,6 +310,9 @@ class _Builder:
                 raise self.error(f"state name {key!r} is not an identifier", "output", key)
             if not isinstance(label, str) or not label:
                 raise self.error(f"label of {key} must be a non-empty string", "output", key)
+            if label == NO_CONSENSUS:
+                raise self.error(f"label {label!r} is reserved for runs without consensus",
+                                 "output", key)
             out[key] = label
         return out
 

@@ -17,7 +17,18 @@ import scipy.sparse as sp
 from .errors import ModelError
 from .protocol import is_identifier
 
-__all__ = ["Reaction", "Network", "propensities", "deterministic_rates", "format_side"]
+__all__ = ["MAX_COUNT", "MAX_MULTIPLICITY", "NO_CONSENSUS", "Reaction", "Network", "propensities",
+           "deterministic_rates", "format_side"]
+
+
+#: Largest molecule count (and population) a network may hold: the range of the batched
+#: engine, and far from int64 overflow when counts are added.
+MAX_COUNT = 2**60
+_MAX_POWER = MAX_COUNT.bit_length() - 1
+#: Largest multiplicity of a species on one side of a reaction.
+MAX_MULTIPLICITY = 1000
+#: The label that stands for "no consensus" in every tally; no species may report it.
+NO_CONSENSUS = "none"
 
 
 @dataclass(frozen=True)
@@ -145,21 +156,27 @@ class Network:
             count is negative, a rate is negative or the volume is not positive.
         """
         species = tuple(species)
+        if not species:
+            raise ModelError("a network needs at least one species", field="species")
         index = {s: i for i, s in enumerate(species)}
         if len(index) != len(species):
             raise ModelError("a species is listed twice", field="species")
         for s in species:
             if not is_identifier(s):
                 raise ModelError(f"species name {s!r} is not an identifier", field="species")
-        for r in reactions:
+        for i, r in enumerate(reactions):
+            where = f"reactions[{i}]"
             for side in (r.reactants, r.products):
                 for s, m in side.items():
                     if s not in index:
-                        raise ModelError(f"reaction {r} names unknown species {s!r}")
-                    if isinstance(m, bool) or not isinstance(m, int | np.integer) or m < 1:
-                        raise ModelError(f"reaction {r}: multiplicity of {s} must be >= 1")
+                        raise ModelError(f"reaction {r} names unknown species {s!r}", field=where)
+                    if (isinstance(m, bool) or not isinstance(m, int | np.integer)
+                            or not 1 <= m <= MAX_MULTIPLICITY):
+                        raise ModelError(f"reaction {r}: multiplicity of {s} must be a whole "
+                                         f"number from 1 to {MAX_MULTIPLICITY}", field=where)
             if not np.isfinite(r.rate) or r.rate < 0:
-                raise ModelError(f"reaction {r}: rate must be a finite number >= 0, got {r.rate}")
+                raise ModelError(f"reaction {r}: rate must be a finite number >= 0, got {r.rate}",
+                                 field=where)
         if not np.isfinite(volume) or volume <= 0:
             raise ModelError(f"volume must be positive, got {volume}", field="volume")
         rs, rc = _pad([r.reactants for r in reactions], index)
@@ -168,9 +185,14 @@ class Network:
         for s, c in (initial or {}).items():
             if s not in index:
                 raise ModelError(f"initial count for unknown species {s!r}", field="initial")
-            if c < 0:
-                raise ModelError(f"initial count of {s} is negative: {c}", field="initial")
+            whole = isinstance(c, int | np.integer) and not isinstance(c, bool)
+            if not whole or not 0 <= c <= MAX_COUNT:
+                raise ModelError(f"initial count of {s} must be a whole number from 0 to "
+                                 f"2**{_MAX_POWER}, got {c!r}", field=f"initial.{s}")
             x0[index[s]] = c
+        if sum(int(c) for c in x0) > MAX_COUNT:
+            raise ModelError(f"the initial counts add up to more than 2**{_MAX_POWER}",
+                             field="initial")
         output = dict(output or {})
         labels = tuple(dict.fromkeys(output.values()))
         label_index = {label: i for i, label in enumerate(labels)}
@@ -178,9 +200,15 @@ class Network:
         for s, label in output.items():
             if s not in index:
                 raise ModelError(f"output for unknown species {s!r}", field="output")
+            if label == NO_CONSENSUS:
+                raise ModelError(f"label {label!r} of {s} is reserved for runs without consensus",
+                                 field=f"output.{s}")
             species_label[index[s]] = label_index[label]
         inputs = None
         if majority is not None:
+            if len(majority) != 2 or not all(isinstance(s, str) for s in majority):
+                raise ModelError(f"the question names two species, got {majority!r}",
+                                 field="question")
             for s in majority:
                 if s not in index:
                     raise ModelError(f"question names unknown species {s!r}", field="question")

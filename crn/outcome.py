@@ -15,7 +15,7 @@ from dataclasses import dataclass
 import numba
 import numpy as np
 
-from .network import Network
+from .network import NO_CONSENSUS, Network
 
 __all__ = [
     "NO_CONSENSUS",
@@ -28,7 +28,6 @@ __all__ = [
     "tally",
 ]
 
-NO_CONSENSUS = "none"
 TIE = "tie"
 
 

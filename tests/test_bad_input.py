@@ -70,6 +70,18 @@ CASES = [
      "attribute is not allowed"),
     ("reaching Python through a parameter", ("n = 10", 'n = "().__class__"'), 3,
      "parameters.n", "is not allowed"),
+    ("a complex count", ('X = "n - 4"', 'X = "(-1) ** 0.5"'), 5, "initial.X",
+     "complex number"),
+    ("a power too large to compute", ('X = "n - 4"', 'X = "(9 ** 4096) ** 4096"'), 5,
+     "initial.X", "too large"),
+    ("a count beyond 2**60", ('X = "n - 4"', 'X = "2 ** 61"'), 5, "initial.X",
+     "above the largest count 2\\*\\*60"),
+    ("the reserved label none", ('X = "X"\n[question]', 'X = "none"\n[question]'), 12,
+     "output.X", "reserved for runs without consensus"),
+    ("a rule repeated in a comment is located at the rule",
+     ("transitions = [", '# "X, Y -> X, X" once had p = 0.6\ntransitions = [\n'
+      '  { rule = "X, Y -> Y, Y", p = 0.5 },'), 11, "protocol.transitions",
+     "add up to 1.5 > 1"),
 ]
 
 
@@ -140,3 +152,44 @@ def test_output_into_a_missing_folder_fails_before_any_work(argv, capsys):
     err = capsys.readouterr().err.strip()
     assert len(err.splitlines()) == 1
     assert "missing-folder" in err and "does not exist" in err
+
+
+@pytest.mark.parametrize(
+    ("text", "pattern"),
+    [
+        ("PARAMETERS = [1, 2]\ndef build(p):\n    return None\n", "PARAMETERS must be a dict"),
+        ("import sys\nsys.exit(3)\n", "SystemExit"),
+        ("from crn.generate import protocol_from_rule\n"
+         "def build(p):\n"
+         "    return protocol_from_rule('x', lambda a, b: (0.5, (b, a)), {'A': 2})\n",
+         "wrap randomized outcomes in a list"),
+        ("from crn.generate import protocol_from_rule\n"
+         "def build(p):\n"
+         "    return protocol_from_rule('x', lambda a, b: None, {'A': 2}, majority=('A', 'C'))\n",
+         "never reaches"),
+    ],
+)
+def test_bad_python_model(tmp_path, capsys, text, pattern):
+    path = tmp_path / "model.py"
+    path.write_text(text)
+    message = fail(["translate", str(path)], capsys)
+    assert message.startswith(f"crn: {path}") and re.search(pattern, message), message
+
+
+@pytest.mark.parametrize(
+    ("network", "pattern"),
+    [
+        ('{"species": [], "reactions": []}', "at least one species"),
+        ('{"species": ["A", "B"], "initial": {"A": 1}, "reactions": [], '
+         '"majority": [["A"], ["B"]]}', "names two species"),
+        ('{"species": ["A"], "initial": {"A": 99999999999999999999}, "reactions": []}',
+         "whole number from 0 to 2\\*\\*60"),
+        ('{"species": ["A"], "initial": {"A": 1}, "reactions": [{"reactants": {"A": 1}, '
+         '"products": {}, "rate": -1}]}', "reactions\\[0\\]"),
+    ],
+)
+def test_bad_json_network(tmp_path, capsys, network, pattern):
+    path = tmp_path / "net.json"
+    path.write_text(network)
+    message = fail(["translate", str(path)], capsys)
+    assert re.search(pattern, message), message

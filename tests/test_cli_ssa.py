@@ -100,8 +100,35 @@ def test_compare_json_table_and_plot(tmp_path):
     assert data["disagreement"]["p"] == pytest.approx(labels_differing / 40)
     assert data["disagreement"]["low"] <= data["disagreement"]["p"] <= data["disagreement"]["high"]
     assert png.read_bytes()[:8] == b"\x89PNG\r\n\x1a\n"
+    assert_compare_ode_contract(data["ode"])
     text = invoke(args).stdout
     assert "P(run differs from the ODE label X)" in text and "consensus time: ODE" in text
+
+
+def assert_compare_ode_contract(ode):
+    """compare's ``ode`` is the ``crn ode --json`` object (DESIGN.md CLI contract)."""
+    assert {"times", "fractions", "consensus", "fixed_points"} <= set(ode)
+    alone = json.loads(invoke(["ode", AM, *SMALL, "--json"]).stdout)
+    # same ODE as `crn ode`; both solves locate the consensus event at rtol 1e-10
+    assert ode["consensus"]["label"] == alone["consensus"]["label"] == "X"
+    assert ode["consensus"]["time"] == pytest.approx(alone["consensus"]["time"], rel=1e-6)
+    assert ode["fixed_points"] == alone["fixed_points"]
+    # derived: AM's mean field has the two consensus corners stable and the tie x = y = b
+    # (dx/dt and dy/dt vanish when b = y = x) as a saddle
+    kinds = {(round(p["point"]["X"], 9), round(p["point"]["Y"], 9)): p["classification"]
+             for p in ode["fixed_points"]}
+    assert kinds[(1.0, 0.0)] == kinds[(0.0, 1.0)] == "stable"
+    assert kinds[(round(1 / 3, 9), round(1 / 3, 9))] == "saddle"
+    # derived: compare samples 201 times over twice the ODE consensus time (< the horizon)
+    times = np.asarray(ode["times"])
+    assert times.size == 201 and times[0] == 0.0
+    assert times[-1] == pytest.approx(compare_window(ode["consensus"]["time"], 1e9))
+    fractions = {s: np.asarray(v) for s, v in ode["fractions"].items()}
+    assert set(fractions) == {"X", "Y", "B"} and all(v.size == 201 for v in fractions.values())
+    # derived: initial fractions 42/80, 38/80, 0; the agent count is conserved
+    assert (fractions["X"][0], fractions["Y"][0], fractions["B"][0]) == pytest.approx(
+        (42 / 80, 38 / 80, 0.0))
+    assert fractions["X"] + fractions["Y"] + fractions["B"] == pytest.approx(1.0, abs=1e-8)
 
 
 def test_disagreement_and_window():

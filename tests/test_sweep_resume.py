@@ -90,3 +90,19 @@ def test_atomic_write_is_whole_or_nothing(tmp_path):
     assert sorted(p.name for p in tmp_path.iterdir()) == ["table.csv"]
     write_atomic(target, b"new\n")
     assert target.read_bytes() == b"new\n"
+
+
+def test_resume_refuses_a_results_file_with_a_foreign_record(tmp_path):
+    store = SweepStore(tmp_path, "regimes", {"n": [10]}, 1234)
+    store.append({"n": 10, "gap": 2})
+    with open(store.path, "a", encoding="utf-8") as fh:
+        fh.write("[1]\n")
+    with pytest.raises(CRNError, match=r"regimes.jsonl:3: not a results record"):
+        SweepStore(tmp_path, "regimes", {"n": [10]}, 1234, resume=True)
+
+
+def test_an_output_folder_that_cannot_be_made_is_a_crn_error(tmp_path):
+    blocker = tmp_path / "file"
+    blocker.write_text("x")
+    with pytest.raises(CRNError, match="cannot create the folder"):
+        SweepStore(blocker / "sub", "regimes", {}, 1)

@@ -51,9 +51,11 @@ def compare(model, sets, runs, until, engine, workers, cluster, seed, as_json, p
     """Put MODEL's mean-field ODE next to its exact stochastic runs: each label's
     probability (95% Wilson interval) beside the ODE's label, consensus-time quantiles
     beside the ODE's time, and how often a run disagrees with the ODE."""
+    from ..fixed_points import find_fixed_points
     from ..ode import solve_mean_field
     from ..simulate import default_horizon
     from ..stats import wilson_interval
+    from .ode import mean_field_json
 
     loaded = load(model, sets)
     net = loaded.network
@@ -70,10 +72,13 @@ def compare(model, sets, runs, until, engine, workers, cluster, seed, as_json, p
     if plot_path is not None and ensemble.runs:
         _write_plot(plot_path, ode, ensemble, differ, loaded.name)
     if as_json:
+        # the sampled window (the figure's curves) with the consensus the disagreement uses
+        ode_obj = mean_field_json(loaded, ode, find_fixed_points(net),
+                                  consensus=ode_first.consensus)
+        ode_obj.update(label=ode_label, time=ode_time)  # flat keys of earlier versions
         emit_json({
             "model": loaded.name,
-            "ode": {"label": ode_label, "time": ode_time,
-                    "final_label": ode_first.consensus.final_label},
+            "ode": ode_obj,
             "ssa": ensemble_summary(ensemble, loaded.name),
             "disagreement": dict(zip(("p", "low", "high"), differ, strict=True)),
         })
@@ -109,18 +114,13 @@ def _write_plot(path, ode, ensemble, differ, name):
     matplotlib.use("Agg")
     import matplotlib.pyplot as plt
 
-    from ..io.atomic import atomic_path
+    from ..io.atomic import save_figure
     from ..plots.compare import plot_compare
 
     ax = plot_compare(ode, ensemble, disagreement=differ,
                       title=f"{name}\nmean field vs {ensemble.runs} exact stochastic runs "
                             f"({ensemble.engine})")
     try:
-        with atomic_path(path) as tmp:
-            ax.figure.savefig(tmp, dpi=120)
-    except OSError as err:
-        from ..errors import CRNError
-
-        raise CRNError(f"{path}: cannot write the figure: {err.strerror or err}") from err
+        save_figure(path, ax.figure, dpi=120)
     finally:
         plt.close(ax.figure)

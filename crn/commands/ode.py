@@ -10,7 +10,7 @@ import numpy as np
 from ..ode import METHODS, solve_mean_field
 from .options import OUTPUT_FILE, emit_json, json_option, load, model_argument, set_option
 
-__all__ = ["ode"]
+__all__ = ["mean_field_json", "ode"]
 
 
 def _parse_times(text: str | None):
@@ -115,7 +115,7 @@ def ode(model, sets, until, at, plot_file, csv_file, as_json, equations, latex, 
     if plot_file:
         _plot(result, loaded.name, plot_file)
     if as_json:
-        emit_json(_json(loaded, result, points))
+        emit_json(mean_field_json(loaded, result, points))
         return
     click.echo(_text(loaded, result, points))
 
@@ -152,13 +152,38 @@ def _plot(result, name: str, path) -> None:
         plt.close(ax.figure)
 
 
-def _json(loaded, result, points) -> dict:
+def mean_field_json(model, result, fixed_points, *, consensus=None) -> dict:
+    """The ``crn ode --json`` object (DESIGN.md CLI contract) of a mean-field solve.
+
+    Parameters
+    ----------
+    model : crn.model.Model
+        The loaded model (its ``name`` and ``network`` are used).
+    result : MeanFieldResult
+        The solve whose ``times`` and ``fractions`` (shape ``(n_times,)`` per
+        species) are reported.
+    fixed_points : list of FixedPoint or None
+        From :func:`crn.fixed_points.find_fixed_points`; None when not searched
+        (reported as null).
+    consensus : RunOutcome, optional
+        The consensus to report instead of ``result.consensus`` (``crn compare``
+        reports its sampled window beside the consensus of its stop-at-consensus solve).
+
+    Returns
+    -------
+    dict
+        At least ``times``, ``fractions`` (name -> list), ``consensus``
+        (``{label, time}`` or None) and ``fixed_points``; plus ``model``, ``units``,
+        ``molecules_per_unit``, ``method``, ``status``, ``message``, ``final_label``,
+        ``held``, ``correct`` and, for a network, ``concentrations``. Values may be
+        numpy arrays: pass it through ``emit_json``/``to_jsonable``.
+    """
     from ..outcome import correct_label
 
-    net = loaded.network
-    outcome = result.consensus
+    net = model.network
+    outcome = result.consensus if consensus is None else consensus
     obj = {
-        "model": loaded.name,
+        "model": model.name,
         "units": result.units,
         "molecules_per_unit": result.molecules_per_unit,
         "method": result.method,
@@ -171,8 +196,8 @@ def _json(loaded, result, points) -> dict:
         "final_label": outcome.final_label,
         "held": outcome.held,
         "correct": correct_label(net),
-        "fixed_points": None if points is None else [_fixed_point_dict(p, net.species)
-                                                     for p in points],
+        "fixed_points": None if fixed_points is None else [_fixed_point_dict(p, net.species)
+                                                           for p in fixed_points],
     }
     if result.units == "concentration":
         obj["concentrations"] = {s: result.values[:, i] for i, s in enumerate(net.species)}

@@ -12,7 +12,7 @@ import click
 import numpy as np
 
 from ..errors import CRNError
-from ..io.atomic import atomic_path, write_atomic
+from ..io.atomic import save_figure, write_atomic
 from ..io.regime_tables import table_csv
 from ..io.sweep_store import SweepStore
 from ..model import parse_overrides
@@ -197,9 +197,10 @@ def _save_plot(result, path, name):
 
     ax = plot_regime_map(result, title=f"{name}: where the mean field misleads "
                                        f"(risk {result.risk:g})")
-    with atomic_path(path) as tmp:
-        ax.figure.savefig(tmp, dpi=150)
-    plt.close(ax.figure)
+    try:
+        save_figure(path, ax.figure, dpi=150)
+    finally:
+        plt.close(ax.figure)
 
 
 def _text(name, result: RegimeMap) -> str:

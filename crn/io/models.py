@@ -3,6 +3,7 @@
 from __future__ import annotations
 
 import runpy
+from collections.abc import Mapping
 from pathlib import Path
 
 from ..errors import CRNError, ModelError
@@ -69,13 +70,17 @@ def _load_network(path: Path, text: str, overrides) -> Model:
 def _load_python(path: Path, overrides) -> Model:
     try:
         namespace = runpy.run_path(str(path))
-    except Exception as err:  # a trusted file: report whatever it raised, in one line
+    except (Exception, SystemExit) as err:  # a trusted file: report what it raised, in one line
         raise ModelError(f"running the Python model failed: {type(err).__name__}: {err}",
                          file=path) from err
     build = namespace.get("build")
     if not callable(build):
         raise ModelError("a Python model defines build(parameters)", file=path, field="build")
-    params = dict(namespace.get("PARAMETERS", {}))
+    defaults = namespace.get("PARAMETERS", {})
+    if not isinstance(defaults, Mapping):
+        raise ModelError(f"PARAMETERS must be a dict of names to numbers, got "
+                         f"{type(defaults).__name__}", file=path, field="PARAMETERS")
+    params = dict(defaults)
     for key, value in overrides.items():
         if key not in params:
             raise ModelError(f"--set names unknown parameter {key!r} "

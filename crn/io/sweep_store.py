@@ -72,7 +72,10 @@ class SweepStore:
         self.path = Path(out) / f"{name}.jsonl"
         self.parameters = _plain(dict(parameters))
         self.finished: list[dict] = []
-        self.path.parent.mkdir(parents=True, exist_ok=True)
+        try:
+            self.path.parent.mkdir(parents=True, exist_ok=True)
+        except OSError as err:
+            raise CRNError(f"{self.path.parent}: cannot create the folder: {err.strerror}") from err
         if resume and self.path.exists():
             header, self.finished = self._read()
             if header.get("parameters") != self.parameters:
@@ -109,8 +112,13 @@ class SweepStore:
         except json.JSONDecodeError as err:
             raise CRNError(f"{self.path}: not a results file ({err})") from err
         header = records[0]
-        if header.get("format") != _FORMAT or header.get("kind") != "header":
+        if (not isinstance(header, dict) or header.get("format") != _FORMAT
+                or header.get("kind") != "header"):
             raise CRNError(f"{self.path}: not a results file (no {_FORMAT} header)")
+        for number, record in enumerate(records[1:], start=2):
+            if not isinstance(record, dict) or (record.get("kind") == "cell"
+                                                and not isinstance(record.get("cell"), dict)):
+                raise CRNError(f"{self.path}:{number}: not a results record")
         return header, [r["cell"] for r in records[1:] if r.get("kind") == "cell"]
 
     def append(self, cell: dict) -> None:
