@@ -16,6 +16,7 @@ from .errors import CRNError
 __all__ = ["cli", "main"]
 
 EXIT_BAD_INPUT = 2
+_PACKAGE_DIR = __file__.rsplit("/", 1)[0]
 
 
 @click.group(context_settings={"help_option_names": ["-h", "--help"]})
@@ -37,6 +38,22 @@ _register()
 
 def main(argv=None) -> int:
     """Entry point of the ``crn`` console script: exit 0, or 2 with a one-line error."""
+    import warnings
+
+    with warnings.catch_warnings():
+        warnings.showwarning = _show_warning
+        return _run(argv)
+
+
+def _show_warning(message, category, filename, lineno, file=None, line=None):
+    """Our own warnings as one line on standard error; other libraries' warnings stay quiet."""
+    from .model import ModelWarning
+
+    if issubclass(category, ModelWarning) or filename.startswith(_PACKAGE_DIR):
+        click.echo(f"crn: warning: {_one_line(str(message))}", err=True)
+
+
+def _run(argv) -> int:
     try:
         code = cli.main(args=argv, prog_name="crn", standalone_mode=False)
     except click.exceptions.Abort:

@@ -10,6 +10,7 @@ from __future__ import annotations
 import math
 import re
 import tomllib
+import warnings
 from collections.abc import Mapping
 from dataclasses import dataclass, field
 
@@ -19,10 +20,15 @@ from .network import MAX_COUNT, NO_CONSENSUS, Network, Reaction
 from .protocol import PROBABILITY_SLACK, Outcome, Protocol, is_identifier
 from .translate import protocol_to_network
 
-__all__ = ["Model", "Rule", "parse_model", "parse_overrides", "parse_rule", "parse_reaction"]
+__all__ = ["ModelWarning", "Model", "Rule", "parse_model", "parse_overrides", "parse_rule",
+           "parse_reaction"]
 
 _TOP_KEYS = {"name", "about", "parameters", "initial", "protocol", "network", "output", "question"}
 _TERM = re.compile(r"^(?:(\d+)\s*)?([A-Za-z_][A-Za-z0-9_]*)$")
+
+
+class ModelWarning(UserWarning):
+    """A model loads but contains something that is probably a mistake (a rule that never fires)."""
 
 
 @dataclass(frozen=True)
@@ -226,6 +232,10 @@ class _Builder:
         name = field_name or ".".join(p for p in (section, key) if p)
         return ModelError(message, file=self.file, line=line, field=name or None)
 
+    def warn(self, line, where, message):
+        place = self.file if line is None else f"{self.file}:{line}"
+        warnings.warn(f"{place} [{where}]: {message}", ModelWarning, stacklevel=4)
+
     def table(self, key):
         value = self.data.get(key, {})
         if not isinstance(value, dict):
@@ -372,6 +382,8 @@ class _Builder:
             if isinstance(p, bool) or not isinstance(p, int | float) or not 0 <= p <= 1:
                 raise ModelError(f"p of rule {text!r} must be a number in [0, 1], got {p!r}",
                                  file=self.file, line=line, field=where)
+            if p == 0:
+                self.warn(line, where, f"rule {text!r} has p = 0 and never fires")
             rules.append(Rule(text, line, a, b, Outcome(c, d, float(p))))
         if symmetric:
             own = {(r.initiator, r.responder) for r in rules}
@@ -437,5 +449,7 @@ class _Builder:
             for s in list(reactants) + list(products):
                 if s not in species:
                     species.append(s)
+            if rate == 0:
+                self.warn(line, where, f"reaction {text!r} has rate 0 and never fires")
             reactions.append(Reaction(reactants, products, rate))
         return reactions, tuple(species), volume

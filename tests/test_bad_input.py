@@ -193,3 +193,13 @@ def test_bad_json_network(tmp_path, capsys, network, pattern):
     path.write_text(network)
     message = fail(["translate", str(path)], capsys)
     assert re.search(pattern, message), message
+
+
+def test_a_reaction_that_never_fires_is_one_warning_line(tmp_path, capsys):
+    path = tmp_path / "z.toml"
+    path.write_text('name = "n"\n[initial]\nX = 2\n[network]\n'
+                    'reactions = [{ reaction = "X -> 0", rate = 0 }]\n')
+    assert main(["translate", str(path)]) == 0
+    err = capsys.readouterr().err
+    assert err == f"crn: warning: {path}:5 [network.reactions[0]]: reaction 'X -> 0' has rate 0 " \
+                  "and never fires\n"

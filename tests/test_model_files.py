@@ -123,3 +123,16 @@ def test_json_and_sbml_exports_load_as_models(tmp_path):
         assert again.output == net.output and again.volume == net.volume
         with pytest.raises(ModelError, match="unknown parameter 'n'"):
             load_model(path, {"n": 3})
+
+
+def test_rules_and_reactions_that_never_fire_are_warned_about():
+    from crn.model import ModelWarning, parse_model
+
+    protocol = ('name = "p"\n[initial]\nX = 2\nY = 2\n[protocol]\n'
+                'transitions = [{ rule = "X, Y -> X, X", p = 0 }]\n')
+    with pytest.warns(ModelWarning, match=r"m.toml:6 \[protocol.transitions\[0\]\].*never fires"):
+        parse_model(protocol, source="m.toml")
+    network = ('name = "n"\n[initial]\nX = 2\n[network]\n'
+               'reactions = [{ reaction = "X -> 0", rate = 0 }]\n')
+    with pytest.warns(ModelWarning, match=r"rate 0 and never fires"):
+        parse_model(network, source="n.toml")
