@@ -10,7 +10,6 @@ a JSON summary go to ``--out``.
 from __future__ import annotations
 
 import json
-import math
 import sys
 import time
 from pathlib import Path
@@ -19,6 +18,7 @@ import numpy as np
 
 from .copies import Prober, smallest_n
 from .io.atomic import atomic_path, write_atomic
+from .io.jsonable import to_jsonable
 from .io.models import load_model
 from .io.regime_tables import table_csv
 from .probes import InitialSplit, gap_for_fraction, ode_decision, stochastic_decisions
@@ -262,20 +262,8 @@ def run_demo(out, *, quick: bool = False, seed: int = 20261201, workers: int = 2
                "rate_per_molar_second": rate, "compare": compare,
                "regimes": {"cells": rmap.table(), "exponent": b.to_dict()},
                "feasibility": rows, "chosen": chosen, "elapsed_seconds": elapsed}
-    write_atomic(out / "summary.json", json.dumps(_plain(summary), indent=2) + "\n")
+    write_atomic(out / "summary.json", json.dumps(to_jsonable(summary), indent=2) + "\n")
     return summary
-
-
-def _plain(value):
-    if isinstance(value, dict):
-        return {k: _plain(v) for k, v in value.items()}
-    if isinstance(value, list | tuple):
-        return [_plain(v) for v in value]
-    if isinstance(value, float | np.floating):
-        return float(value) if math.isfinite(value) else None
-    if isinstance(value, np.integer):
-        return int(value)
-    return value
 
 
 def _n(value):

@@ -6,8 +6,8 @@ import json
 import sys
 
 import click
-import numpy as np
 
+from ..io.jsonable import to_jsonable
 from ..io.models import load_model
 from ..model import parse_overrides
 
@@ -38,24 +38,6 @@ def json_option(func):
 def load(model: str, sets):
     """Load a model file with ``--set`` overrides (errors propagate as CRNError)."""
     return load_model(model, parse_overrides(sets))
-
-
-def to_jsonable(value):
-    """Convert numpy scalars and arrays (and NaN/inf) into plain JSON values."""
-    if isinstance(value, dict):
-        return {str(k): to_jsonable(v) for k, v in value.items()}
-    if isinstance(value, list | tuple):
-        return [to_jsonable(v) for v in value]
-    if isinstance(value, np.ndarray):
-        return to_jsonable(value.tolist())
-    if isinstance(value, np.integer):
-        return int(value)
-    if isinstance(value, float | np.floating):
-        value = float(value)
-        return value if np.isfinite(value) else None
-    if isinstance(value, np.bool_):
-        return bool(value)
-    return value
 
 
 def emit_json(obj) -> None:

@@ -12,30 +12,17 @@ reader sees the old file or the new one, never a half-written one.
 from __future__ import annotations
 
 import json
-import math
 import os
 import warnings
 from pathlib import Path
 
 from ..errors import CRNError
 from .atomic import write_atomic
+from .jsonable import to_jsonable
 
 __all__ = ["SweepStore"]
 
 _FORMAT = "crn-sweep/1"
-
-
-def _plain(value):
-    """JSON-safe copy: non-finite floats become None, tuples lists."""
-    if isinstance(value, dict):
-        return {str(k): _plain(v) for k, v in value.items()}
-    if isinstance(value, list | tuple):
-        return [_plain(v) for v in value]
-    if isinstance(value, float):
-        return value if math.isfinite(value) else None
-    if hasattr(value, "item") and not isinstance(value, str | bytes):
-        return _plain(value.item())
-    return value
 
 
 class SweepStore:
@@ -70,7 +57,7 @@ class SweepStore:
     def __init__(self, out, name: str, parameters: dict, seed_entropy: int, *,
                  resume: bool = False, check_seed: bool = False):
         self.path = Path(out) / f"{name}.jsonl"
-        self.parameters = _plain(dict(parameters))
+        self.parameters = to_jsonable(dict(parameters))
         self.finished: list[dict] = []
         try:
             self.path.parent.mkdir(parents=True, exist_ok=True)
@@ -123,7 +110,7 @@ class SweepStore:
 
     def append(self, cell: dict) -> None:
         """Append one finished cell (a JSON-serialisable dict) durably."""
-        record = {"kind": "cell", "cell": _plain(cell)}
+        record = {"kind": "cell", "cell": to_jsonable(cell)}
         with open(self.path, "a", encoding="utf-8") as fh:
             fh.write(json.dumps(record) + "\n")
             fh.flush()
