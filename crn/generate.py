@@ -28,6 +28,18 @@ def state_name(state) -> str:
     ``("strong", 1)`` becomes ``strong_1``; a dataclass ``Agent(opinion="A",
     strong=True)`` becomes ``A_True``; a string that is already an identifier
     stays as it is.
+
+    Parameters
+    ----------
+    state : dataclass instance, tuple or object
+        The state; anything else than a dataclass or tuple is one field.
+
+    Returns
+    -------
+    str
+        The joined values, with ``-`` written ``m``, other characters that are
+        not letters, digits or ``_`` written ``_``, and ``s_`` in front when
+        the result is empty or starts with a digit.
     """
     if dataclasses.is_dataclass(state):
         values = [getattr(state, f.name) for f in dataclasses.fields(state)]

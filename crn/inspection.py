@@ -57,6 +57,14 @@ class RuleReport:
         return self.molecules_out - self.molecules_in
 
     def to_dict(self) -> dict:
+        """A JSON-ready dictionary (one entry of ``rules`` in ``crn check --json``).
+
+        Returns
+        -------
+        dict
+            Keys ``rule``, ``line``, ``conserves``, ``net_change``, ``can_fire``,
+            ``unreachable_reactants`` (list of str) and ``changes_state``.
+        """
         return {
             "rule": self.text,
             "line": self.line,

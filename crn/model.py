@@ -104,10 +104,21 @@ class _Locator:
 def parse_overrides(pairs) -> dict[str, float | int]:
     """Parse ``NAME=VALUE`` strings (the ``--set`` option) into a dictionary.
 
+    Parameters
+    ----------
+    pairs : iterable of str or None
+        ``NAME=VALUE`` items; ``VALUE`` is a number or arithmetic expression.
+
+    Returns
+    -------
+    dict of str to int or float
+        Name -> value; a later item overrides an earlier one with the same name.
+
     Raises
     ------
     ModelError
-        When an item has no ``=`` or its value is not a number.
+        When an item has no ``=``, its name is not an identifier or its value
+        is not a number.
     """
     out = {}
     for item in pairs or ():
@@ -157,7 +168,29 @@ def _expand_side(text: str, where: str, file, line) -> dict[str, int]:
 
 
 def parse_reaction(text: str, *, where: str = "network.reactions", file=None, line=None):
-    """Parse ``"X + Y -> 2 U"`` (``0`` for an empty side) into reactant and product multisets."""
+    """Parse ``"X + Y -> 2 U"`` (``0`` for an empty side) into reactant and product multisets.
+
+    Parameters
+    ----------
+    text : str
+        The reaction.
+    where : str, default "network.reactions"
+        Field named in error messages.
+    file, line : optional
+        File name and line number named in error messages.
+
+    Returns
+    -------
+    (dict of str to int, dict of str to int)
+        Reactants and products, species name -> multiplicity (repeated species
+        added up, terms with count 0 left out).
+
+    Raises
+    ------
+    ModelError
+        If ``text`` is not a string with exactly one ``->`` or a term is not a
+        species with an optional count.
+    """
     if not isinstance(text, str) or text.count("->") != 1:
         raise ModelError(f"reaction {text!r} must have the form 'A + B -> C'", file=file,
                          line=line, field=where)
@@ -166,7 +199,28 @@ def parse_reaction(text: str, *, where: str = "network.reactions", file=None, li
 
 
 def parse_rule(text: str, *, where: str = "protocol.transitions", file=None, line=None):
-    """Parse ``"X, Y -> X, U"`` into ``((initiator, responder), (initiator', responder'))``."""
+    """Parse ``"X, Y -> X, U"`` into ``((initiator, responder), (initiator', responder'))``.
+
+    Parameters
+    ----------
+    text : str
+        The rule.
+    where : str, default "protocol.transitions"
+        Field named in error messages.
+    file, line : optional
+        File name and line number named in error messages.
+
+    Returns
+    -------
+    ((str, str), (str, str))
+        The pair before and the pair after the interaction.
+
+    Raises
+    ------
+    ModelError
+        If ``text`` is not a string with exactly one ``->``, a side does not
+        name exactly two states, or a name is not an identifier.
+    """
     if not isinstance(text, str) or text.count("->") != 1:
         raise ModelError(f"rule {text!r} must have the form 'P, Q -> P2, Q2'", file=file,
                          line=line, field=where)

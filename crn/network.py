@@ -49,7 +49,17 @@ class Reaction:
 
 
 def format_side(side: Mapping[str, int]) -> str:
-    """Write a multiset in chemical notation: ``2 A + B``, or ``0`` when empty."""
+    """Write a multiset in chemical notation: ``2 A + B``, or ``0`` when empty.
+
+    Parameters
+    ----------
+    side : mapping of str to int
+        Species name -> multiplicity; entries with multiplicity 0 are left out.
+
+    Returns
+    -------
+    str
+    """
     terms = [name if m == 1 else f"{m} {name}" for name, m in side.items() if m > 0]
     return " + ".join(terms) if terms else "0"
 
@@ -233,10 +243,12 @@ class Network:
     # -- shape -----------------------------------------------------------------
     @property
     def n_species(self) -> int:
+        """Number of species."""
         return len(self.species)
 
     @property
     def n_reactions(self) -> int:
+        """Number of reactions."""
         return int(self.rates.shape[0])
 
     @property
@@ -274,7 +286,17 @@ class Network:
         return out
 
     def reaction(self, i: int) -> Reaction:
-        """Return reaction ``i`` as a named :class:`Reaction`."""
+        """Return reaction ``i`` as a named :class:`Reaction`.
+
+        Parameters
+        ----------
+        i : int
+            Reaction index, ``0 <= i < n_reactions``.
+
+        Returns
+        -------
+        Reaction
+        """
         def side(species, counts):
             pairs = zip(species[i], counts[i], strict=True)
             return {self.species[s]: int(m) for s, m in pairs if s >= 0}
@@ -290,7 +312,22 @@ class Network:
         return [self.reaction(i) for i in range(self.n_reactions)]
 
     def label_of(self, species: str) -> str | None:
-        """The label a species reports, or None."""
+        """The label a species reports, or None.
+
+        Parameters
+        ----------
+        species : str
+            Species name.
+
+        Returns
+        -------
+        str or None
+
+        Raises
+        ------
+        KeyError
+            If ``species`` is not a species of the network.
+        """
         k = int(self.species_label[self.index[species]])
         return None if k < 0 else self.labels[k]
 
@@ -310,7 +347,25 @@ class Network:
     def with_initial(self, initial, volume: float | None = None) -> Network:
         """Return the same network with other initial counts (and optionally volume).
 
-        ``initial`` is a mapping of names to counts or an array of shape (n_species,).
+        Parameters
+        ----------
+        initial : mapping of str to int, or array_like of int, shape (n_species,)
+            New initial counts; species a mapping leaves out start at 0.
+        volume : float, optional
+            New volume. By default the volume is kept, except for a network
+            translated from a protocol, where it becomes ``max(n - 1, 1)`` for the
+            new population n.
+
+        Returns
+        -------
+        Network
+
+        Raises
+        ------
+        ValueError
+            If the counts do not have shape (n_species,) or one is negative.
+        KeyError
+            If a mapping names an unknown species.
         """
         if isinstance(initial, Mapping):
             x0 = np.zeros(self.n_species, dtype=np.int64)
@@ -325,7 +380,17 @@ class Network:
         return _replace(self, initial=_frozen(x0, np.int64), volume=float(volume or self.volume))
 
     def with_rates(self, rates) -> Network:
-        """Return the same network with other rate constants."""
+        """Return the same network with other rate constants.
+
+        Parameters
+        ----------
+        rates : array_like of float, shape (n_reactions,)
+            New rate constants, in reaction order (not validated).
+
+        Returns
+        -------
+        Network
+        """
         return _replace(self, rates=_frozen(rates, np.float64))
 
 
@@ -374,6 +439,12 @@ def propensities(net: Network, x) -> np.ndarray:
 
 def deterministic_rates(net: Network, c) -> np.ndarray:
     """Mass-action reaction rates ``k * prod_s c_s**r_s`` at concentrations ``c``.
+
+    Parameters
+    ----------
+    net : Network
+    c : array_like of float, shape (n_species,)
+        Concentrations.
 
     Returns
     -------

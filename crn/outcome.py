@@ -131,7 +131,18 @@ class RunOutcome:
 
 
 def label_name(net: Network, index: int) -> str | None:
-    """Label name for an index, None for -1."""
+    """Label name for an index, None for -1.
+
+    Parameters
+    ----------
+    net : Network
+    index : int
+        Index into ``net.labels``; any negative value means no label.
+
+    Returns
+    -------
+    str or None
+    """
     return None if index < 0 else net.labels[index]
 
 
@@ -140,6 +151,16 @@ def correct_label(net: Network, initial=None) -> str | None:
 
     The label the more numerous input state reports (its name if it reports
     none), ``"tie"`` for equal counts, None when the network asks no question.
+
+    Parameters
+    ----------
+    net : Network
+    initial : array_like of int, shape (n_species,), optional
+        Initial counts; by default ``net.initial``.
+
+    Returns
+    -------
+    str or None
     """
     if net.inputs is None:
         return None
@@ -153,6 +174,17 @@ def correct_label(net: Network, initial=None) -> str | None:
 
 
 def tally(labels: Iterable[str | None]) -> dict[str, int]:
-    """Count labels, writing ``"none"`` for runs without consensus."""
+    """Count labels, writing ``"none"`` for runs without consensus.
+
+    Parameters
+    ----------
+    labels : iterable of str or None
+        One label per run, None for a run without consensus.
+
+    Returns
+    -------
+    dict of str to int
+        Label -> number of runs, in order of first appearance.
+    """
     counts = Counter(NO_CONSENSUS if label is None else label for label in labels)
     return dict(counts)

@@ -16,7 +16,17 @@ PROBABILITY_SLACK = 1e-12
 
 
 def is_identifier(name) -> bool:
-    """Return whether ``name`` is a valid state or species name (also a valid SBML id)."""
+    """Return whether ``name`` is a valid state or species name (also a valid SBML id).
+
+    Parameters
+    ----------
+    name : object
+        Anything; only a string can be an identifier.
+
+    Returns
+    -------
+    bool
+    """
     return isinstance(name, str) and bool(_IDENTIFIER.match(name))
 
 

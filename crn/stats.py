@@ -41,7 +41,18 @@ def wilson_interval(successes: int, trials: int, confidence: float = 0.95):
 
 
 def time_summary(times) -> dict | None:
-    """``{mean, median, q05, q95}`` of the finite entries of ``times``, None if there are none."""
+    """``{mean, median, q05, q95}`` of the finite entries of ``times``, None if there are none.
+
+    Parameters
+    ----------
+    times : array_like of float, shape (n_runs,)
+        Times; NaN and infinite entries (runs without consensus) are ignored.
+
+    Returns
+    -------
+    dict of str to float, or None
+        Keys ``mean``, ``median``, ``q05`` and ``q95`` (the 5 % and 95 % quantiles).
+    """
     t = np.asarray(times, dtype=float)
     t = t[np.isfinite(t)]
     if t.size == 0:

@@ -16,46 +16,135 @@ __all__ = ["model_argument", "set_option", "seed_option", "json_option", "load",
 
 
 def model_argument(func):
+    """Add the ``MODEL`` argument (path of a model file) to a click command.
+
+    Parameters
+    ----------
+    func : callable
+        The command function to decorate.
+
+    Returns
+    -------
+    callable
+        ``func`` with the argument, passed to it as ``model``.
+    """
     return click.argument("model", type=click.Path(dir_okay=False))(func)
 
 
 def set_option(func):
+    """Add the repeatable ``--set NAME=VALUE`` option to a click command.
+
+    Parameters
+    ----------
+    func : callable
+        The command function to decorate.
+
+    Returns
+    -------
+    callable
+        ``func`` with the option, passed to it as ``sets`` (tuple of str).
+    """
     return click.option("--set", "sets", multiple=True, metavar="NAME=VALUE",
                         help="Override a parameter of the model (repeatable).")(func)
 
 
 def seed_option(func):
+    """Add the ``--seed`` option (a non-negative int, default None) to a click command.
+
+    Parameters
+    ----------
+    func : callable
+        The command function to decorate.
+
+    Returns
+    -------
+    callable
+        ``func`` with the option, passed to it as ``seed`` (int or None).
+    """
     return click.option("--seed", type=click.IntRange(min=0), default=None,
                         help="Root seed; the same seed gives the same numbers on any number "
                              "of workers. Printed when not given.")(func)
 
 
 def json_option(func):
+    """Add the ``--json`` flag to a click command.
+
+    Parameters
+    ----------
+    func : callable
+        The command function to decorate.
+
+    Returns
+    -------
+    callable
+        ``func`` with the flag, passed to it as ``as_json`` (bool).
+    """
     return click.option("--json", "as_json", is_flag=True,
                         help="Print one JSON object on standard output instead of tables.")(func)
 
 
 def load(model: str, sets):
-    """Load a model file with ``--set`` overrides (errors propagate as CRNError)."""
+    """Load a model file with ``--set`` overrides (errors propagate as CRNError).
+
+    Parameters
+    ----------
+    model : str
+        Path of the model file.
+    sets : iterable of str or None
+        ``NAME=VALUE`` overrides, as given to ``--set``.
+
+    Returns
+    -------
+    Model
+
+    Raises
+    ------
+    ModelError
+        When the file is missing, unreadable or invalid, or an override is malformed.
+    """
     return load_model(model, parse_overrides(sets))
 
 
 def emit_json(obj) -> None:
-    """Write one JSON object on standard output."""
+    """Write one JSON object on standard output.
+
+    Parameters
+    ----------
+    obj : object
+        Nested dicts, lists, tuples, numpy arrays and scalars, and plain values
+        (converted by :func:`~crn.io.jsonable.to_jsonable`); printed with indent 2.
+    """
     click.echo(json.dumps(to_jsonable(obj), indent=2))
 
 
 def progress_bar(description: str, total: int | None, enabled: bool = True):
     """A rich progress bar on standard error, or a no-op when disabled (``--json``).
 
-    Returns a context manager yielding ``advance(k=1)``-style callback ``update(done, total)``.
+    The bar is also a no-op when standard error is not a terminal, unless the
+    environment sets ``CRN_PROGRESS=1``.
+
+    Parameters
+    ----------
+    description : str
+        Text shown left of the bar.
+    total : int or None
+        Number of steps expected; None for an unknown total.
+    enabled : bool, default True
+        False gives the no-op callback.
+
+    Returns
+    -------
+    context manager
+        Yields a callback ``update(done, new_total=None)``: ``done`` is the
+        number of steps completed so far (an absolute count, not an increment),
+        and ``new_total``, when given, replaces the expected total.
     """
     from contextlib import contextmanager
 
     @contextmanager
     def bar():
         if not enabled or not sys.stderr.isatty() and not _force_progress():
-            yield lambda done, total=None: None
+            yield lambda done, new_total=None: None
             return
         from rich.console import Console
         from rich.progress import BarColumn, MofNCompleteColumn, Progress, TimeElapsedColumn

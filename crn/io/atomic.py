@@ -24,6 +24,16 @@ def atomic_path(path):
     temporary name keeps the suffix, so format detection by extension works.
     On an exception the temporary file is removed and ``path`` is untouched.
 
+    Parameters
+    ----------
+    path : str or Path
+        The file to create or replace.
+
+    Yields
+    ------
+    Path
+        The temporary file to write, in the same folder as ``path``.
+
     Raises
     ------
     CRNError
@@ -51,6 +61,18 @@ def atomic_path(path):
 def write_atomic(path, data) -> Path:
     """Write ``data`` (str or bytes) to ``path`` whole or not at all (fsync'ed before the rename).
 
+    Parameters
+    ----------
+    path : str or Path
+        The file to create or replace.
+    data : str or bytes
+        The content; text is written as UTF-8.
+
+    Returns
+    -------
+    Path
+        ``path``.
+
     Raises
     ------
     CRNError
@@ -66,7 +88,21 @@ def write_atomic(path, data) -> Path:
 
 
 def save_figure(path, figure, dpi: int = 150) -> None:
-    """Save a matplotlib figure atomically; the format follows the file suffix."""
+    """Save a matplotlib figure atomically; the format follows the file suffix.
+
+    Parameters
+    ----------
+    path : str or Path
+        The file to create or replace; with no suffix the format is PNG.
+    figure : matplotlib.figure.Figure
+    dpi : int, default 150
+        Resolution of raster formats.
+
+    Raises
+    ------
+    CRNError
+        When the folder does not exist or cannot be written.
+    """
     fmt = Path(path).suffix.lstrip(".").lower() or "png"
     with atomic_path(path) as tmp:
         figure.savefig(tmp, format=fmt, dpi=dpi)

@@ -59,7 +59,19 @@ def network_to_dict(net: Network) -> dict:
 
 
 def network_to_json(net: Network, indent: int | None = 2) -> str:
-    """Return the contract object as JSON text (see :func:`network_to_dict`)."""
+    """Return the contract object as JSON text (see :func:`network_to_dict`).
+
+    Parameters
+    ----------
+    net : Network
+    indent : int or None, default 2
+        Indentation passed to :func:`json.dumps`; None for one line.
+
+    Returns
+    -------
+    str
+        The JSON text, ending with a newline.
+    """
     return json.dumps(network_to_dict(net), indent=indent) + "\n"
 
 
@@ -155,6 +167,17 @@ def network_from_dict(data: Mapping, *, source: str = "<json>") -> Network:
 
 def network_from_json(text: str, *, source: str = "<json>") -> Network:
     """Parse JSON text holding a contract object (see :func:`network_from_dict`).
+
+    Parameters
+    ----------
+    text : str
+        The JSON document.
+    source : str, default "<json>"
+        Name used in error messages.
+
+    Returns
+    -------
+    Network
 
     Raises
     ------

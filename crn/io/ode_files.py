@@ -11,7 +11,17 @@ __all__ = ["write_mean_field_csv", "mean_field_csv"]
 
 
 def mean_field_csv(result) -> str:
-    """CSV text: a ``time`` column, then one column per species (the result's values)."""
+    """CSV text: a ``time`` column, then one column per species (the result's values).
+
+    Parameters
+    ----------
+    result : crn.ode.MeanFieldResult
+
+    Returns
+    -------
+    str
+        A header row, then one row per time point, numbers written with ``repr``.
+    """
     out = io.StringIO()
     writer = csv.writer(out, lineterminator="\n")
     writer.writerow(["time", *result.species])
@@ -21,6 +31,18 @@ def mean_field_csv(result) -> str:
 
 
 def write_mean_field_csv(path, result) -> None:
-    """Write :func:`mean_field_csv` to ``path`` atomically."""
+    """Write :func:`mean_field_csv` to ``path`` atomically.
+
+    Parameters
+    ----------
+    path : str or Path
+        The CSV file to create or replace.
+    result : crn.ode.MeanFieldResult
+
+    Raises
+    ------
+    CRNError
+        When the file cannot be written.
+    """
     text = mean_field_csv(result)
     write_atomic(path, text)

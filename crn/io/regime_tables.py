@@ -12,7 +12,18 @@ COLUMNS = ["n", "gap", "ode_label", "ode_time", "p_wrong", "low", "high", "wrong
 
 
 def table_csv(cells) -> str:
-    """The cells as CSV text (every number)."""
+    """The cells as CSV text (every number).
+
+    Parameters
+    ----------
+    cells : iterable of crn.regimes.RegimeCell
+
+    Returns
+    -------
+    str
+        A header row of :data:`COLUMNS`, then one row per cell; None is written
+        as an empty field.
+    """
     buffer = io.StringIO()
     writer = csv.DictWriter(buffer, fieldnames=COLUMNS, lineterminator="\n")
     writer.writeheader()

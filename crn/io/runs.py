@@ -50,6 +50,12 @@ def runs_csv(ensemble) -> str:
 def write_runs_csv(ensemble, path) -> None:
     """Write :func:`runs_csv` to ``path`` atomically (temporary file and rename).
 
+    Parameters
+    ----------
+    ensemble : crn.simulate.Ensemble
+    path : str or Path
+        The CSV file to create or replace.
+
     Raises
     ------
     CRNError
