@@ -178,7 +178,7 @@ def _limit_check(net: Network, limit: int) -> int:
 
 
 def exact_outcomes(net: Network, *, max_states: int | None = None, method: str = "auto",
-                   progress=None) -> ExactResult:
+                   progress=None, absorb: str = "stable") -> ExactResult:
     """Exact probability of each stable consensus and moments of the time to reach it.
 
     Let A_L be the configurations of stable consensus on label L (closed
@@ -203,6 +203,12 @@ def exact_outcomes(net: Network, *, max_states: int | None = None, method: str =
         factorises up to :data:`DIRECT_LIMIT` transient configurations.
     progress : callable, optional
         ``progress(done, total)`` during the enumeration.
+    absorb : {"stable", "first"}
+        ``"stable"`` (default): absorption into stable consensus, as above.
+        ``"first"``: every consensus configuration absorbs, so the answer is
+        the label and time of the *first* consensus, as the stochastic engines
+        report it. The two agree whenever consensus is never lost (every
+        bundled model); they differ for protocols that can leave consensus.
 
     Returns
     -------
@@ -222,17 +228,23 @@ def exact_outcomes(net: Network, *, max_states: int | None = None, method: str =
     """
     if method not in ("auto", "direct", "iterative"):
         raise ValueError(f"`method` must be 'auto', 'direct' or 'iterative', got {method!r}")
+    if absorb not in ("stable", "first"):
+        raise ValueError(f"`absorb` must be 'stable' or 'first', got {absorb!r}")
     limit = DEFAULT_MAX_STATES if max_states is None else int(max_states)
     _limit_check(net, limit)
     space = enumerate_configurations(net, max_states=limit, progress=progress)
-    return solve_absorption(net, space, method=method)
+    return solve_absorption(net, space, method=method, absorb=absorb)
 
 
-def solve_absorption(net: Network, space: StateSpace, *, method: str = "auto") -> ExactResult:
+def solve_absorption(net: Network, space: StateSpace, *, method: str = "auto",
+                     absorb: str = "stable") -> ExactResult:
     """Solve the absorption problem of :func:`exact_outcomes` on an enumerated state space."""
     labels = list(net.labels)
     reverse = _reverse(space)
-    stable = stable_consensus(net, space, reverse)
+    if absorb == "first":
+        stable = consensus_labels(net, space.states)
+    else:
+        stable = stable_consensus(net, space, reverse)
     absorbing = stable >= 0
     probabilities = {label: 0.0 for label in labels}
     common = dict(states=space.n_states, transitions=space.n_transitions,

@@ -172,13 +172,14 @@ def exact_absorption(net: Network):
     Returns
     -------
     probabilities : dict of str to float
-        Label -> probability, ``"none"`` for never reaching stable consensus.
+        Label of the first consensus -> probability, ``"none"`` for never
+        reaching consensus: the quantity the stochastic runs estimate.
     mean, std : float
-        Of the time to stable consensus, given that it is reached.
+        Of the time to the first consensus, given that it is reached.
     """
     from .exact import exact_outcomes
 
-    result = exact_outcomes(net)
+    result = exact_outcomes(net, absorb="first")
     probabilities = {k: float(v) for k, v in result.probabilities.items()}
     probabilities.setdefault("none", 0.0)
     return probabilities, float(result.expected_time), float(result.time_std)

@@ -15,7 +15,10 @@ from crn.errors import CRNError
 from crn.exact import exact_outcomes, transient_outcomes
 from crn.io.models import load_model
 from crn.network import Network, Reaction, propensities
+from crn.protocol import Outcome, Protocol
+from crn.simulate import simulate
 from crn.stats import wilson_interval
+from crn.translate import protocol_to_network
 
 MODELS = Path(__file__).resolve().parents[1] / "models"
 
@@ -202,3 +205,28 @@ def test_projection_reports_the_lost_mass():
 def test_bad_deadline_is_refused():
     with pytest.raises(ValueError, match="until"):
         transient_outcomes(model_net("epidemic", n=5), -1.0)
+
+
+def test_first_consensus_matches_stochastic_runs_when_consensus_can_be_lost():
+    # X, X -> X, Y lets an all-X population leave consensus, so the first consensus
+    # and the stable one differ: stable consensus is only ever on Y (derived: from
+    # all Y no rule fires; from all X the X, X rule always reintroduces a Y).
+    protocol = Protocol(
+        "leaky", ("X", "Y"),
+        {("X", "Y"): (Outcome("X", "X", 0.5), Outcome("Y", "Y", 0.3)),
+         ("X", "X"): (Outcome("X", "Y", 0.2),)},
+        {"X": 3, "Y": 2}, {"X": "X", "Y": "Y"}, ("X", "Y"))
+    net = protocol_to_network(protocol)
+    stable = exact_outcomes(net)
+    assert stable.probabilities["Y"] == pytest.approx(1.0, abs=1e-12)
+    first = exact_outcomes(net, absorb="first")
+    assert sum(first.probabilities.values()) == pytest.approx(1.0, abs=1e-12)
+    runs = simulate(net, runs=4000, rng=20261201, workers=1, engine="direct",
+                    stop_at_consensus=True, until=1000.0)
+    hits = runs.outcomes().get("X", 0)
+    # Wilson interval at 99.9% of the 4000 runs' estimate (alpha = 0.001)
+    _, low, high = wilson_interval(hits, runs.runs, confidence=0.999)
+    assert low <= first.probabilities["X"] <= high
+    # mean first-consensus time within 4 standard errors of the runs' mean
+    times = runs.consensus_times[np.isfinite(runs.consensus_times)]
+    assert abs(times.mean() - first.expected_time) < 4 * times.std(ddof=1) / math.sqrt(times.size)
