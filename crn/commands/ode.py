@@ -8,6 +8,7 @@ import click
 import numpy as np
 
 from ..ode import METHODS, solve_mean_field
+from .implementing import dna_options, dna_settings, implement_option
 from .options import OUTPUT_FILE, emit_json, json_option, load, model_argument, set_option
 
 __all__ = ["mean_field_json", "ode"]
@@ -86,13 +87,35 @@ def _format_eigenvalues(values) -> str:
               help="Integrator of scipy's solve_ivp (BDF or Radau for stiff networks).")
 @click.option("--fixed-points/--no-fixed-points", "with_fixed_points", default=True,
               show_default=True, help="Find the fixed points on the conserved simplex.")
+@implement_option
+@dna_options
+@click.option("--fuel-needed", "fuel_needed", is_flag=True,
+              help="With --implement: find the smallest fuel excess at which the "
+                   "implementation decides within --within of the formal decision time.")
+@click.option("--within", type=click.FloatRange(0, 1, min_open=True, max_open=True),
+              default=0.1, show_default=True,
+              help="Relative tolerance of --fuel-needed.")
 def ode(model, sets, until, at, plot_file, csv_file, as_json, equations, latex, method,
-        with_fixed_points):
+        with_fixed_points, implement, fuel, max_rate, toehold, leak, rate, concentration,
+        fuel_needed, within):
     """Solve the mean-field ODE of MODEL: fractions of the population against parallel
     time for a protocol (n -> infinity), concentrations for a network. Reports the
     consensus (the agents not reporting the leading label make fewer than one
-    molecule) and the fixed points with their stability."""
+    molecule) and the fixed points with their stability. With --implement the ODE
+    of the DNA implementation is solved instead, in the same time unit."""
+    settings = dna_settings(implement, fuel=fuel, max_rate=max_rate, toehold=toehold,
+                            leak=leak, rate=rate, concentration=concentration)
+    if fuel_needed and settings is None:
+        raise click.UsageError("--fuel-needed needs --implement SCHEME")
     loaded = load(model, sets)
+    if settings is not None:
+        from .implemented_ode import run_implemented_ode
+
+        run_implemented_ode(loaded, settings, until=until, times=_parse_times(at),
+                            method=method, plot_file=plot_file, csv_file=csv_file,
+                            as_json=as_json, equations=equations, latex=latex,
+                            fuel_needed=fuel_needed, within=within)
+        return
     net = loaded.network
     if equations or latex:
         _print_equations(net, latex, as_json)

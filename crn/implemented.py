@@ -1,0 +1,267 @@
+"""Running the analyses on a DNA implementation instead of the formal network.
+
+Every analysis (mean field, stochastic runs, exact chains, regime maps, copy
+numbers) takes a network, or a builder ``(n, gap) -> Network`` for the cells of
+a sweep. :class:`ImplementedCells` wraps a formal builder so that each cell's
+formal network is implemented in DNA (:func:`crn.dna.implement`) and the
+analysis runs on the implementation network: same volume convention and same
+time unit as the formal run (parallel time for a protocol), decisions read from
+the signal species only (fuel, intermediates and waste are ignored by the
+consensus rule, :data:`crn.network.IGNORED`).
+
+The helpers here also say how much fuel is left at the end of a run and why an
+implementation fails to decide where its formal network decides (fuel runs
+out, leak dominates).
+"""
+
+from __future__ import annotations
+
+import dataclasses
+import math
+from collections.abc import Callable
+from dataclasses import dataclass
+
+import numpy as np
+
+from .network import Network
+from .units import AVOGADRO
+
+__all__ = ["ImplementedCells", "implementation_of", "fuel_left_ode", "fuel_left_runs",
+           "formal_horizon", "Diagnosis", "diagnose", "FUEL_OUT"]
+
+#: A fuel species with less than this fraction left counts as run out.
+FUEL_OUT = 0.05
+
+
+def implementation_of(formal: Network, scheme: str, params):
+    """Implement one formal network in DNA (:func:`crn.dna.implement`).
+
+    Parameters
+    ----------
+    formal : Network
+    scheme : str
+        A key of :data:`crn.dna.SCHEMES`.
+    params : crn.dna.DnaParameters
+
+    Returns
+    -------
+    crn.dna.Implementation
+    """
+    from .dna import implement
+
+    return implement(formal, scheme, params)
+
+
+@dataclass(frozen=True)
+class ImplementedCells:
+    """Cell builder ``(n, gap) -> Network``: each cell's formal network implemented in DNA.
+
+    Picklable (for worker processes) when ``formal`` is, as
+    :class:`crn.probes.InitialSplit` and :class:`crn.probes.ModelParameters` are.
+
+    Attributes
+    ----------
+    formal : callable (n, gap) -> Network
+        Builder of the formal cell networks.
+    scheme : str
+    params : crn.dna.DnaParameters
+        The signal concentration C the formal population stands for, the
+        physical rate of one unit of formal rate, fuel, q_max and leak.
+    volume_liters : float, optional
+        A fixed droplet volume: the signal concentration of cell n is then
+        ``n / (V N_A)`` instead of ``params.concentration`` (fuel given in M
+        stays as given; the default fuel follows C).
+    """
+
+    formal: Callable[[int, int], Network]
+    scheme: str
+    params: object
+    volume_liters: float | None = None
+
+    def params_for(self, n: int):
+        """The DNA parameters of the cell with n agents."""
+        if self.volume_liters is None:
+            return self.params
+        return dataclasses.replace(self.params,
+                                   concentration=int(n) / (self.volume_liters * AVOGADRO))
+
+    def implementation(self, n: int, gap: int):
+        """The :class:`crn.dna.Implementation` of cell (n, gap)."""
+        return implementation_of(self.formal(int(n), int(gap)), self.scheme, self.params_for(n))
+
+    def __call__(self, n: int, gap: int) -> Network:
+        return self.implementation(n, gap).network
+
+    def with_params(self, **changes) -> ImplementedCells:
+        """The same builder with some DNA parameters changed (``leak=...``, ``fuel=...``)."""
+        return dataclasses.replace(self, params=dataclasses.replace(self.params, **changes))
+
+
+def formal_horizon(formal: Network) -> float:
+    """The stochastic runs' default horizon of the formal network, in its time unit.
+
+    Used as the default horizon on the implementation too, so both runs cover
+    the same stretch of time (the implementation's own default would follow
+    its fast fuel reactions).
+    """
+    from .simulate import default_horizon
+
+    return float(default_horizon(formal))
+
+
+def formal_ode_horizon(formal: Network) -> float:
+    """The mean field's default horizon of the formal network, in its time unit."""
+    from .ode import default_horizon
+
+    return float(default_horizon(formal))
+
+
+def fuel_left_ode(impl, result) -> dict[str, float]:
+    """Fraction of each fuel species left at the end of a mean-field solve of ``impl.network``.
+
+    Parameters
+    ----------
+    impl : crn.dna.Implementation
+    result : crn.ode.MeanFieldResult
+        A solve of ``impl.network`` (values in concentrations, molecules per
+        unit = the volume).
+
+    Returns
+    -------
+    dict of str to float
+        Fuel species -> remaining fraction (initial fuel 1).
+    """
+    values = np.asarray(result.values, dtype=np.float64)
+    last = values[-1] if values.shape[0] else np.asarray(impl.network.initial, dtype=np.float64)
+    return impl.fuel_remaining(last * float(result.molecules_per_unit)
+                               if values.shape[0] else last)
+
+
+def fuel_left_runs(impl, ensemble) -> dict[str, float]:
+    """Mean over the runs of the fraction of each fuel species left at the last sample time.
+
+    Parameters
+    ----------
+    impl : crn.dna.Implementation
+    ensemble : crn.simulate.Ensemble
+        Runs of ``impl.network`` sampled up to their horizon.
+
+    Returns
+    -------
+    dict of str to float
+        Fuel species -> mean remaining fraction (empty when no run finished).
+    """
+    if ensemble.runs == 0 or ensemble.counts.shape[1] == 0:
+        return {}
+    last = ensemble.counts[:, -1, :].astype(np.float64).mean(axis=0)
+    return impl.fuel_remaining(last)
+
+
+@dataclass(frozen=True)
+class Diagnosis:
+    """Why an implementation does (not) decide like its formal network, from the mean field.
+
+    Attributes
+    ----------
+    reason : str
+        ``decides`` (the implementation's mean field reaches the correct
+        consensus by the deadline), ``fuel runs out`` (some fuel species falls
+        below :data:`FUEL_OUT` before a decision), ``leak dominates`` (without
+        the leak it would decide; with it the minority is produced faster than
+        it is removed), ``too slow`` (no decision by the deadline with fuel
+        left and no leak to blame) or ``formal fails`` (the formal network
+        itself does not decide correctly by the deadline).
+    formal_time, time : float or None
+        Mean-field consensus time of the formal network and of the
+        implementation (formal time units).
+    label : str or None
+        The implementation's mean-field consensus label.
+    correct : str or None
+    fuel_left : dict of str to float
+        At the end of the implementation's solve.
+    time_without_leak : float or None
+        Consensus time of the implementation with the leak set to 0 (only
+        computed when the leak is positive and the implementation fails).
+    """
+
+    reason: str
+    formal_time: float | None
+    time: float | None
+    label: str | None
+    correct: str | None
+    fuel_left: dict
+    time_without_leak: float | None = None
+
+    def text(self) -> str:
+        """One sentence for the designer."""
+        if self.reason == "decides":
+            return f"the implementation decides {self.label} at {self.time:.4g}"
+        low = min(self.fuel_left.values()) if self.fuel_left else None
+        if self.reason == "fuel runs out":
+            return (f"fuel runs out (least fuel left {low:.1%}) before the signals decide: "
+                    f"raise --fuel")
+        if self.reason == "leak dominates":
+            return ("leak dominates: the leak makes minority signal faster than the circuit "
+                    "removes it"
+                    + ("" if self.time_without_leak is None
+                       else f" (without leak it decides at {self.time_without_leak:.4g})")
+                    + ": lower --leak or the fuel concentration")
+        if self.reason == "formal fails":
+            return "the formal network itself does not decide correctly by the deadline"
+        return "too slow: no decision by the deadline although fuel is left"
+
+
+def _decides(net: Network, until: float):
+    from .ode import solve_mean_field
+
+    result = solve_mean_field(net, until=float(until), stop_at_consensus=True)
+    return result
+
+
+def diagnose(formal: Network, scheme: str, params, until: float) -> Diagnosis:
+    """Compare the implementation's mean-field decision with the formal one, and say why it fails.
+
+    Parameters
+    ----------
+    formal : Network
+    scheme : str
+    params : crn.dna.DnaParameters
+    until : float
+        The deadline (formal time units).
+
+    Returns
+    -------
+    Diagnosis
+    """
+    from .outcome import correct_label
+
+    truth = correct_label(formal)
+    formal_result = _decides(formal, until)
+    formal_time = formal_result.consensus.time
+    formal_ok = formal_result.consensus.label is not None and (
+        truth is None or formal_result.consensus.label == truth)
+    impl = implementation_of(formal, scheme, params)
+    result = _decides(impl.network, until)
+    left = fuel_left_ode(impl, result)
+    label, time = result.consensus.label, result.consensus.time
+    common = dict(formal_time=formal_time, time=time, label=label, correct=truth, fuel_left=left)
+    if label is not None and (truth is None or label == truth):
+        return Diagnosis("decides", **common)
+    if not formal_ok:
+        return Diagnosis("formal fails", **common)
+    if left and min(left.values()) < FUEL_OUT:
+        return Diagnosis("fuel runs out", **common)
+    if float(params.leak) > 0:
+        clean = implementation_of(formal, scheme, dataclasses.replace(params, leak=0.0))
+        without = _decides(clean.network, until).consensus
+        if without.label is not None and (truth is None or without.label == truth):
+            return Diagnosis("leak dominates", time_without_leak=without.time, **common)
+    return Diagnosis("too slow", **common)
+
+
+def finite(value) -> float | None:
+    """``value`` as a float, None when it is None or not finite."""
+    if value is None:
+        return None
+    value = float(value)
+    return value if math.isfinite(value) else None
