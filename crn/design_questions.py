@@ -277,10 +277,11 @@ class ImplementationCopies:
     ----------
     formal, implemented : crn.copies.CopiesResult
     verdict : str
-        ``more copies`` (the implementation needs more), ``same copies``,
-        ``fewer copies`` (within sampling error of the formal answer),
-        ``no droplet size works``, or ``formal fails`` (the formal network
-        itself meets the risk at no n).
+        ``more copies`` (the implementation's 95% range lies above the formal
+        one), ``fewer copies`` (below it), ``same copies within sampling
+        error`` (the ranges overlap), ``no droplet size works``, ``formal
+        fails`` (the formal network itself meets the risk at no n) or
+        ``implemented`` (no formal search was asked for).
     extra_copies : float or None
         implemented / formal estimate.
     slowdown : float or None
@@ -353,12 +354,11 @@ def implementation_copies(formal_cells: Callable[[int, int], Network], scheme: s
         if implemented.low is not None and formal.high is not None and \
                 implemented.low > formal.high:
             verdict = "more copies"
-        elif implemented.estimate > formal.estimate:
-            verdict = "more copies"
-        elif implemented.estimate == formal.estimate:
-            verdict = "same copies"
-        else:
+        elif implemented.high is not None and formal.low is not None and \
+                implemented.high < formal.low:
             verdict = "fewer copies"
+        else:
+            verdict = "same copies within sampling error"
         if implemented.median_time and formal.median_time:
             slowdown = implemented.median_time / formal.median_time
     return ImplementationCopies(formal, implemented, verdict, extra, slowdown, diagnosis)

@@ -5,6 +5,7 @@ from __future__ import annotations
 import click
 import numpy as np
 
+from .implementing import dna_options, dna_settings, implement_option
 from .options import (
     OUTPUT_FILE,
     emit_json,
@@ -47,17 +48,30 @@ def disagreement(labels, ode_label) -> tuple[float, float, float]:
 @json_option
 @click.option("--plot", "plot_path", type=OUTPUT_FILE, default=None,
               help="Write the figure (ODE over the stochastic median and 5-95% band).")
-def compare(model, sets, runs, until, engine, workers, cluster, seed, as_json, plot_path):
+@implement_option
+@dna_options
+def compare(model, sets, runs, until, engine, workers, cluster, seed, as_json, plot_path,
+            implement, fuel, max_rate, toehold, leak, rate, concentration):
     """Put MODEL's mean-field ODE next to its exact stochastic runs: each label's
     probability (95% Wilson interval) beside the ODE's label, consensus-time quantiles
-    beside the ODE's time, and how often a run disagrees with the ODE."""
+    beside the ODE's time, and how often a run disagrees with the ODE. With --implement:
+    the formal ODE, the DNA implementation's ODE and its stochastic runs side by side."""
     from ..fixed_points import find_fixed_points
     from ..ode import solve_mean_field
     from ..simulate import default_horizon
     from ..stats import wilson_interval
     from .ode import mean_field_json
 
+    settings = dna_settings(implement, fuel=fuel, max_rate=max_rate, toehold=toehold,
+                            leak=leak, rate=rate, concentration=concentration)
     loaded = load(model, sets)
+    if settings is not None:
+        from .implemented_compare import compare_implemented
+
+        compare_implemented(loaded, settings, runs=runs, until=until, engine=engine,
+                            workers=workers, cluster=cluster, seed=seed, as_json=as_json,
+                            plot_path=plot_path)
+        return
     net = loaded.network
     horizon = default_horizon(net) if until is None else float(until)
     ode_first = solve_mean_field(net, until=horizon)

@@ -16,6 +16,7 @@ from ..units import (
     parse_time,
     parse_volume,
 )
+from .implementing import dna_only_options, dna_settings, implement_option
 from .options import emit_json, json_option, model_argument, seed_option, set_option
 from .regimes import cell_networks
 
@@ -61,13 +62,21 @@ def parse_deadline(text: str | None):
               show_default=True)
 @seed_option
 @json_option
+@implement_option
+@dna_only_options
 def copies(model, sets, gap_fraction, gap, risk, deadline, concentration, volume, rate, n_max,
-           runs_max, method, seed, as_json):
+           runs_max, method, seed, as_json, implement, fuel, max_rate, toehold, leak):
     """Smallest number of agents (molecules) of MODEL that reach the correct consensus by the
     deadline with probability at least 1 - risk, with an interval for sampling error (per
     population a 95% interval, simultaneous over the sequential looks (Clopper-Pearson,
     Bonferroni)); and
-    with physical options the concentration or volume and the time in seconds and hours."""
+    with physical options the concentration or volume and the time in seconds and hours.
+    With --implement (needs --rate and --concentration or --volume) the search runs on the
+    DNA implementation, beside the formal answer: more copies, a later decision, or no
+    droplet size at all and why (fuel runs out, leak dominates)."""
+    settings = dna_settings(implement, fuel=fuel, max_rate=max_rate, toehold=toehold,
+                            leak=leak, rate=rate, concentration=concentration,
+                            concentration_optional=volume is not None and concentration is None)
     if (gap_fraction is None) == (gap is None):
         raise CRNError("give exactly one of --gap-fraction and --gap")
     if concentration is not None and volume is not None:
@@ -87,9 +96,21 @@ def copies(model, sets, gap_fraction, gap, risk, deadline, concentration, volume
             def parallel_deadline(n, _s=deadline_seconds, _k=k, _v=vol):
                 return _s * _k * n / (_v * AVOGADRO)
     model_obj, networks = cell_networks(model, sets)
-    result = smallest_n(networks, gap_fraction=gap_fraction, gap=gap, risk=risk,
-                        deadline=parallel_deadline, n_max=n_max, method=method,
-                        runs_max=runs_max, rng=seed, workers=1)
+    answer = None
+    if settings is None:
+        result = smallest_n(networks, gap_fraction=gap_fraction, gap=gap, risk=risk,
+                            deadline=parallel_deadline, n_max=n_max, method=method,
+                            runs_max=runs_max, rng=seed, workers=1)
+    else:
+        from ..design_questions import implementation_copies
+        from .implementing import implementation_errors
+
+        answer = implementation_errors(
+            implementation_copies, networks, *settings,
+            volume_liters=vol if conc is None else None, gap_fraction=gap_fraction, gap=gap,
+            risk=risk, deadline=parallel_deadline, n_max=n_max, method=method,
+            runs_max=runs_max, rng=seed, workers=1)
+        result = answer.implemented
     phys = physical_outputs(result.estimate, concentration_molar=conc, volume_liters=vol,
                             rate=k, parallel_time=result.median_time)
     bounds = {}
@@ -116,11 +137,56 @@ def copies(model, sets, gap_fraction, gap, risk, deadline, concentration, volume
             "method": result.method,
             "seed": result.seed_entropy,
             "probes": [p.__dict__ for p in result.probes],
+            **({} if answer is None else _implementation_json(answer, settings)),
         })
         return
     if seed is None:
         click.echo(f"crn: seed {result.seed_entropy}", err=True)
     click.echo(_text(model_obj.name, result, phys, bounds, deadline_seconds))
+    if answer is not None:
+        click.echo(_implementation_text(answer, settings))
+
+
+def _implementation_json(answer, settings) -> dict:
+    formal = answer.formal
+    diagnosis = answer.diagnosis
+    return {
+        "implementation": {"scheme": settings[0], "parameters": settings[1].as_dict()},
+        "formal": None if formal is None else {
+            "n": {"estimate": formal.estimate, "low": formal.low, "high": formal.high},
+            "median_time": formal.median_time, "method": formal.method,
+            "probes": [p.__dict__ for p in formal.probes]},
+        "verdict": answer.verdict,
+        "extra_copies": answer.extra_copies,
+        "slowdown": answer.slowdown,
+        "diagnosis": None if diagnosis is None else {
+            "reason": diagnosis.reason, "text": diagnosis.text(),
+            "formal_time": diagnosis.formal_time, "time": diagnosis.time,
+            "label": diagnosis.label, "fuel": diagnosis.fuel_left,
+            "time_without_leak": diagnosis.time_without_leak},
+    }
+
+
+def _implementation_text(answer, settings) -> str:
+    scheme, params = settings
+    formal = answer.formal
+    lines = [f"on the {scheme} DNA implementation (fuel {format_concentration(params.fuel_molar)}"
+             f"{'' if params.fuel is not None else ' by default'}, leak {params.leak:g} /M/s): "
+             f"{answer.verdict}"]
+    if formal is not None:
+        lines.append(f"  formal network: n = {_n(formal.estimate)} "
+                     f"({_n(formal.low)} .. {_n(formal.high)})"
+                     + ("" if formal.median_time is None
+                        else f", median consensus time {formal.median_time:.4g}"))
+    if answer.extra_copies is not None:
+        lines.append(f"  the implementation needs {answer.extra_copies:.3g}x the formal copies")
+    if answer.slowdown is not None:
+        lines.append(f"  median consensus time {answer.slowdown:.3g}x the formal one"
+                     + (f": a deadline binds as if {1 - 1 / answer.slowdown:.0%} shorter"
+                        if answer.slowdown > 1 else ""))
+    if answer.diagnosis is not None:
+        lines.append(f"  no droplet size works: {answer.diagnosis.text()}")
+    return "\n".join(lines)
 
 
 def _text(name, result, phys, bounds, deadline_seconds) -> str:

@@ -6,6 +6,7 @@ import click
 
 from ..exact import exact_outcomes, transient_outcomes
 from ..outcome import NO_CONSENSUS
+from .implementing import dna_options, dna_settings, implement_option
 from .options import emit_json, json_option, load, model_argument, progress_bar, set_option
 
 __all__ = ["exact"]
@@ -25,10 +26,23 @@ def _counts(net, x) -> str:
               help="Refuse (or, with --until, project onto) more configurations than N "
                    "(default 10,000,000).")
 @json_option
-def exact(model, sets, until, max_states, as_json):
+@implement_option
+@dna_options
+def exact(model, sets, until, max_states, as_json, implement, fuel, max_rate, toehold, leak,
+          rate, concentration):
     """Exact outcome probabilities of MODEL from its initial counts, by solving the
-    continuous-time Markov chain over every reachable configuration."""
+    continuous-time Markov chain over every reachable configuration. With --implement,
+    of the DNA implementation (small populations and little fuel only: every fuel
+    molecule multiplies the configurations)."""
+    settings = dna_settings(implement, fuel=fuel, max_rate=max_rate, toehold=toehold,
+                            leak=leak, rate=rate, concentration=concentration)
     net = load(model, sets).network
+    impl = None
+    if settings is not None:
+        from .implementing import implement_network
+
+        impl = implement_network(net, settings)
+        net = impl.network
     with progress_bar("configurations", None, enabled=not as_json) as update:
         result = exact_outcomes(net, max_states=max_states, progress=update)
     transient = None
@@ -55,11 +69,18 @@ def exact(model, sets, until, max_states, as_json):
                 "probabilities": {k: v for k, v in transient.items() if k != "lost"},
                 "lost": transient["lost"],
             }
+        if impl is not None:
+            from .implementing import implementation_json
+
+            obj["implementation"] = implementation_json(impl)
         emit_json(obj)
         return
     clock = "parallel time" if net.from_protocol else "time"
     lines = [
-        f"{net.name}: {_counts(net, net.initial)}",
+        f"{net.name}: {_counts(net, net.initial)}" if impl is None else
+        f"{net.name}: {_counts(impl.formal, impl.formal.initial)} and "
+        f"{sum(int(net.initial[net.index[s]]) for s in impl.fuel)} fuel molecules "
+        f"({net.n_species} species; times in the formal network's unit)",
         f"{result.states:,} configurations, {result.transitions:,} transitions "
         f"({result.method} solve)",
     ]

@@ -18,6 +18,7 @@ from ..io.sweep_store import SweepStore
 from ..model import parse_overrides
 from ..probes import InitialSplit, ModelParameters
 from ..regimes import RegimeCell, RegimeMap, plan_cells, regime_map
+from .implementing import dna_options, dna_settings, implement_option
 from .options import (
     OUTPUT_FILE,
     emit_json,
@@ -122,12 +123,23 @@ def _fmt(value, spec=".3g"):
               help="Dask scheduler address for the stochastic runs.")
 @seed_option
 @json_option
+@implement_option
+@dna_options
+@click.option("--leak-tolerance", "with_leak_tolerance", is_flag=True,
+              help="With --implement: for each cell, the largest leak rate constant at which "
+                   "it stays ok with the correct decision (many more runs).")
 def regimes(model, sets, n_list, gap_list, fraction_list, risk, until, runs_max, time_factor,
-            method, plot_file, csv_file, out_dir, resume, workers, cluster, seed, as_json):
+            method, plot_file, csv_file, out_dir, resume, workers, cluster, seed, as_json,
+            implement, fuel, max_rate, toehold, leak, rate, concentration, with_leak_tolerance):
     """Sweep MODEL over populations n and gaps: for each cell, the ODE's decision, the
     probability that a stochastic run disagrees with it (95% interval, simultaneous over the
     sequential looks (Clopper-Pearson, Bonferroni)), the flag, the times;
-    and the fitted growth of the critical gap with n."""
+    and the fitted growth of the critical gap with n. With --implement every cell runs on
+    the DNA implementation of its network (same time unit, decisions from the signals)."""
+    settings = dna_settings(implement, fuel=fuel, max_rate=max_rate, toehold=toehold,
+                            leak=leak, rate=rate, concentration=concentration)
+    if with_leak_tolerance and settings is None:
+        raise CRNError("--leak-tolerance needs --implement SCHEME")
     if (gap_list is None) == (fraction_list is None):
         raise CRNError("give exactly one of --gap and --gap-fraction")
     if workers and cluster:
@@ -140,6 +152,13 @@ def regimes(model, sets, n_list, gap_list, fraction_list, risk, until, runs_max,
                                                                     "--gap-fraction")
     cells, skipped = plan_cells(ns, gaps, fractions)
     model_obj, networks = cell_networks(model, sets)
+    formal_networks = networks
+    if settings is not None:
+        from ..implemented import ImplementedCells
+        from .implementing import implement_network
+
+        networks = ImplementedCells(networks, *settings)
+        implement_network(model_obj.network, settings)  # parameter errors before any cell
     for n, g in skipped:
         click.echo(f"crn: skipping n={n}, gap={g}: (n + gap) / 2 is not whole", err=True)
 
@@ -153,6 +172,9 @@ def regimes(model, sets, n_list, gap_list, fraction_list, risk, until, runs_max,
             "risk": risk, "until": until, "runs_max": runs_max, "time_factor": time_factor,
             "method": method,
         }
+        if settings is not None:
+            parameters["implement"] = {"scheme": settings[0],
+                                       "parameters": settings[1].as_dict()}
         store = SweepStore(out_dir, "regimes", parameters, seed_entropy=entropy, resume=resume,
                            check_seed=seed is not None)
         entropy = store.seed_entropy
@@ -173,6 +195,14 @@ def regimes(model, sets, n_list, gap_list, fraction_list, risk, until, runs_max,
                             done=done, on_cell=on_cell, progress=update)
     table = table_csv(result.cells)
     payload = result_json(model_obj.name, result)
+    tolerances = None
+    if settings is not None:
+        payload["implementation"] = {"scheme": settings[0], "parameters": settings[1].as_dict()}
+        if with_leak_tolerance:
+            tolerances = _leak_tolerances(formal_networks, result, settings, risk=risk,
+                                          runs_max=runs_max, until=until, entropy=entropy,
+                                          as_json=as_json)
+            payload["leak_tolerance"] = tolerances
     if out_dir:
         write_atomic(Path(out_dir) / "regimes.csv", table)
         write_atomic(Path(out_dir) / "regimes.json",
@@ -185,6 +215,40 @@ def regimes(model, sets, n_list, gap_list, fraction_list, risk, until, runs_max,
         emit_json(payload)
         return
     click.echo(_text(model_obj.name, result))
+    if settings is not None:
+        click.echo(f"(cells run on the {settings[0]} DNA implementation; times in the formal "
+                   f"network's unit = {settings[1].seconds_per_time_unit:.4g} s at the given "
+                   f"concentration)")
+    if tolerances is not None:
+        click.echo(_tolerance_text(tolerances, risk))
+
+
+def _leak_tolerances(formal_networks, result, settings, *, risk, runs_max, until, entropy,
+                     as_json):
+    from ..design_questions import leak_tolerance
+
+    scheme, params = settings
+    out = []
+    with progress_bar("leak tolerance", len(result.cells), enabled=not as_json) as update:
+        for i, cell in enumerate(result.cells):
+            answer = leak_tolerance(formal_networks, cell.n, cell.gap, scheme, params, risk=risk,
+                                    runs_max=runs_max, rng=entropy, until=until)
+            out.append({"n": cell.n, "gap": cell.gap, "leak": answer.leak,
+                        "failing": answer.failing, "horizon": answer.horizon,
+                        "tried": list(answer.tried)})
+            update(i + 1)
+    return out
+
+
+def _tolerance_text(tolerances, risk) -> str:
+    lines = [f"leak tolerance (largest leak, /M/s, at which the cell stays ok at risk {risk:g} "
+             "with the correct decision by the horizon):",
+             f"{'n':>10} {'gap':>8} {'tolerated':>11} {'fails at':>10}"]
+    for t in tolerances:
+        tolerated = "not ok at 0" if t["leak"] is None else f"{t['leak']:.3g}"
+        fails = "-" if t["failing"] is None else f"{t['failing']:.3g}"
+        lines.append(f"{t['n']:>10} {t['gap']:>8} {tolerated:>11} {fails:>10}")
+    return "\n".join(lines)
 
 
 def _save_plot(result, path, name):

@@ -6,6 +6,7 @@ import click
 
 from ..simulate import ENGINES, Ensemble, SimulationInterrupted, simulate
 from ..stats import wilson_interval
+from .implementing import dna_options, dna_settings, implement_option
 from .options import (
     OUTPUT_FILE,
     emit_json,
@@ -119,26 +120,59 @@ def _finish_interrupted(ensemble: Ensemble):
 @json_option
 @click.option("--csv", "csv_path", type=OUTPUT_FILE, default=None,
               help="Also write one row per run to this CSV file.")
-def ssa(model, sets, runs, until, engine, workers, cluster, seed, as_json, csv_path):
+@implement_option
+@dna_options
+def ssa(model, sets, runs, until, engine, workers, cluster, seed, as_json, csv_path, implement,
+        fuel, max_rate, toehold, leak, rate, concentration):
     """Run MODEL's exact stochastic dynamics RUNS times and report who won and when.
 
     Each run has its own random stream from --seed, so the numbers do not depend
-    on --workers or --cluster. Ctrl-C stops and reports the runs finished.
+    on --workers or --cluster. Ctrl-C stops and reports the runs finished. With
+    --implement the runs are of the DNA implementation (same time unit, default
+    horizon of the formal network), and the fuel left at the horizon is reported.
     """
     from ..io.runs import write_runs_csv
     from ..outcome import correct_label
 
+    settings = dna_settings(implement, fuel=fuel, max_rate=max_rate, toehold=toehold,
+                            leak=leak, rate=rate, concentration=concentration)
     loaded = load(model, sets)
     net = loaded.network
+    impl = None
+    if settings is not None:
+        from ..implemented import formal_horizon
+        from .implementing import implement_network
+
+        impl = implement_network(net, settings)
+        until = formal_horizon(net) if until is None else until
+        net = impl.network
     ensemble, interrupted = run_ensemble(net, runs=runs, until=until, engine=engine, seed=seed,
                                          workers=workers, cluster=cluster, as_json=as_json)
     if csv_path is not None and ensemble.runs:
         write_runs_csv(ensemble, csv_path)
+    fuel_left = None
+    if impl is not None:
+        from ..implemented import fuel_left_runs
+
+        fuel_left = fuel_left_runs(impl, ensemble)
     if as_json:
-        emit_json(ensemble_summary(ensemble, loaded.name))
+        obj = ensemble_summary(ensemble, loaded.name)
+        if impl is not None:
+            from .implementing import implementation_json
+
+            obj.update(fuel=fuel_left, implementation=implementation_json(impl))
+        emit_json(obj)
     else:
         head = (f"{loaded.name}: {ensemble.runs} runs, engine {ensemble.engine}, "
                 f"horizon {ensemble.until:.4g}")
-        click.echo("\n".join([head, *format_ensemble(ensemble, correct_label(net))]))
+        lines = [head, *format_ensemble(ensemble, correct_label(net))]
+        if impl is not None:
+            from .implementing import format_fuel
+
+            head += (f" (formal time unit), on its {impl.scheme} DNA implementation "
+                     f"({net.n_species} species)")
+            lines = [head, *lines[1:], format_fuel(fuel_left) + " (mean over runs, at the "
+                     "horizon)"]
+        click.echo("\n".join(lines))
     if interrupted:
         _finish_interrupted(ensemble)
