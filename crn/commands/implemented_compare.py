@@ -8,7 +8,7 @@ import click
 import numpy as np
 
 from .compare import _SAMPLES, compare_window, disagreement
-from .implemented_ode import consensus_json, save_implementation_plot
+from .implemented_ode import save_implementation_plot
 from .implementing import format_fuel, implement_network, implementation_json
 from .options import emit_json
 from .ssa import _finish_interrupted, ensemble_summary, run_ensemble
