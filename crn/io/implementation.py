@@ -38,7 +38,9 @@ def summary_line(impl: Implementation, budget: FuelBudget, inv: Inventory) -> st
     worst, frac = budget.worst
     when = ("a decision (mean field)" if budget.decided else
             "the run to the horizon (the mean field reaches no consensus)")
-    text = (f"summary: {len(inv.per_reaction)} formal reactions, {inv.mean_complexes:g} fuel "
+    count = len(inv.per_reaction)
+    text = (f"summary: {count} formal reaction{'' if count == 1 else 's'}, "
+            f"{inv.mean_complexes:g} fuel "
             f"complexes and {inv.mean_strands:g} strands per reaction"
             f" (+{inv.buffer_complexes} complexes for buffering); total fuel "
             f"{format_concentration(budget.total_supplied)}; {when} consumes "
