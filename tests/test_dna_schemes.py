@@ -174,3 +174,19 @@ def test_two_domain_names_what_it_cannot_build():
     for scheme in SCHEMES:
         with pytest.raises(CRNError, match="has 3 reactants"):
             implement(three, scheme, DnaParameters(rate=RATE, concentration=C))
+
+
+@pytest.mark.parametrize("scheme", sorted(SCHEMES))
+def test_without_leak_and_with_ample_fuel_the_decision_is_the_formal_one(scheme):
+    """Soloveichik, Seelig & Winfree 2010 (convergence): at leak 0, fuel excess 1000 and
+    q_max 1e8 /M/s the implementation's mean field decides like the formal one, with the
+    consensus time within 2% (the signal ODEs differ by ~1e-3 of n, test above)."""
+    net = _am(n=1000, gap=20)
+    formal = solve_mean_field(net)
+    imp = implement(net, scheme, DnaParameters(rate=RATE, concentration=C, fuel=1000 * C,
+                                               max_rate=1e8))
+    run = solve_mean_field(imp.network, until=10 * formal.consensus.time)
+    assert run.consensus.label == formal.consensus.label == "X"
+    assert run.consensus.time == pytest.approx(formal.consensus.time, rel=0.02)
+    left = imp.fuel_remaining(run.values[-1] * molecules_per_unit(imp.network))
+    assert min(left.values()) > 0.99  # derived: a decision uses ~ firings / (1000 n) of each
