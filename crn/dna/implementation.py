@@ -23,6 +23,8 @@ later step releases it.
 
 from __future__ import annotations
 
+import math
+from collections import Counter
 from collections.abc import Mapping
 from dataclasses import dataclass, field
 
@@ -33,7 +35,8 @@ from ..network import MAX_COUNT, Network, Reaction
 from ..protocol import is_identifier
 from .parameters import DnaParameterError, DnaParameters
 
-__all__ = ["ROLES", "Implementation", "Module", "Builder"]
+__all__ = ["ROLES", "Implementation", "Module", "Builder", "formal_reactions", "signal_strands",
+           "add_strands", "buffer_modules", "order_reactants"]
 
 #: The roles an implementation species can have, in display order.
 ROLES = ("signal", "fuel", "intermediate", "waste")
@@ -249,3 +252,60 @@ class Builder:
 def format_reaction(reactants: Mapping[str, int], products: Mapping[str, int]) -> str:
     """``A + B -> C`` for two multisets."""
     return str(Reaction(dict(reactants), dict(products), 0.0))
+
+
+def formal_reactions(formal: Network, scheme: str):
+    """Formal reactions that do something, checked for order (one or two reactants)."""
+    out = []
+    for i, r in enumerate(formal.reactions()):
+        if r.rate == 0 or dict(r.reactants) == dict(r.products):
+            continue
+        if r.order not in (1, 2):
+            raise CRNError(f"formal reaction {i + 1} ({r}) has {r.order} reactants; the {scheme} "
+                           f"scheme implements reactions with one or two reactants")
+        out.append((i, r))
+    return out
+
+
+def signal_strands(side) -> dict[str, int]:
+    """The signal strands of a multiset of formal species (one ``X_strand`` per molecule)."""
+    return {f"{s}_strand": m for s, m in side.items()}
+
+
+def add_strands(*parts) -> dict[str, int]:
+    """Sum strand multisets."""
+    total = Counter()
+    for part in parts:
+        total.update(part)
+    return dict(total)
+
+
+def order_reactants(formal: Network, reactants: Mapping[str, int],
+                    load: dict[str, float]) -> tuple[str, str]:
+    """First and second reactant of a bimolecular reaction: the first is the one with the
+    smaller first-step load so far (ties: network order), which keeps the largest load,
+    and so the buffering every species needs, small."""
+    names = sorted(reactants, key=lambda s: (load[s], formal.index[s]))
+    return names[0], names[1] if len(names) > 1 else names[0]
+
+
+def buffer_modules(b: Builder, load: dict[str, float], q_max: float) -> None:
+    """Buffering modules: every formal species sequestered at the same total first-step rate."""
+    top = max(load.values(), default=0.0)
+    if top <= 0:
+        return
+    for x, s in load.items():
+        missing = top - s
+        if missing <= top * 1e-12:
+            continue
+        parts = max(1, math.ceil(missing / q_max * (1 - 1e-12)))
+        for j in range(parts):
+            tag = f"{x}_{j + 1}" if parts > 1 else x
+            bottom, top_strand = f"buf_{tag}_bottom", f"buf_{tag}_top"
+            gate = b.add(f"LS_{tag}", "fuel", {bottom: 1, top_strand: 1})
+            buffer = b.add(f"BS_{tag}", "fuel", {top_strand: 1})
+            held = b.add(f"HS_{tag}", "intermediate", {bottom: 1, f"{x}_strand": 1})
+            b.react({x: 1, gate: 1}, {held: 1, buffer: 1}, missing / parts)
+            b.react({held: 1, buffer: 1}, {x: 1, gate: 1}, q_max)
+            b.modules.append(Module(formal=None, buffers=x, species=(gate, buffer, held),
+                                    fuel_per_firing={}))

@@ -9,12 +9,14 @@ from ..network import Network
 from .implementation import Implementation
 from .parameters import DnaParameters
 from .ssw import implement_ssw
+from .two_domain import implement_two_domain
 
 __all__ = ["SCHEMES", "implement"]
 
 #: Scheme name -> function ``(formal, params) -> Implementation``.
 SCHEMES: dict[str, Callable[[Network, DnaParameters], Implementation]] = {
     "ssw": implement_ssw,
+    "two-domain": implement_two_domain,
 }
 
 

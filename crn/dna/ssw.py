@@ -43,39 +43,20 @@ strand and the translator bottom strand.
 
 from __future__ import annotations
 
-import math
-from collections import Counter
-
-from ..errors import CRNError
 from ..network import Network
-from .implementation import Builder, Implementation, Module
+from .implementation import (
+    Builder,
+    Implementation,
+    Module,
+    add_strands,
+    buffer_modules,
+    formal_reactions,
+    order_reactants,
+    signal_strands,
+)
 from .parameters import DnaParameters
 
 __all__ = ["implement_ssw"]
-
-
-def _formal_reactions(formal: Network, scheme: str):
-    """Formal reactions that do something, checked for order (one or two reactants)."""
-    out = []
-    for i, r in enumerate(formal.reactions()):
-        if r.rate == 0 or dict(r.reactants) == dict(r.products):
-            continue
-        if r.order not in (1, 2):
-            raise CRNError(f"formal reaction {i + 1} ({r}) has {r.order} reactants; the {scheme} "
-                           f"scheme implements reactions with one or two reactants")
-        out.append((i, r))
-    return out
-
-
-def _signal_strands(side) -> dict[str, int]:
-    return {f"{s}_strand": m for s, m in side.items()}
-
-
-def _add_strands(*parts) -> dict[str, int]:
-    total = Counter()
-    for part in parts:
-        total.update(part)
-    return dict(total)
 
 
 def implement_ssw(formal: Network, params: DnaParameters) -> Implementation:
@@ -105,7 +86,7 @@ def implement_ssw(formal: Network, params: DnaParameters) -> Implementation:
     b = Builder(formal, params, "ssw")
     p = params
     q_max, c_max = p.q_max, p.fuel_molar
-    reactions = _formal_reactions(formal, "ssw")
+    reactions = formal_reactions(formal, "ssw")
     load = {s: 0.0 for s in formal.species}  # first-step rate total of each species (/M/s)
     for i, r in reactions:
         tag = f"r{i + 1}"
@@ -123,9 +104,7 @@ def implement_ssw(formal: Network, params: DnaParameters) -> Implementation:
             first_gate, first_extra = gate, {}
         else:
             b.check_displacement(k, what)
-            names = sorted(r.reactants, key=lambda s: (load[s], formal.index[s]))
-            x1 = names[0]
-            x2 = names[1] if len(names) > 1 else names[0]
+            x1, x2 = order_reactants(formal, r.reactants, load)
             load[x1] += k
             q = k
             buffer_top = f"{tag}_buffer_top"
@@ -133,7 +112,7 @@ def implement_ssw(formal: Network, params: DnaParameters) -> Implementation:
             buffer = b.add(f"B_{tag}", "fuel", {buffer_top: 1})
             held = b.add(f"H_{tag}", "intermediate", {bottom: 1, f"{x1}_strand": 1, out_top: 1})
             used = b.add(f"W_{tag}", "waste",
-                         _add_strands({bottom: 1}, _signal_strands(r.reactants)))
+                         add_strands({bottom: 1}, signal_strands(r.reactants)))
             first_gate, first_extra = gate, {buffer: 1}
         has_products = bool(r.products)
         out = b.add(f"O_{tag}", "intermediate" if has_products else "waste", {out_top: 1})
@@ -148,43 +127,18 @@ def implement_ssw(formal: Network, params: DnaParameters) -> Implementation:
         if has_products:
             t_bottom = f"{tag}_translator_bottom"
             translator = b.add(f"T_{tag}", "fuel",
-                               _add_strands({t_bottom: 1}, _signal_strands(r.products)))
+                               add_strands({t_bottom: 1}, signal_strands(r.products)))
             spent = b.add(f"WT_{tag}", "waste", {t_bottom: 1, out_top: 1})
-            b.react({out: 1, translator: 1}, _add_strands(r.products, {spent: 1}), q_max)
+            b.react({out: 1, translator: 1}, add_strands(r.products, {spent: 1}), q_max)
             fuel_used[translator] = 1
             module += [translator, spent]
             if p.leak > 0:
                 leaked = b.add(f"WL_{tag}", "waste",
                                {bottom: 1, out_top: 1, t_bottom: 1})
                 b.react({first_gate: 1, translator: 1},
-                        _add_strands(r.products, first_extra, {leaked: 1}), p.leak, leak=True)
+                        add_strands(r.products, first_extra, {leaked: 1}), p.leak, leak=True)
                 module.append(leaked)
         b.modules.append(Module(formal=i, buffers=None, species=tuple(module),
                                 fuel_per_firing=fuel_used))
-    _buffer(b, load, q_max)
+    buffer_modules(b, load, q_max)
     return b.build()
-
-
-def _buffer(b: Builder, load: dict[str, float], q_max: float) -> None:
-    """Buffering modules: every formal species sequestered at the same total first-step rate."""
-    top = max(load.values(), default=0.0)
-    if top <= 0:
-        return
-    for x, s in load.items():
-        missing = top - s
-        if missing <= top * 1e-12:
-            continue
-        parts = max(1, math.ceil(missing / q_max * (1 - 1e-12)))
-        for j in range(parts):
-            tag = f"{x}_{j + 1}" if parts > 1 else x
-            bottom, top_strand = f"buf_{tag}_bottom", f"buf_{tag}_top"
-            gate = b.add(f"LS_{tag}", "fuel", {bottom: 1, top_strand: 1})
-            buffer = b.add(f"BS_{tag}", "fuel", {top_strand: 1})
-            held = b.add(f"HS_{tag}", "intermediate", {bottom: 1, f"{x}_strand": 1})
-            b.react({x: 1, gate: 1}, {held: 1, buffer: 1}, missing / parts)
-            b.react({held: 1, buffer: 1}, {x: 1, gate: 1}, q_max)
-            b.modules.append(Module(formal=None, buffers=x, species=(gate, buffer, held),
-                                    fuel_per_firing={}))
-
-
-
