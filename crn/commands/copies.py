@@ -75,8 +75,7 @@ def copies(model, sets, gap_fraction, gap, risk, deadline, concentration, volume
     DNA implementation, beside the formal answer: more copies, a later decision, or no
     droplet size at all and why (fuel runs out, leak dominates)."""
     settings = dna_settings(implement, fuel=fuel, max_rate=max_rate, toehold=toehold,
-                            leak=leak, rate=rate, concentration=concentration,
-                            concentration_optional=volume is not None and concentration is None)
+                            leak=leak, rate=rate, concentration=concentration)
     if (gap_fraction is None) == (gap is None):
         raise CRNError("give exactly one of --gap-fraction and --gap")
     if concentration is not None and volume is not None:

@@ -17,8 +17,7 @@ __all__ = ["implement_option", "dna_options", "dna_only_options", "dna_settings"
            "implementation_json", "format_fuel", "DNA_OPTIONS"]
 
 #: DNA parameter options (keyword name -> option as typed).
-DNA_OPTIONS = {"fuel": "--fuel", "max_rate": "--max-rate", "toehold": "--toehold",
-               "leak": "--leak", "rate": "--rate", "concentration": "--concentration"}
+DNA_OPTIONS = _options.DNA_OPTION_NAMES
 
 
 def implement_option(func):
@@ -31,94 +30,28 @@ def implement_option(func):
 
 
 def dna_only_options(func):
-    """The DNA options a command without its own ``--rate``/``--concentration`` lacks:
-    ``--fuel``, ``--max-rate``, ``--toehold``, ``--leak``."""
-    opts = [
-        click.option("--fuel", default=None, metavar="C",
-                     help="With --implement: concentration of each fuel/gate species, e.g. "
-                          "1uM (default 100 times the signal concentration)."),
-        click.option("--max-rate", "max_rate", default=None, metavar="K",
-                     help="With --implement: largest strand-displacement rate constant, "
-                          "e.g. 6e6/M/s (default from the toehold)."),
-        click.option("--toehold", type=int, default=None, metavar="NT",
-                     help="With --implement: toehold length in nucleotides (instead of "
-                          "--max-rate)."),
-        click.option("--leak", default=None, metavar="K",
-                     help="With --implement: leak rate constant of the gates, e.g. 10/M/s "
-                          "(default 0)."),
-    ]
-    for option in reversed(opts):
-        func = option(func)
-    return func
+    """``--fuel``, ``--max-rate``, ``--toehold``, ``--leak`` for a command that has its own
+    ``--rate`` and ``--concentration`` (``copies``)."""
+    return _options.dna_options(func, scale=False)
 
 
 def dna_options(func):
-    """All DNA parameter options, ``--rate`` and ``--concentration`` included.
-
-    Uses :func:`crn.commands.options.dna_options` when that exists (the
-    ``crn implement`` command's own), so every command spells them alike.
-    """
-    shared = getattr(_options, "dna_options", None)
-    if shared is not None:
-        return shared(func)
-    func = dna_only_options(func)
-    func = click.option("--concentration", default=None, metavar="C",
-                        help="With --implement: total signal concentration the population "
-                             "stands for, e.g. 10nM.")(func)
-    return click.option("--rate", default=None, metavar="K",
-                        help="With --implement: rate constant one unit of formal rate stands "
-                             "for, e.g. 1e6/M/s.")(func)
+    """All DNA parameter options, ``--rate`` and ``--concentration`` included (as
+    ``crn implement`` spells them: :func:`crn.commands.options.dna_options`)."""
+    return _options.dna_options(func)
 
 
-def _leak(text: str) -> float:
-    from ..units import parse_rate_constant
-
-    try:
-        return parse_rate_constant(text)
-    except CRNError:
-        number = text.strip().split("/")[0].split()[0] if text.strip() else text
-        try:
-            zero = float(number) == 0.0
-        except ValueError:
-            zero = False
-        if zero:
-            if text.strip() != number:
-                parse_rate_constant("1" + text.strip()[len(number):])  # the unit must be valid
-            return 0.0
-        raise
-
-
-def _parse(name: str, text):
-    from ..units import parse_concentration, parse_rate_constant
-
-    if text is None:
-        return None
-    try:
-        if name in ("fuel", "concentration"):
-            return parse_concentration(text)
-        if name == "leak":
-            return _leak(text)
-        if name == "toehold":
-            return int(text)
-        return parse_rate_constant(text)
-    except CRNError as err:
-        raise CRNError(f"{DNA_OPTIONS[name]}: {err}") from None
-
-
-def dna_settings(implement: str | None, *, concentration_optional: bool = False, **given):
+def dna_settings(implement: str | None, **given):
     """Check ``--implement`` and the DNA options; return ``(scheme, DnaParameters)`` or None.
 
     Parameters
     ----------
     implement : str or None
         The scheme given to ``--implement``.
-    concentration_optional : bool
-        When True a missing ``--concentration`` is allowed (``copies --volume``:
-        the concentration follows n); a placeholder of 1 M is used and the
-        caller replaces it per cell.
     **given
         The DNA options as typed (text), by keyword name (``fuel``,
-        ``max_rate``, ``toehold``, ``leak``, ``rate``, ``concentration``).
+        ``max_rate``, ``toehold``, ``leak``, ``rate``, ``concentration``);
+        ``rate`` and ``concentration`` default as in ``crn implement``.
 
     Returns
     -------
@@ -127,47 +60,21 @@ def dna_settings(implement: str | None, *, concentration_optional: bool = False,
 
     Raises
     ------
-    CRNError
+    CRNError or click.BadParameter
         One line naming the option: a DNA option without ``--implement``, an
-        unknown scheme, a missing ``--rate`` or ``--concentration``, or a value
-        out of range.
+        unknown scheme, or a value out of range.
     """
     if implement is None:
         for name in ("fuel", "max_rate", "toehold", "leak"):
             if given.get(name) is not None:
                 raise CRNError(f"{DNA_OPTIONS[name]} needs --implement SCHEME")
         return None
-    from ..dna import SCHEMES, DnaParameterError, DnaParameters
+    from ..dna import SCHEMES
 
     if implement not in SCHEMES:
         raise CRNError(f"--implement: unknown scheme {implement!r}; choose "
                        f"{', '.join(SCHEMES)}")
-    values = {name: _parse(name, text) for name, text in given.items()}
-    if values.get("rate") is None:
-        raise CRNError("--implement needs --rate (the rate constant one unit of formal rate "
-                       "stands for, e.g. 1e6/M/s)")
-    if values.get("concentration") is None:
-        if not concentration_optional:
-            raise CRNError("--implement needs --concentration (the total signal concentration "
-                           "the population stands for, e.g. 10nM)")
-        values["concentration"] = None
-    leak = values.pop("leak", None)
-    try:
-        params = DnaParameters(
-            rate=values["rate"],
-            concentration=values["concentration"] if values["concentration"] is not None
-            else _placeholder(values),
-            fuel=values.get("fuel"), max_rate=values.get("max_rate"),
-            toehold=values.get("toehold"), leak=0.0 if leak is None else leak)
-    except DnaParameterError as err:
-        raise CRNError(f"{DNA_OPTIONS.get(err.field, err.field)}: {err}") from None
-    return implement, params
-
-
-def _placeholder(values) -> float:
-    # below any given fuel, so the fuel check passes until the real concentration is set
-    fuel = values.get("fuel")
-    return 1e-9 if fuel is None else fuel / 10.0
+    return implement, _options.dna_parameters(**given)
 
 
 def implementation_errors(func, *args, **kwargs):
