@@ -26,15 +26,89 @@ import numpy as np
 from .network import Network
 from .units import AVOGADRO
 
-__all__ = ["ImplementedCells", "implementation_of", "fuel_left_ode", "fuel_left_runs",
+__all__ = ["ImplementedCells", "implementation_of", "decision_network", "held_labels", "fuel_left_ode", "fuel_left_runs",
            "formal_horizon", "Diagnosis", "diagnose", "FUEL_OUT"]
 
 #: A fuel species with less than this fraction left counts as run out.
 FUEL_OUT = 0.05
 
 
+def held_labels(impl) -> dict[str, int]:
+    """Label index each intermediate species reports: what it holds, in formal terms.
+
+    The rule (the same formal state the intermediate stands for): an
+    intermediate that carries strands of signal species (a signal bound
+    reversibly to a gate, or sequestered by a buffering module) reports their
+    common label; one that carries none (a committed output waiting for its
+    translator) reports the common label of its formal reaction's products.
+    Mixed labels, or a species that reports nothing, give -1 (blocks consensus,
+    as the formal species would); a reaction without products keeps the
+    intermediate ignored. So a configuration of the implementation is in
+    consensus exactly when the formal configuration it stands for is, and the
+    last minority molecule held in a gate still counts.
+
+    Parameters
+    ----------
+    impl : crn.dna.Implementation
+
+    Returns
+    -------
+    dict of str to int
+        Intermediate species -> label index (into ``impl.network.labels``), -1
+        for none, :data:`crn.network.IGNORED` to keep it ignored.
+    """
+    from .network import IGNORED
+
+    formal = impl.formal
+    net = impl.network
+    strand_of = {f"{s}_strand": s for s in formal.species}
+    module_of = {}
+    for module in impl.modules:
+        for s in module.species:
+            module_of[s] = module
+
+    def common(species) -> int:
+        labels = {int(net.species_label[net.index[s]]) for s in species}
+        return labels.pop() if len(labels) == 1 else -1
+
+    out = {}
+    for s, role in impl.roles.items():
+        if role != "intermediate":
+            continue
+        held = [strand_of[k] for k in impl.strands.get(s, {}) if k in strand_of]
+        if held:
+            out[s] = common(held)
+            continue
+        module = module_of.get(s)
+        if module is None or module.formal is None:
+            continue
+        products = formal.reaction(module.formal).products
+        out[s] = common(products) if products else IGNORED
+    return out
+
+
+def decision_network(impl) -> Network:
+    """``impl.network`` with its intermediates labelled by :func:`held_labels`.
+
+    The network every analysis runs on: decisions are read from the signal
+    species and from the signals the gates hold, so a minority molecule
+    momentarily inside a gate does not let a run reach a false consensus.
+    """
+    import dataclasses as _dc
+
+    net = impl.network
+    labels = np.array(net.species_label, dtype=np.int64)
+    for s, k in held_labels(impl).items():
+        labels[net.index[s]] = k
+    labels.flags.writeable = False
+    return _dc.replace(net, species_label=labels)
+
+
 def implementation_of(formal: Network, scheme: str, params):
-    """Implement one formal network in DNA (:func:`crn.dna.implement`).
+    """Implement one formal network in DNA (:func:`crn.dna.implement`), for analysis.
+
+    The returned implementation's ``network`` is :func:`decision_network`'s:
+    intermediates report what they hold.
 
     Parameters
     ----------
@@ -49,7 +123,8 @@ def implementation_of(formal: Network, scheme: str, params):
     """
     from .dna import implement
 
-    return implement(formal, scheme, params)
+    impl = implement(formal, scheme, params)
+    return dataclasses.replace(impl, network=decision_network(impl))
 
 
 @dataclass(frozen=True)
@@ -166,9 +241,10 @@ class Diagnosis:
     reason : str
         ``decides`` (the implementation's mean field reaches the correct
         consensus by the deadline), ``fuel runs out`` (some fuel species falls
-        below :data:`FUEL_OUT` before a decision), ``leak dominates`` (without
-        the leak it would decide; with it the minority is produced faster than
-        it is removed), ``too slow`` (no decision by the deadline with fuel
+        below :data:`FUEL_OUT` before a decision, and the leak is not to
+        blame), ``leak dominates`` (without the leak it would decide; with it
+        minority signal is made faster than it is removed, and the leak burns
+        fuel as it goes), ``too slow`` (no decision by the deadline with fuel
         left and no leak to blame) or ``formal fails`` (the formal network
         itself does not decide correctly by the deadline).
     formal_time, time : float or None
@@ -249,13 +325,13 @@ def diagnose(formal: Network, scheme: str, params, until: float) -> Diagnosis:
         return Diagnosis("decides", **common)
     if not formal_ok:
         return Diagnosis("formal fails", **common)
-    if left and min(left.values()) < FUEL_OUT:
-        return Diagnosis("fuel runs out", **common)
     if float(params.leak) > 0:
         clean = implementation_of(formal, scheme, dataclasses.replace(params, leak=0.0))
         without = _decides(clean.network, until).consensus
         if without.label is not None and (truth is None or without.label == truth):
             return Diagnosis("leak dominates", time_without_leak=without.time, **common)
+    if left and min(left.values()) < FUEL_OUT:
+        return Diagnosis("fuel runs out", **common)
     return Diagnosis("too slow", **common)
 
 
