@@ -26,7 +26,8 @@ import numpy as np
 from .network import Network
 from .units import AVOGADRO
 
-__all__ = ["ImplementedCells", "implementation_of", "decision_network", "held_labels", "fuel_left_ode", "fuel_left_runs",
+__all__ = ["ImplementedCells", "implementation_of", "decision_network", "held_labels",
+           "fuel_left_ode", "fuel_left_runs",
            "formal_horizon", "Diagnosis", "diagnose", "FUEL_OUT"]
 
 #: A fuel species with less than this fraction left counts as run out.
