@@ -9,8 +9,9 @@ from .copies import copies
 from .exact import exact
 from .ode import ode
 from .regimes import regimes
+from .report import report
 from .ssa import ssa
 from .translate import translate
 from .verify import verify
 
-COMMANDS = [translate, check, exact, verify, ode, ssa, compare, regimes, copies]
+COMMANDS = [translate, check, exact, verify, ode, ssa, compare, regimes, copies, report]
