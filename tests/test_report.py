@@ -235,3 +235,36 @@ def test_report_renders_in_a_real_browser(small_report, tmp_path):
     assert tables and all(n > 0 for n in tables)
     assert headings == [heading for _, heading in SECTIONS]
     assert shot.stat().st_size > 10_000
+
+
+def test_report_shows_the_dna_implementation(tmp_path):
+    """With --implement the network section adds the implementation's roles and fuel."""
+    from crn.dna import DnaParameters, implement
+
+    out = tmp_path / "dna.html"
+    result = CliRunner().invoke(cli, [
+        "report", str(AM), "--set", "n=20", "--set", "gap=2", "--runs", "10", "--regime-n", "",
+        "--implement", "ssw", "--fuel", "1uM", "--leak", "10/M/s", "--rate", "1e6/M/s",
+        "--concentration", "10nM", "--seed", "3", "-o", str(out)], catch_exceptions=False)
+    assert result.exit_code == 0, result.output
+    html = out.read_text()
+    impl = implement(load(str(AM), ["n=20", "gap=2"]).network, "ssw",
+                     DnaParameters(rate=1e6, concentration=10e-9, fuel=1e-6, leak=10.0))
+    assert "DNA implementation (ssw scheme)" in html
+    assert f"{impl.network.n_species} species and {impl.network.n_reactions} reactions" in html
+    for species in impl.fuel:
+        assert f"<tr><td>{species}</td><td class=\"num\">1 µM</td></tr>" in html \
+            or f"<tr><td>{species}</td><td class=\"num\">1 uM</td></tr>" in html
+    page = _Page()
+    page.feed(html)
+    assert all(t["th"] > 0 and t["caption"] for t in page.tables)
+
+
+def test_report_refuses_a_bad_dna_option(tmp_path, capsys):
+    from crn.cli import main
+
+    code = main(["report", str(AM), "--implement", "ssw", "--fuel", "-1uM", "--runs", "0",
+                 "--regime-n", "", "-o", str(tmp_path / "r.html")])
+    assert code == 2
+    err = capsys.readouterr().err.strip()
+    assert "--fuel" in err and len(err.splitlines()) == 1

@@ -12,6 +12,9 @@ import click
 from ..errors import CRNError
 from .options import (
     OUTPUT_FILE,
+    build_implementation,
+    dna_options,
+    dna_parameters,
     emit_json,
     json_option,
     model_argument,
@@ -101,10 +104,15 @@ def _ints(text, what):
               help="Total strand concentration of the copies answer, e.g. 10nM.")
 @click.option("--workers", type=click.IntRange(min=1), default=1, show_default=True,
               help="Processes for the regime map.")
+@click.option("--implement", "scheme", type=click.Choice(["ssw", "two-domain"]), default=None,
+              help="Also show the DNA strand-displacement implementation (with the options "
+                   "below, --rate and --concentration) with its fuel and leak.")
+@dna_options(scale=False)
 @seed_option
 @json_option
 def report(model, sets, output, from_dir, runs, regime_n, regime_gap_fraction, regime_runs_max,
-           risk, gap_fraction, deadline, rate, concentration, workers, seed, as_json):
+           risk, gap_fraction, deadline, rate, concentration, workers, scheme, fuel, max_rate,
+           toehold, leak, seed, as_json):
     """Write one self-contained HTML page on MODEL: the model as written, its reaction network,
     mean field with fixed points, stochastic runs with bands next to the ODE, exact results
     when small, the regime map, the copies answer, cautions and the commands that reproduce
@@ -128,6 +136,12 @@ def report(model, sets, output, from_dir, runs, regime_n, regime_gap_fraction, r
         raise CRNError("--deadline needs --rate and --concentration (to convert it into "
                        "parallel time)")
     loaded, networks = cell_networks(model, sets)
+    implementation = None
+    if scheme is not None:
+        params = dna_parameters(rate=rate, concentration=concentration, fuel=fuel,
+                                max_rate=max_rate, toehold=toehold, leak=leak)
+        implementation = build_implementation(loaded.network, scheme, params,
+                                              option="--implement")
     try:
         text = Path(model).read_text(encoding="utf-8")
     except (OSError, UnicodeDecodeError) as err:
@@ -142,7 +156,7 @@ def report(model, sets, output, from_dir, runs, regime_n, regime_gap_fraction, r
 
         data = collect_report(loaded, model_text=text, model_file=Path(model).name,
                               sets=sets or (), networks=networks, settings=settings,
-                              saved=saved, progress=step)
+                              saved=saved, implementation=implementation, progress=step)
     line = " ".join(shlex.quote(a) for a in ["crn", *sys.argv[1:]]) \
         if Path(sys.argv[0]).name in ("crn", "__main__.py") else ""
     html = render_report(data, command_line=line)

@@ -89,6 +89,9 @@ class ReportData:
     disagreement: tuple | None = None
     exact: Any = None
     exact_note: str = ""
+    implementation: Any = None
+    fuel_budget: Any = None
+    fuel_inventory: Any = None
     regimes: Any = None
     regimes_source: str = ""
     copies: dict | None = None
@@ -99,7 +102,7 @@ class ReportData:
 
 def collect_report(model, *, model_text: str, model_file: str, sets=(), networks=None,
                    settings: ReportSettings | None = None, saved: dict | None = None,
-                   progress=None) -> ReportData:
+                   implementation=None, progress=None) -> ReportData:
     """Run the analyses a report shows.
 
     Parameters
@@ -120,6 +123,9 @@ def collect_report(model, *, model_text: str, model_file: str, sets=(), networks
         Results already at hand, used instead of recomputing: ``"regimes"`` (a
         :class:`~crn.regimes.RegimeMap` or the ``crn regimes --json`` object) and
         ``"copies"`` (the ``crn copies --json`` object).
+    implementation : crn.dna.Implementation, optional
+        The DNA implementation of the model's network, shown beside the formal
+        network with its fuel budget.
     progress : callable(str), optional
         Called with the name of each analysis as it starts.
 
@@ -141,6 +147,13 @@ def collect_report(model, *, model_text: str, model_file: str, sets=(), networks
                       model_sha256=hashlib.sha256(model_text.encode("utf-8")).hexdigest(),
                       settings=settings, sets=tuple(sets), seed_entropy=int(root.entropy))
     base = ["crn", "{cmd}", model_file, *[f"--set {s}" for s in sets]]
+    if implementation is not None:
+        from ..dna.budget import decision_fuel, inventory
+
+        step("DNA implementation")
+        data.implementation = implementation
+        data.fuel_budget = decision_fuel(implementation)
+        data.fuel_inventory = inventory(implementation)
 
     def command(name, *extra):
         data.commands.append(" ".join(base).replace("{cmd}", name) + "".join(

@@ -75,6 +75,26 @@ def _complex(z) -> str:
     return f"{z.real:.3g}{z.imag:+.3g}i"
 
 
+def _implementation_view(data):
+    impl = data.implementation
+    if impl is None:
+        return None
+    from ..io.implementation import implementation_to_text
+    from ..units import format_concentration
+
+    roles = {}
+    for species, role in impl.roles.items():
+        roles.setdefault(role, []).append(species)
+    return {"scheme": impl.scheme,
+            "text": implementation_to_text(impl, data.fuel_budget, data.fuel_inventory),
+            "species": impl.network.n_species, "reactions": impl.network.n_reactions,
+            "roles": [{"role": r, "count": len(v), "names": ", ".join(v)}
+                      for r, v in sorted(roles.items())],
+            "fuel": [{"species": s, "concentration": format_concentration(c)}
+                     for s, c in impl.fuel.items()],
+            "leak": _g(impl.params.leak)}
+
+
 def _outcome_rows(ensemble, labels):
     from ..stats import wilson_interval
 
@@ -157,6 +177,7 @@ def render_report(data, *, command_line: str = "", created: str | None = None) -
         "overrides": list(data.sets),
         "network_text": network_to_text(net),
         "network_rows": _network_rows(net),
+        "implementation": _implementation_view(data),
         "species": list(net.species),
         "initial": {s: int(x) for s, x in zip(net.species, net.initial, strict=True)},
         "volume": _g(net.volume),
