@@ -4,12 +4,11 @@ from __future__ import annotations
 
 import click
 
-from ..errors import CRNError
 from ..io.atomic import write_atomic
 from ..io.exports import FORMATS
 from .options import (
     OUTPUT_FILE,
-    dna_errors,
+    build_implementation,
     dna_options,
     dna_parameters,
     emit_json,
@@ -44,7 +43,6 @@ def implement(model, sets, scheme, fuel, max_rate, toehold, leak, rate, concentr
     The summary line counts fuel complexes and strands per formal reaction and
     compares the fuel a decision consumes with the fuel supplied.
     """
-    from ..dna import implement as build
     from ..dna.budget import decision_fuel, inventory
     from ..io.exports import export_network
     from ..io.implementation import implementation_to_dict, implementation_to_text
@@ -54,13 +52,7 @@ def implement(model, sets, scheme, fuel, max_rate, toehold, leak, rate, concentr
     params = dna_parameters(rate=rate, concentration=concentration, fuel=fuel,
                             max_rate=max_rate, toehold=toehold, leak=leak)
     formal = load(model, sets).network
-    with dna_errors():
-        try:
-            impl = build(formal, scheme, params)
-        except CRNError as err:
-            if hasattr(err, "field"):
-                raise
-            raise CRNError(f"--scheme {scheme}: {err}") from None
+    impl = build_implementation(formal, scheme, params)
     budget, inv = decision_fuel(impl), inventory(impl)
     fmt = fmt or "text"
     if fmt == "text":

@@ -88,11 +88,18 @@ def implementation_errors(func, *args, **kwargs):
 
 
 def implement_network(formal, settings):
-    """The :class:`crn.dna.Implementation` of ``formal`` for ``(scheme, params)``."""
-    from ..implemented import implementation_of
+    """The :class:`crn.dna.Implementation` of ``formal`` for ``(scheme, params)``, for analysis.
+
+    Errors name ``--implement SCHEME`` or the parameter's option; the network's
+    intermediates report what they hold (:func:`crn.implemented.decision_network`).
+    """
+    import dataclasses
+
+    from ..implemented import decision_network
 
     scheme, params = settings
-    return implementation_errors(implementation_of, formal, scheme, params)
+    impl = _options.build_implementation(formal, scheme, params, option="--implement")
+    return dataclasses.replace(impl, network=decision_network(impl))
 
 
 def implementation_json(impl) -> dict:

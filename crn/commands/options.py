@@ -13,7 +13,8 @@ from ..model import parse_overrides
 
 __all__ = ["model_argument", "set_option", "seed_option", "json_option", "load", "emit_json",
            "progress_bar", "to_jsonable", "OUTPUT_FILE", "dna_options", "dna_parameters",
-           "dna_errors", "DNA_OPTION_NAMES", "DEFAULT_DNA_RATE", "DEFAULT_DNA_CONCENTRATION"]
+           "dna_errors", "build_implementation", "DNA_OPTION_NAMES", "DEFAULT_DNA_RATE",
+           "DEFAULT_DNA_CONCENTRATION"]
 
 
 def model_argument(func):
@@ -361,3 +362,34 @@ def dna_errors():
             raise _bad(DNA_OPTION_NAMES.get(err.field, err.field), str(err)) from None
 
     return guard()
+
+
+def build_implementation(formal, scheme: str, params, option: str = "--scheme"):
+    """:func:`crn.dna.implement` with command-line errors.
+
+    An impossible parameter becomes a usage error naming its option; a formal
+    reaction the scheme cannot build becomes a one-line error starting with
+    ``OPTION SCHEME:`` (``--scheme ssw:`` here, ``--implement ssw:`` elsewhere).
+
+    Parameters
+    ----------
+    formal : Network
+    scheme : str
+    params : DnaParameters
+    option : str, default "--scheme"
+        The option that chose the scheme, named in the error.
+
+    Returns
+    -------
+    Implementation
+    """
+    from ..dna import DnaParameterError, implement
+    from ..errors import CRNError
+
+    with dna_errors():
+        try:
+            return implement(formal, scheme, params)
+        except DnaParameterError:
+            raise
+        except CRNError as err:
+            raise CRNError(f"{option} {scheme}: {err}") from None

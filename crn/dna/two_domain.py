@@ -105,7 +105,7 @@ def implement_two_domain(formal: Network, params: DnaParameters) -> Implementati
         join = b.add(f"J_{tag}", "fuel", {j_bot: 1, s_r1: 1, s_r2: 1, s_a: 1})
         r1 = b.add(f"R1_{tag}", "fuel", {s_r1: 1})
         j1 = b.add(f"J1_{tag}", "intermediate", {j_bot: 1, f"{x1}_strand": 1, s_r2: 1, s_a: 1})
-        r2 = b.add(f"R2_{tag}", "waste", {s_r2: 1})
+        r2 = b.add(f"R2_{tag}", "intermediate", {s_r2: 1})
         j2 = b.add(f"J2_{tag}", "intermediate",
                    add_strands({j_bot: 1, s_a: 1}, {f"{x1}_strand": 1}, {f"{x2}_strand": 1}))
         hj = b.add(f"HJ_{tag}", "fuel", {s_hj: 1})
