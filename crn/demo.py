@@ -254,6 +254,7 @@ def run_demo(out, *, quick: bool = False, seed: int = 20261201, workers: int = 2
     echo("  These wet-lab numbers are model predictions (ideal mass-action kinetics, no leak or "
          "strand loss): validate them with your lab's own controls and follow its safety "
          "practice.")
+    dna = _dna(out, net, s, rate, deadline_s, quick, root, echo)
     elapsed = time.perf_counter() - started
     echo(f"\nFigures and tables in {out}/ (ode_vs_stochastic.png, regime_map.png, "
          f"feasibility.png, regime_map.csv, feasibility.csv, summary.json, report.html); "
@@ -263,6 +264,7 @@ def run_demo(out, *, quick: bool = False, seed: int = 20261201, workers: int = 2
                "rate_per_molar_second": rate, "compare": compare,
                "regimes": {"cells": rmap.table(), "exponent": b.to_dict()},
                "feasibility": rows, "chosen": chosen, "elapsed_seconds": elapsed}
+    summary["dna"] = dna
     summary["report"] = str(_write_report(out, model, rmap, chosen, summary, seeds[0]))
     write_atomic(out / "summary.json", json.dumps(to_jsonable(summary), indent=2) + "\n")
     return summary
@@ -290,6 +292,16 @@ def _write_report(out: Path, model, rmap, chosen, summary, seed) -> Path:
     path = out / "report.html"
     write_atomic(path, render_report(data, command_line="make demo"))
     return path
+
+
+def _dna(out, net, s, rate, deadline_s, quick, root, echo) -> dict:
+    """The DNA-implementation section (crn.demo_dna): fuel, leak, copies on the circuit."""
+    from .demo_dna import dna_section
+
+    gap = gap_for_fraction(s["compare_n"], s["gap_fraction"])
+    return dna_section(out, net, n=s["compare_n"], gap=gap, rate=rate,
+                       deadline_seconds=deadline_s, quick=quick,
+                       seed=root.spawn(1)[0], echo=echo)
 
 
 def _n(value):

@@ -1,0 +1,79 @@
+"""Benchmark: a regime map on the ssw DNA implementation of approximate majority vs the formal map.
+
+The same grid (by default the regime benchmark's: six populations from 1e2 to 1e7
+and eight relative gaps), the same seed and worker count; prints the wall time of
+each map and the ratio implementation / formal (goal: at most 3). The
+implementation has about twelve times the formal species and, at the default
+100-fold fuel, each formal firing takes on the order of 2 x fuel excess exact
+events (the reversible first step cycles against its buffer strand), so a
+reduced grid (``--n``, ``--fractions``) is the practical run on a shared machine.
+
+    python benchmarks/bench_implement.py [--n LIST] [--fractions LIST] [--runs-max R]
+        [--fuel C] [--rate K] [--workers W]
+"""
+
+from __future__ import annotations
+
+import argparse
+import time
+from pathlib import Path
+
+from crn.dna import DnaParameters
+from crn.implemented import ImplementedCells
+from crn.io.models import load_model
+from crn.probes import InitialSplit
+from crn.regimes import regime_map
+from crn.units import parse_concentration, parse_rate_constant
+
+ROOT = Path(__file__).resolve().parent.parent
+NS = [100, 1_000, 10_000, 100_000, 1_000_000, 10_000_000]
+FRACTIONS = [0.0003, 0.001, 0.003, 0.01, 0.02, 0.05, 0.1, 0.3]
+
+
+def run(cells, ns, fractions, runs_max, workers):
+    started = time.perf_counter()
+    result = regime_map(cells, ns, gap_fractions=fractions, runs_max=runs_max, rng=2026,
+                        workers=workers)
+    return time.perf_counter() - started, result
+
+
+def main() -> None:
+    parser = argparse.ArgumentParser(description=__doc__.split("\n")[0])
+    parser.add_argument("--n", default=",".join(str(n) for n in NS))
+    parser.add_argument("--fractions", default=",".join(str(f) for f in FRACTIONS))
+    parser.add_argument("--runs-max", type=int, default=1000)
+    parser.add_argument("--fuel", default=None, help="fuel concentration (default 100x)")
+    parser.add_argument("--rate", default="1e5/M/s")
+    parser.add_argument("--concentration", default="10nM")
+    parser.add_argument("--workers", type=int, default=1)
+    args = parser.parse_args()
+    ns = [int(float(x)) for x in args.n.split(",")]
+    fractions = [float(x) for x in args.fractions.split(",")]
+    net = load_model(ROOT / "models" / "approximate_majority.toml").network
+    formal = InitialSplit(net)
+    params = DnaParameters(rate=parse_rate_constant(args.rate),
+                           concentration=parse_concentration(args.concentration),
+                           fuel=None if args.fuel is None else parse_concentration(args.fuel))
+    cells = ImplementedCells(formal, "ssw", params)
+    impl = cells.implementation(ns[0], ns[0] % 2 or 2)
+    print(f"regime map: approximate majority, n = {ns}, gap fractions {fractions}, "
+          f"runs_max {args.runs_max}, {args.workers} worker(s)")
+    print(f"ssw implementation: {impl.network.n_species} species (formal "
+          f"{net.n_species}), {impl.network.n_reactions} reactions (formal "
+          f"{net.n_reactions}), fuel {params.fuel_molar:.3g} M "
+          f"({params.fuel_molar / params.concentration:.0f}x), rate {params.rate:.3g} /M/s")
+    t_formal, formal_map = run(formal, ns, fractions, args.runs_max, args.workers)
+    print(f"formal map        : {t_formal:9.1f} s "
+          f"({sum(c.method == 'exact' for c in formal_map.cells)} exact cells, "
+          f"{sum(c.runs for c in formal_map.cells)} runs)")
+    t_impl, impl_map = run(cells, ns, fractions, args.runs_max, args.workers)
+    print(f"implementation map: {t_impl:9.1f} s "
+          f"({sum(c.method == 'exact' for c in impl_map.cells)} exact cells, "
+          f"{sum(c.runs for c in impl_map.cells)} runs)")
+    print(f"ratio implementation / formal: {t_impl / t_formal:.1f}   (goal <= 3)")
+    same = sum(a.flag == b.flag for a, b in zip(formal_map.cells, impl_map.cells, strict=True))
+    print(f"cells with the same flag: {same} of {len(impl_map.cells)}")
+
+
+if __name__ == "__main__":
+    main()
