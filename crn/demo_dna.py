@@ -73,8 +73,7 @@ def dna_section(out, net, *, n: int, gap: int, rate: float, deadline_seconds: fl
     from .implemented import formal_ode_horizon, fuel_left_ode, implementation_of
     from .ode import solve_mean_field
     from .probes import InitialSplit, gap_for_fraction
-    from .units import format_concentration, format_time, parse_concentration, \
-        parse_rate_constant
+    from .units import format_concentration, format_time, parse_concentration, parse_rate_constant
 
     s = DNA_SETTINGS["quick" if quick else "full"]
     conc = parse_concentration(s["concentration"])
