@@ -40,8 +40,10 @@ def held_labels(impl) -> dict[str, int]:
     The rule (the same formal state the intermediate stands for): an
     intermediate that carries strands of signal species (a signal bound
     reversibly to a gate, or sequestered by a buffering module) reports their
-    common label; one that carries none (a committed output waiting for its
-    translator) reports the common label of its formal reaction's products.
+    common label; one that carries none but releases signals when it meets a
+    fuel species (a committed output waiting for its translator or fork)
+    reports the common label of its formal reaction's products; any other
+    (a released by-product strand) stays ignored.
     Mixed labels, or a species that reports nothing, give -1 (blocks consensus,
     as the formal species would); a reaction without products keeps the
     intermediate ignored. So a configuration of the implementation is in
@@ -72,6 +74,11 @@ def held_labels(impl) -> dict[str, int]:
         labels = {int(net.species_label[net.index[s]]) for s in species}
         return labels.pop() if len(labels) == 1 else -1
 
+    releases = set()  # intermediates that meet a fuel species and release signals: outputs
+    for r in net.reactions():
+        if any(impl.roles[x] == "fuel" for x in r.reactants) and \
+                any(impl.roles[x] == "signal" for x in r.products):
+            releases.update(x for x in r.reactants if impl.roles[x] == "intermediate")
     out = {}
     for s, role in impl.roles.items():
         if role != "intermediate":
@@ -81,7 +88,7 @@ def held_labels(impl) -> dict[str, int]:
             out[s] = common(held)
             continue
         module = module_of.get(s)
-        if module is None or module.formal is None:
+        if s not in releases or module is None or module.formal is None:
             continue
         products = formal.reaction(module.formal).products
         out[s] = common(products) if products else IGNORED

@@ -322,6 +322,22 @@ def test_a_minority_molecule_held_in_a_gate_still_counts():
     assert net.species_label[net.index["O_r1"]] == -1  # X + B: B reports nothing
 
 
+def test_two_domain_decisions_ignore_released_strands(capsys):
+    """Two-domain (Cardelli 2013): the released top strand <x2 t> (R2) carries no signal and
+    releases none with a fuel, so it stays ignored (it accumulates, one per firing); the
+    join output A, which a fork turns into products, stands for them. So the mean field
+    decides as the formal network does (it would never decide if R2 blocked consensus)."""
+    from crn.network import IGNORED
+
+    cells = ImplementedCells(InitialSplit(_am(100, 20)), "two-domain",
+                             DnaParameters(rate=RATE, concentration=C))
+    net = cells(100, 20)
+    assert net.species_label[net.index["R2_r1"]] == IGNORED
+    assert net.labels[net.species_label[net.index["A_r3"]]] == "X"  # X + B -> 2 X
+    obj = _run_json(capsys, ["ode", AM, "--implement", "two-domain", "--json"])
+    assert obj["consensus"]["label"] == obj["formal_consensus"]["label"] == "X"
+
+
 def test_fuel_left_of_an_ode_solve_is_one_at_the_start():
     cells = ImplementedCells(InitialSplit(_am(50, 10)), "ssw",
                              DnaParameters(rate=RATE, concentration=C))
