@@ -27,6 +27,7 @@ from .network import Network
 from .units import AVOGADRO
 
 __all__ = ["ImplementedCells", "implementation_of", "decision_network", "held_labels",
+           "held_matrix",
            "fuel_left_ode", "fuel_left_runs",
            "formal_horizon", "Diagnosis", "diagnose", "FUEL_OUT"]
 
@@ -92,6 +93,31 @@ def held_labels(impl) -> dict[str, int]:
             continue
         products = formal.reaction(module.formal).products
         out[s] = common(products) if products else IGNORED
+    return out
+
+
+def held_matrix(impl) -> np.ndarray:
+    """Signal strands each implementation species carries while not consumed.
+
+    Returns
+    -------
+    ndarray of float64, shape (n_species, n_formal_species)
+        Row of a signal species: 1 at itself; row of an intermediate: the
+        number of each signal's strands it carries; fuel and waste rows are 0.
+        ``counts @ held_matrix(impl)`` gives each formal species free plus held
+        in gates.
+    """
+    net, formal = impl.network, impl.formal
+    out = np.zeros((net.n_species, formal.n_species))
+    strand_of = {f"{s}_strand": formal.index[s] for s in formal.species}
+    for s, role in impl.roles.items():
+        i = net.index[s]
+        if role == "signal":
+            out[i, formal.index[s]] = 1.0
+        elif role == "intermediate":
+            for k, m in impl.strands.get(s, {}).items():
+                if k in strand_of:
+                    out[i, strand_of[k]] += m
     return out
 
 

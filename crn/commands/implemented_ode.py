@@ -27,6 +27,16 @@ def signal_fractions(impl, result) -> dict[str, np.ndarray]:
     return {s: np.asarray(result.values[:, index[s]]) * scale for s in impl.formal.species}
 
 
+def held_fractions(impl, result) -> dict[str, np.ndarray]:
+    """Each formal species free plus held in gates, in the unit of :func:`signal_fractions`."""
+    from ..implemented import held_matrix
+    from ..ode import molecules_per_unit
+
+    scale = float(result.molecules_per_unit) / molecules_per_unit(impl.formal)
+    totals = np.asarray(result.values) @ held_matrix(impl) * scale
+    return {s: totals[:, i] for i, s in enumerate(impl.formal.species)}
+
+
 def consensus_json(outcome) -> dict | None:
     """``{label, time}`` of a mean-field outcome, None without consensus."""
     return None if outcome.label is None else {"label": outcome.label, "time": outcome.time}
@@ -99,7 +109,8 @@ def run_implemented_ode(loaded, settings, *, until, times, method, plot_file, cs
                               None)
         obj.update(fuel=fuel, implementation=implementation_json(impl),
                    formal_consensus=consensus_json(formal_result.consensus),
-                   signal_fractions=signal_fractions(impl, result))
+                   signal_fractions=signal_fractions(impl, result),
+                   held_fractions=held_fractions(impl, result))
         if answer is not None:
             obj["fuel_needed"] = fuel_answer_json(answer)
         emit_json(obj)
@@ -130,11 +141,15 @@ def _text(name, impl, result, formal_result, fuel, answer) -> str:
              f"{_outcome_text(formal_result.consensus, float(formal_result.times[-1]))}"]
     if result.status < 0:
         lines.append(f"solver       failed: {result.message}")
-    lines.append(f"signals at t = {end:.6g} (fraction of the formal population):")
+    lines.append(f"signals at t = {end:.6g} (fraction of the formal population): free, and "
+                 f"free plus held in gates")
     shares = signal_fractions(impl, result)
+    held = held_fractions(impl, result)
     width = max(len(s) for s in shares)
     for s, v in shares.items():
-        lines.append(f"  {s:<{width}}  {float(v[-1]) if v.size else 0.0:.6g}")
+        last = float(v[-1]) if v.size else 0.0
+        total = float(held[s][-1]) if held[s].size else 0.0
+        lines.append(f"  {s:<{width}}  {last:.6g}  {total:.6g}")
     lines.append(format_fuel(fuel))
     if answer is not None:
         lines.append(fuel_answer_text(answer, p.concentration))

@@ -8,19 +8,22 @@ __all__ = ["plot_implementation"]
 
 
 def _signal_shares(impl, values, per_unit: float):
+    """Each formal species, free plus held in gates, per formal molecules-per-unit."""
+    from ..implemented import held_matrix
     from ..ode import molecules_per_unit
 
     scale = per_unit / molecules_per_unit(impl.formal)
-    index = impl.network.index
-    return {s: np.asarray(values)[..., index[s]] * scale for s in impl.formal.species}
+    totals = np.asarray(values) @ held_matrix(impl) * scale
+    return {s: totals[..., i] for i, s in enumerate(impl.formal.species)}
 
 
 def plot_implementation(impl, formal_result, result, ensemble=None, *, ax=None,
                         title: str | None = None, disagreement=None):
     """Plot the formal ODE (solid), the implementation's ODE (dashed) and its runs (band).
 
-    Signal species only, each as a fraction of the formal population (or of
-    the formal molecules per unit), against time in the formal network's unit;
+    Each formal species, free plus held in gates (the signal strands not yet
+    consumed, what decisions count), as a fraction of the formal population (or
+    of the formal molecules per unit), against time in the formal network's unit;
     the least fuel fraction left over time (implementation ODE) on the right axis.
 
     Parameters
@@ -69,7 +72,8 @@ def plot_implementation(impl, formal_result, result, ensemble=None, *, ax=None,
             ax.plot(ensemble.times, median, color=color, lw=1.0, ls=":")
         handles.append(Line2D([], [], color=color, lw=2.2, label=name))
     handles += [Line2D([], [], color="0.2", lw=2.2, label="formal ODE"),
-                Line2D([], [], color="0.2", lw=1.6, ls="--", label=f"{impl.scheme} ODE")]
+                Line2D([], [], color="0.2", lw=1.6, ls="--",
+                       label=f"{impl.scheme} ODE (free + held)")]
     if band is not None:
         handles += [Line2D([], [], color="0.2", lw=1.0, ls=":",
                            label=f"{impl.scheme} runs, median"),
