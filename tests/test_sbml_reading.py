@@ -176,6 +176,36 @@ def test_parameters_listed_after_the_reactions_that_use_them():
     assert network_from_sbml(text).rates[0] == 0.3
 
 
+def assignments(*pairs):
+    return "<listOfInitialAssignments>" + "".join(
+        f'<initialAssignment symbol="{symbol}">{law(formula)}</initialAssignment>'
+        for symbol, formula in pairs) + "</listOfInitialAssignments>"
+
+
+def test_parameters_and_counts_set_by_initial_assignments():
+    # section 4.8: kd is computed from a half-life given after it, and the initial count of X
+    # from a concentration (hasOnlySubstanceUnits false: the assignment is a concentration)
+    text = model(sized(2.0), species("X", only_amounts=False), {},
+                 reaction("decay", {"X": 1}, {}, "cell * kd * X"),
+                 extra=assignments(("kd", "ln2 / half"), ("X", "3 * dose"))).replace(
+        "<listOfReactions>", '<listOfParameters><parameter id="kd" constant="true"/>'
+        '<parameter id="half" value="4" constant="true"/>'
+        '<parameter id="ln2" value="0.6931471805599453" constant="true"/>'
+        '<parameter id="dose" value="5" constant="true"/></listOfParameters>'
+        "<listOfReactions>")
+    net = network_from_sbml(text)
+    assert net.rates[0] == pytest.approx(0.6931471805599453 / 4, rel=1e-15)
+    assert list(net.initial) == [30]  # 3 * 5 per unit volume, times size 2
+
+
+def test_initial_assignment_that_needs_the_state_is_refused_by_name():
+    text = model(sized(1.0), species("X", amount=2) + species("Y", amount=1), {"k": 1},
+                 reaction("decay", {"X": 1}, {}, "k * X"),
+                 extra=assignments(("k", "2 * Y")))
+    with pytest.raises(ModelError, match="initial assignment to k: '2 \\* Y' is not a number"):
+        network_from_sbml(text)
+
+
 def test_level_2_kinetic_law_parameters():
     body = (f"<listOfCompartments>{sized(1.0)}</listOfCompartments>"
             '<listOfSpecies><species id="X" compartment="cell" initialAmount="4" '
@@ -284,6 +314,14 @@ def test_laws_beyond_mass_action_are_refused_naming_the_reaction(formula, match)
     assert "\n" not in str(info.value) and str(info.value).startswith("lab.xml")
 
 
+def test_reversible_law_is_refused_with_a_hint():
+    text = model(sized(1.0), species("X", amount=1) + species("Y", amount=1),
+                 {"kf": 1, "kr": 2}, reaction("swap", {"X": 1}, {"Y": 1}, "kf * X - kr * Y")
+                 ).replace('reversible="false"', 'reversible="true"')
+    with pytest.raises(ModelError, match="reaction swap: .* as two irreversible ones"):
+        network_from_sbml(text)
+
+
 # -- the export read by an independent reader ---------------------------------------------------
 
 
@@ -310,3 +348,4 @@ def test_export_validates_and_libsbml_evaluates_the_same_propensities():
             for j in range(sbml_model.getNumReactions())]
         np.testing.assert_allclose(theirs, propensities(net, np.array(state)), rtol=1e-13,
                                    atol=1e-300)
+

@@ -395,15 +395,64 @@ def _refuse_beyond_mass_action(model, refuse) -> None:
     for what, count, name in (
             ("constraint", model.getNumConstraints(), lambda k: f"number {k + 1}"),
             ("function definition", model.getNumFunctionDefinitions(),
-             lambda k: model.getFunctionDefinition(k).getId()),
-            ("initial assignment", model.getNumInitialAssignments(),
-             lambda k: f"to {model.getInitialAssignment(k).getSymbol()}")):
+             lambda k: model.getFunctionDefinition(k).getId())):
         if count:
             raise refuse(f"{what} {name(0)}: the model has {count} of them; only plain "
                          "mass-action networks with numbers are imported", name(0))
     if model.isSetConversionFactor():
         raise refuse(f"conversion factor {model.getConversionFactor()} of the model: not "
                      "supported", model.getConversionFactor())
+
+
+def _initial_values(model, symbols, refuse) -> dict:
+    """Parameter values and initial assignments, as exact numbers (symbol -> sympy number).
+
+    Initial assignments may use numbers, parameters, compartment sizes and one
+    another (in any order); one whose value needs a species, the time or an
+    unknown symbol, or that assigns a compartment, is refused by name.
+    """
+    known = dict(symbols)
+    for k in range(model.getNumParameters()):
+        p = model.getParameter(k)
+        if p.isSetValue():
+            known[p.getId()] = _q(p.getValue())
+    pending = {}
+    for k in range(model.getNumInitialAssignments()):
+        assignment = model.getInitialAssignment(k)
+        symbol = assignment.getSymbol()
+        if model.getCompartment(symbol) is not None:
+            raise refuse(f"initial assignment to compartment {symbol}: compartment sizes must "
+                         "be numbers", symbol)
+        if assignment.getMath() is None:
+            raise refuse(f"initial assignment to {symbol} has no math", symbol)
+        pending[symbol] = assignment.getMath()
+    species = {model.getSpecies(k).getId() for k in range(model.getNumSpecies())}
+    while pending:
+        done = {}
+        for symbol, node in pending.items():
+            try:
+                value = _to_sympy(node, {s: v for s, v in known.items() if s not in pending})
+            except (_NotMassAction, _NeedsSize):
+                continue
+            if value.free_symbols or not value.is_real:
+                continue
+            done[symbol] = value
+        if not done:
+            symbol = next(iter(pending))
+            formula = _libsbml().formulaToL3String(pending[symbol])
+            raise refuse(f"initial assignment to {symbol}: {formula!r} is not a number built "
+                         "from numbers, parameters and compartment sizes", symbol)
+        known.update(done)
+        for symbol in done:
+            del pending[symbol]
+    out = {}
+    for k in range(model.getNumParameters()):
+        pid = model.getParameter(k).getId()
+        if pid not in known:
+            raise refuse(f"parameter {pid} has no value", pid)
+        out[pid] = known[pid]
+    out.update({s: v for s, v in known.items() if s in species})
+    return out
 
 
 def _compartments(model, refuse, annotated_volume):
@@ -482,7 +531,8 @@ def network_from_sbml(text: str, *, source: str = "<sbml>") -> Network:
     ------
     ModelError
         One line naming the element: a document with errors, rules, events,
-        constraints, function definitions or initial assignments; compartments
+        constraints or function definitions; an initial assignment that is not
+        a number built from parameters and compartment sizes; compartments
         of different sizes, or a missing size that a concentration or a law
         needs; a parameter without a value; non-integer amounts or
         stoichiometries; a kinetic law that is not mass action (the message
@@ -533,12 +583,21 @@ def network_from_sbml(text: str, *, source: str = "<sbml>") -> Network:
         cid: _q(size) if size is not None
         else _Missing(f"compartment {cid} has no size, and a kinetic law uses it")
         for cid, size in sizes.items()}
+    values = _initial_values(model, {c: v for c, v in symbols.items()
+                                     if not isinstance(v, _Missing)}, refuse)
     species, initial, output, fixed = [], {}, {}, {}
     for k in range(model.getNumSpecies()):
         sp = model.getSpecies(k)
         sid, cid = sp.getId(), sp.getCompartment()
         attrs, _ = _crn_attributes(sp)
-        if sp.isSetInitialAmount():
+        if sid in values:  # an initial assignment, in the species' own units
+            amount = float(values[sid])
+            if not sp.getHasOnlySubstanceUnits():
+                if sizes.get(cid) is None:
+                    raise refuse(f"compartment {cid} has no size, and the initial assignment "
+                                 f"to species {sid} (a concentration) needs it", cid)
+                amount *= sizes[cid]
+        elif sp.isSetInitialAmount():
             amount = sp.getInitialAmount()
         elif sp.isSetInitialConcentration():
             if sizes.get(cid) is None:
@@ -568,10 +627,8 @@ def network_from_sbml(text: str, *, source: str = "<sbml>") -> Network:
         if sp.getBoundaryCondition() or sp.getConstant():
             fixed[sid] = int(rounded)
     for k in range(model.getNumParameters()):
-        p = model.getParameter(k)
-        if not p.isSetValue():
-            raise refuse(f"parameter {p.getId()} has no value", p.getId())
-        symbols[p.getId()] = _q(p.getValue())
+        pid = model.getParameter(k).getId()
+        symbols[pid] = values[pid]
 
     reactions = []
     for k in range(model.getNumReactions()):
@@ -610,8 +667,10 @@ def network_from_sbml(text: str, *, source: str = "<sbml>") -> Network:
             raise refuse(f"reaction {rid}: {err}", rid) from None
         except _NotMassAction as err:
             formula = libsbml.formulaToL3String(law.getMath())
+            hint = ("; write a reversible reaction as two irreversible ones"
+                    if rx.getReversible() else "")
             raise refuse(f"reaction {rid}: kinetic law {formula!r} is not mass action "
-                         f"({err}); only mass-action laws are imported", rid) from None
+                         f"({err}); only mass-action laws are imported{hint}", rid) from None
         rate = _exact(rate, _crn_attributes(rx)[0].get("rate"))
         products = {s: m for s, m in products.items() if s not in fixed}
         for s, m in reactants.items():
