@@ -112,3 +112,24 @@ def test_ode_counts_needs_every_and_at_excludes_it(capsys):
     assert main(["ode", BD, "--every", "1", "--at", "1,2"]) == 2
     err = capsys.readouterr().err
     assert "--counts" in err and "either --at or --every" in err
+
+
+def test_interrupted_time_course_reports_the_finished_runs(monkeypatch, capsys):
+    import dataclasses
+    import importlib
+
+    from crn.simulate import SimulationInterrupted
+
+    module = importlib.import_module("crn.commands.ssa")
+    real = module.simulate
+
+    def interrupted(net, **kw):  # two runs finish (and reach the reduction), then Ctrl-C
+        part = real(net, **{**kw, "runs": 2})
+        raise SimulationInterrupted(dataclasses.replace(part, requested=kw["runs"]))
+
+    monkeypatch.setattr(module, "simulate", interrupted)
+    code = main(["ssa", BD, "--runs", "5", "--seed", "1", "--workers", "1", "--until", "1",
+                 "--every", "0.5", "--json"])
+    assert code == 130
+    data = json.loads(capsys.readouterr().out)
+    assert data["interrupted"] is True and data["time_course"]["runs"] == 2
