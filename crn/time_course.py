@@ -71,7 +71,11 @@ def sample_times(every: float, until: float, *, max_samples: int = MAX_SAMPLES,
         raise ValueError(f"the sample interval must be positive, got {every:g}")
     if every > until:
         raise ValueError(f"the sample interval {every:g} is longer than the horizon {until:g}")
-    steps = math.floor(until / every * (1 + 1e-12))
+    ratio = until / every * (1 + 1e-12)
+    if not ratio < 2**53:  # beyond any memory; also keeps floor() exact and finite
+        raise ValueError(f"an interval of {every:g} up to {until:g} makes about {ratio:.3g} "
+                         "sample times, far more than can be recorded")
+    steps = math.floor(ratio)
     n = steps + 1 + (until - steps * every > 1e-9 * until)
     if n > max_samples and not force:
         raise ValueError(f"an interval of {every:g} up to {until:g} makes {n} sample times, "
@@ -170,6 +174,47 @@ class TimeCourse:
         if self.source == "ssa":
             out["quantile_runs"] = self.quantile_runs
         return out
+
+    @classmethod
+    def from_json(cls, obj: dict) -> TimeCourse:
+        """Rebuild a time course from :meth:`to_json` output (a saved ``time_course`` object).
+
+        Parameters
+        ----------
+        obj : dict
+            With ``times`` and ``mean`` at least; None values become NaN.
+
+        Returns
+        -------
+        TimeCourse
+
+        Raises
+        ------
+        ValueError
+            When a key is missing or a column's length differs from ``times``.
+        """
+        try:
+            times = np.asarray(obj["times"], dtype=np.float64)
+            species = tuple(obj["mean"])
+        except (KeyError, TypeError) as err:
+            raise ValueError(f"a time course needs `times` and `mean`: {err}") from err
+
+        def table(name):
+            if obj.get(name) is None:
+                return None
+            columns = [[np.nan if v is None else v for v in obj[name][s]] for s in species]
+            values = np.asarray(columns, dtype=np.float64).reshape(len(species), -1).T
+            if values.shape[0] != times.size:
+                raise ValueError(f"`{name}` has {values.shape[0]} times, `times` {times.size}")
+            return values
+
+        runs = int(obj.get("runs", 0))
+        return cls(times=times, species=species, mean=table("mean"), sd=table("sd"),
+                   q05=table("q05"), q95=table("q95"), runs=runs,
+                   quantile_runs=int(obj.get("quantile_runs", runs)),
+                   units=obj.get("units", "count"),
+                   time_units=obj.get("time_units", "network time"),
+                   source=obj.get("source", "ssa" if "sd" in obj else "ode"))
 
     def at(self, index: int = -1) -> dict:
         """Mean and sd (and quantiles) of every species at one sample (default the last).

@@ -61,6 +61,7 @@ def test_sample_times_grid_and_horizon():
     (3.0, 2.0, "longer than the horizon"), (0.0, 1.0, "positive"), (-1.0, 1.0, "positive"),
     (math.nan, 1.0, "positive"), (0.1, math.inf, "horizon"),
     (1e-7, 1.0, "10000001 sample times, more than the limit 1000000"),
+    (1e-300, 1e10, "far more than can be recorded"),
 ])
 def test_sample_times_refuses_bad_intervals(every, until, match):
     with pytest.raises(ValueError, match=match):
@@ -234,3 +235,16 @@ def test_ode_time_course_of_a_linear_network_matches_the_matrix_exponential():
     np.testing.assert_allclose(counts.mean, exact * v, atol=1e-8 * v, rtol=0)
     assert course.units == "concentration" and counts.units == "count"
     assert course.to_json().keys() >= {"times", "mean"} and "sd" not in course.to_json()
+
+
+def test_json_round_trip_for_later_reports():
+    import json
+
+    counts = np.random.default_rng(3).poisson(5, size=(7, 4, 2))
+    course = time_course_of_counts(np.arange(4.0), counts[:1], ("A", "B"))  # sd is NaN
+    back = TimeCourse.from_json(json.loads(json.dumps(course.to_json())))
+    for name in ("mean", "sd", "q05", "q95"):
+        np.testing.assert_array_equal(getattr(back, name), getattr(course, name))
+    assert (back.runs, back.species, back.source) == (1, ("A", "B"), "ssa")
+    with pytest.raises(ValueError, match="times"):
+        TimeCourse.from_json({"mean": {"A": [1.0]}})
