@@ -9,11 +9,15 @@ labels, the majority question, the protocol flag and the exact values of
 numbers (libsbml writes 15 significant digits) travel in annotations, so an
 export read back gives the identical network.
 
-Import accepts mass-action models: every kinetic law must equal
-``k * prod_s x_s (x_s - 1) ... / V^(order - 1)`` (the form written here) or
-the plain ``k * prod_s x_s^r_s / V^(order - 1)``, both read as rate constant
-k, with species in amounts or concentrations. Any other law is refused with
-the reaction's id.
+Import accepts mass-action networks as modelling tools write them (SBML
+Level 2 Version 1 to Level 3 Version 2): compartments without a size when every
+law is in amounts, several compartments of one size, boundary and constant
+species held fixed, global and local parameters, initial assignments that are
+numbers, stoichiometry attributes of every level. Every kinetic law must equal,
+after symbolic simplification, ``c * prod_s x_s (x_s - 1) ...`` (the form
+written here) or ``c * prod_s x_s^r_s`` over amounts, read as rate constant
+``c * V^(order - 1)``. Anything else (rules, events, other laws) is refused in
+one line naming the element.
 """
 
 from __future__ import annotations
