@@ -142,6 +142,16 @@ def test_boundary_species_as_reactant_and_product_stay_fixed():
     assert (net.stoichiometry.toarray()[[0, 2]] == 0).all()
 
 
+def test_constant_species_as_a_reactant_is_given_back():
+    # constant="true" without boundaryCondition: held fixed all the same (section 4.6)
+    text = model(sized(1.0), species("E", amount=2, constant=True) + species("X", amount=9)
+                 + species("Y", amount=0), {"k": 0.5},
+                 reaction("use", {"E": 1, "X": 1}, {"Y": 1}, "k * E * X"))
+    net = network_from_sbml(text)
+    assert rates(net) == {"E + X -> E + Y": 0.5}
+    assert net.stoichiometry.toarray()[0].tolist() == [0]
+
+
 def test_constant_species_in_a_law_is_read_as_its_value():
     # an enzyme E held constant (not a reactant) catalyses X -> P: law k * E * X is
     # first order in X with constant k * E (derived)
