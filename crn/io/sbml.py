@@ -4,7 +4,9 @@ Export writes one compartment whose size is the network's volume, species
 with initial amounts (``hasOnlySubstanceUnits="true"``, so a species symbol in
 a law is a molecule count), one global constant parameter per rate constant,
 and kinetic laws equal to this project's stochastic propensity
-``k * prod_s x_s (x_s - 1) ... (x_s - r_s + 1) / V^(order - 1)``. Output
+``k * prod_s x_s (x_s - 1) ... (x_s - r_s + 1) / V^(order - 1)`` (the whole
+numbers in it are constant parameters of j items and the power is repeated
+division, so no number in a law carries a unit annotation). Output
 labels, the majority question, the protocol flag and the exact values of
 numbers (libsbml writes 15 significant digits) travel in annotations, so an
 export read back gives the identical network.
@@ -74,20 +76,23 @@ def _escape(text: str) -> str:
     return text.replace("&", "&amp;").replace("<", "&lt;").replace(">", "&gt;")
 
 
-def _law(rate_id: str, reactants: dict[str, int], compartment: str) -> str:
+def _law(rate_id: str, reactants: dict[str, int], compartment: str,
+         counts: dict[int, str]) -> str:
+    """The propensity as an infix formula; ``counts[j]`` names a constant of j items.
+
+    Whole numbers in the law are such named constants and the volume power is
+    written as repeated division, so no number in the law carries a unit
+    annotation (``1 item``), which readers that rewrite laws as text do not parse.
+    """
     factors = [rate_id]
     for s, m in reactants.items():
         factors.append(s)
-        factors.extend(f"({s} - {j} item)" for j in range(1, m))
+        factors.extend(f"({s} - {counts[j]})" for j in range(1, m))
     order = sum(reactants.values())
     formula = " * ".join(factors)
     if order == 0:
         return f"{formula} * {compartment}"
-    if order == 2:
-        return f"{formula} / {compartment}"
-    if order > 2:
-        return f"{formula} / {compartment}^({order - 1} dimensionless)"
-    return formula
+    return formula + f" / {compartment}" * (order - 1)
 
 
 def _rate_unit(model, order: int, known: dict[int, str], taken: set[str]) -> str:
@@ -107,19 +112,35 @@ def _rate_unit(model, order: int, known: dict[int, str], taken: set[str]) -> str
     return known[order]
 
 
-def _law_ast(rate_id: str, reactants: dict[str, int], compartment: str, prefix: str):
+def _law_ast(rate_id: str, reactants: dict[str, int], compartment: str, prefix: str,
+             counts: dict[int, str]):
     """The kinetic law as a libsbml AST. The formula is parsed with placeholder names that
     are then renamed, so that ids the formula parser reads as constants (``pi``, ``time``,
     ``avogadro``, ``true``, ...) stay plain names."""
     names = {rate_id: f"{prefix}k", compartment: f"{prefix}v"}
     names.update({s: f"{prefix}{j}" for j, s in enumerate(reactants)})
+    names.update({name: f"{prefix}c{j}" for j, name in counts.items()})
     formula = _law(names[rate_id], {names[s]: m for s, m in reactants.items()},
-                   names[compartment])
+                   names[compartment], {j: names[name] for j, name in counts.items()})
     math_ast = _libsbml().parseL3Formula(formula)
     if math_ast is not None:
         for real, placeholder in names.items():
             math_ast.renameSIdRefs(placeholder, real)
     return math_ast
+
+
+def _count_constants(model, reactions, taken: set[str]) -> dict[int, str]:
+    """Global constants 1, 2, ... items (as many as the largest multiplicity needs)."""
+    top = max((m for r in reactions for m in r.reactants.values()), default=1)
+    counts = {}
+    for j in range(1, top):
+        param = model.createParameter()
+        counts[j] = _unique(f"items_{j}", taken)
+        _check(param.setId(counts[j]), f"parameter {counts[j]}")
+        param.setValue(float(j))
+        param.setConstant(True)
+        _check(param.setUnits("item"), f"the units of {counts[j]}")
+    return counts
 
 
 def network_to_sbml(net: Network) -> str:
@@ -191,7 +212,9 @@ def network_to_sbml(net: Network) -> str:
     prefix = "q_"
     while any(name.startswith(prefix) for name in taken):
         prefix = "q" + prefix
-    for i, reaction in enumerate(net.reactions(), start=1):
+    reactions = list(net.reactions())
+    counts = _count_constants(model, reactions, taken)
+    for i, reaction in enumerate(reactions, start=1):
         rate_id = _unique(f"k{i}", taken)
         param = model.createParameter()
         _check(param.setId(rate_id), f"parameter {rate_id}")
@@ -212,7 +235,7 @@ def network_to_sbml(net: Network) -> str:
                 ref.setStoichiometry(float(m))
                 ref.setConstant(True)
         law = rx.createKineticLaw()
-        math_ast = _law_ast(rate_id, dict(reaction.reactants), compartment_id, prefix)
+        math_ast = _law_ast(rate_id, dict(reaction.reactants), compartment_id, prefix, counts)
         if math_ast is None:
             raise ModelError(f"cannot write the kinetic law of reaction {i}")
         _check(law.setMath(math_ast), f"the kinetic law of reaction {i}")
