@@ -133,3 +133,53 @@ def test_interrupted_time_course_reports_the_finished_runs(monkeypatch, capsys):
     assert code == 130
     data = json.loads(capsys.readouterr().out)
     assert data["interrupted"] is True and data["time_course"]["runs"] == 2
+
+
+SOURCE_SINK = """<?xml version="1.0" encoding="UTF-8"?>
+<sbml xmlns="http://www.sbml.org/sbml/level3/version2/core" level="3" version="2">
+  <model id="reporter">
+    <listOfCompartments><compartment id="droplet" constant="true"/></listOfCompartments>
+    <listOfSpecies>
+      <species id="G" compartment="droplet" initialAmount="2" hasOnlySubstanceUnits="true"
+               boundaryCondition="true" constant="false"/>
+      <species id="R" compartment="droplet" initialAmount="0" hasOnlySubstanceUnits="true"
+               boundaryCondition="false" constant="false"/>
+    </listOfSpecies>
+    <listOfParameters>
+      <parameter id="make" value="3" constant="true"/>
+      <parameter id="decay" value="0.5" constant="true"/>
+    </listOfParameters>
+    <listOfReactions>
+      <reaction id="transcribe" reversible="false">
+        <listOfReactants><speciesReference species="G" stoichiometry="1" constant="true"/>
+        </listOfReactants>
+        <listOfProducts><speciesReference species="R" stoichiometry="1" constant="true"/>
+        </listOfProducts>
+        <kineticLaw><math xmlns="http://www.w3.org/1998/Math/MathML">
+          <apply><times/><ci>make</ci><ci>G</ci></apply></math></kineticLaw>
+      </reaction>
+      <reaction id="degrade" reversible="false">
+        <listOfReactants><speciesReference species="R" stoichiometry="1" constant="true"/>
+        </listOfReactants>
+        <kineticLaw><math xmlns="http://www.w3.org/1998/Math/MathML">
+          <apply><times/><ci>decay</ci><ci>R</ci></apply></math></kineticLaw>
+      </reaction>
+    </listOfReactions>
+  </model>
+</sbml>
+"""
+
+
+def test_sbml_source_and_sink_model_gives_species_at_the_horizon(tmp_path):
+    # a template G (boundary, held at 2) is transcribed into R at 3 G, R decays at 0.5 R: from
+    # zero, R(t) is Poisson with mean (6 / 0.5)(1 - e^{-0.5 t}) (derived: immigration-death)
+    path = tmp_path / "reporter.xml"
+    path.write_text(SOURCE_SINK)
+    out = json.loads(invoke(["ssa", str(path), "--runs", "2000", "--seed", "12", "--until", "4",
+                             "--workers", "1", "--json"]).stdout)
+    at = out["at_horizon"]
+    assert at["time"] == 4.0 and at["mean"]["G"] == 2.0 and at["sd"]["G"] == 0.0
+    mu = 12 * (1 - np.exp(-2.0))
+    # Z within 4 standard errors (99.99%, normal approximation) for the mean of 2000 draws
+    assert abs(at["mean"]["R"] - mu) < 4 * np.sqrt(mu / 2000)
+    assert "outcomes" in out and "time_course" not in out

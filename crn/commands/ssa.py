@@ -202,9 +202,11 @@ def ssa(model, sets, runs, until, engine, workers, cluster, seed, as_json, csv_p
 
 def format_horizon(course) -> list[str]:
     """Table lines: each species' mean, sd and 5%/95% quantiles at the last sample time."""
+    import math
+
     def cell(values, i):
-        return "-" if values is None else _number(float(values[-1, i])
-                                                  if values[-1, i] == values[-1, i] else None)
+        value = None if values is None else float(values[-1, i])
+        return _number(value if value is not None and math.isfinite(value) else None)
 
     width = max([7, *(len(s) for s in course.species)])
     lines = [f"species at t = {course.times[-1]:.4g} (counts over {course.runs} runs):",
