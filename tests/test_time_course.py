@@ -33,8 +33,9 @@ def ensemble_course(net, times, seed, runs=R, **kwargs):
 
 
 def assert_moments(course, species, mu, var):
-    """The acceptance rule of the DSMTS stochastic-simulator test suite (Evans, Shmulevich,
-    Wilkinson, "The SBML discrete stochastic models test suite", Bioinformatics 24:285, 2008):
+    """The acceptance rule of the DSMTS stochastic-simulator test suite (Evans, Gillespie,
+    Wilkinson, "The SBML discrete stochastic models test suite", Bioinformatics 24:285, 2008;
+    from memory):
     at every sample time Z = sqrt(R) (mean - mu) / sigma in (-3, 3) and
     Y = sqrt(R / 2) (S^2 / sigma^2 - 1) in (-5, 5). Times where the exact variance is 0
     (the start) must match exactly."""
@@ -136,7 +137,8 @@ def test_memory_stays_bounded_and_sampled_quantiles_are_within_the_dkw_bound():
 def test_birth_death_moments():
     """Linear birth-death X -> 2X (lambda X), X -> 0 (mu X) from X0: mean
     X0 e^{(lambda-mu) t}, variance X0 (lambda+mu)/(lambda-mu) e^{(lambda-mu)t}(e^{(lambda-mu)t}-1)
-    (Bailey, "The Elements of Stochastic Processes", Wiley 1964, section 8.6)."""
+    (Bailey, "The Elements of Stochastic Processes", Wiley 1964, chapter 8; section from
+    memory)."""
     lam, mu, x0 = 1.0, 1.1, 40
     net = Network.from_reactions("birth-death", ["X"], [Reaction({"X": 1}, {"X": 2}, lam),
                                                        Reaction({"X": 1}, {}, mu)],
@@ -149,8 +151,8 @@ def test_birth_death_moments():
 
 def test_immigration_death_is_poisson():
     """0 -> X (alpha), X -> 0 (mu X) from zero: X(t) is Poisson with mean
-    (alpha / mu)(1 - e^{-mu t}) (derived: the M/M/infinity queue started empty; e.g.
-    Gardiner, "Handbook of Stochastic Methods", section 7.1)."""
+    (alpha / mu)(1 - e^{-mu t}) (derived: each molecule made at time s < t is still there
+    with probability e^{-mu (t - s)}, so the count is a thinned Poisson process)."""
     alpha, mu = 12.0, 0.5
     net = Network.from_reactions("immigration-death", ["X"], [Reaction({}, {"X": 1}, alpha),
                                                              Reaction({"X": 1}, {}, mu)])
