@@ -29,7 +29,7 @@ from dataclasses import dataclass
 import numpy as np
 
 __all__ = ["MAX_SAMPLES", "QUANTILE_MEMORY", "TimeCourse", "TimeCourseAccumulator",
-           "sample_times", "quantile_rank_error", "time_course_of_counts"]
+           "sample_times", "quantile_rank_error", "time_course_of_counts", "reduction_memory"]
 
 #: Most sample times a time course takes without ``force``.
 MAX_SAMPLES = 1_000_000
@@ -83,6 +83,27 @@ def sample_times(every: float, until: float, *, max_samples: int = MAX_SAMPLES,
     times = every * np.arange(steps + 1, dtype=np.float64)
     times[-1] = min(times[-1], until)
     return times if n == steps + 1 else np.append(times, until)
+
+
+def reduction_memory(n_times: int, n_species: int, runs: int, *,
+                     quantile_memory: int = QUANTILE_MEMORY) -> int:
+    """Bytes a :class:`TimeCourseAccumulator` holds, whatever the number of runs beyond.
+
+    Parameters
+    ----------
+    n_times, n_species, runs : int
+    quantile_memory : int, default QUANTILE_MEMORY
+
+    Returns
+    -------
+    int
+        The moments (two float64 tables), the kept runs and the result's four
+        tables; runs that finish out of order add one float64 table each while
+        they wait (a few per worker in practice; not counted).
+    """
+    cell = 8 * max(1, n_times) * max(1, n_species)
+    kept = min(int(runs), max(1, int(quantile_memory) // cell))
+    return 6 * cell + kept * cell
 
 
 def quantile_rank_error(kept: int, confidence: float = 0.95) -> float:

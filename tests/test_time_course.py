@@ -16,6 +16,7 @@ from crn.time_course import (
     TimeCourse,
     TimeCourseAccumulator,
     quantile_rank_error,
+    reduction_memory,
     sample_times,
     time_course_of_counts,
 )
@@ -119,6 +120,8 @@ def test_memory_stays_bounded_and_sampled_quantiles_are_within_the_dkw_bound():
     peak = tracemalloc.get_traced_memory()[1]
     tracemalloc.stop()
     assert peak < 8 * budget  # kept runs + moments + one block of quantile work, not runs x size
+    bound = reduction_memory(n_times, n_species, runs, quantile_memory=budget)
+    assert budget <= bound < budget + 7 * n_times * n_species * 8
     kept = course.quantile_runs
     assert kept == budget // (n_times * n_species * 8) < runs
     # every run's value in a few cells: the reported quantile's rank among all runs is within
