@@ -70,7 +70,8 @@ def fuel_answer_text(answer, concentration: float) -> str:
 
 
 def run_implemented_ode(loaded, settings, *, until, times, method, plot_file, csv_file, as_json,
-                        equations, latex, fuel_needed, within) -> None:
+                        equations, latex, fuel_needed, within, every=None, in_counts=False,
+                        force=False) -> None:
     """Solve the implementation's mean field and print or write it (the ``ode`` command)."""
     from ..implemented import formal_ode_horizon, fuel_left_ode
     from ..ode import solve_mean_field
@@ -84,6 +85,18 @@ def run_implemented_ode(loaded, settings, *, until, times, method, plot_file, cs
     if times is not None and until is not None and times[-1] > until:
         raise click.BadParameter(f"time {times[-1]:g} is beyond --until {until:g}",
                                  param_hint="--at")
+    if every is not None:
+        from .options import sample_times_option_value
+
+        if times is not None:
+            raise click.BadParameter("give either --at or --every, not both",
+                                     param_hint="--every")
+        times = sample_times_option_value(
+            every, formal_ode_horizon(formal) if until is None else until, force)
+        until = float(times[-1])
+    elif in_counts:
+        raise click.BadParameter("--counts applies to the time course of --every",
+                                 param_hint="--counts")
     horizon = until if until is not None else (
         float(times[-1]) if times is not None and times[-1] > 0 else formal_ode_horizon(formal))
     result = solve_mean_field(impl.network, until=horizon, times=times, method=method,
@@ -96,7 +109,16 @@ def run_implemented_ode(loaded, settings, *, until, times, method, plot_file, cs
 
         scheme, params = settings
         answer = fuel_for_time(formal, scheme, params, tolerance=within)
-    if csv_file:
+    course = None
+    if every is not None:
+        from ..time_course import TimeCourse
+
+        course = TimeCourse.from_mean_field(result, counts=in_counts)
+    if csv_file and course is not None:
+        from ..io.time_course import write_time_course_csv
+
+        write_time_course_csv(csv_file, course)
+    elif csv_file:
         from ..io.ode_files import write_mean_field_csv
 
         write_mean_field_csv(csv_file, result)
@@ -113,6 +135,8 @@ def run_implemented_ode(loaded, settings, *, until, times, method, plot_file, cs
                    held_fractions=held_fractions(impl, result))
         if answer is not None:
             obj["fuel_needed"] = fuel_answer_json(answer)
+        if course is not None:
+            obj["time_course"] = course.to_json()
         emit_json(obj)
         return
     click.echo(_text(loaded.name, impl, result, formal_result, fuel, answer))
