@@ -26,6 +26,7 @@ from .network import Network
 from .outcome import correct_label
 from .probes import (
     FIRST_ROUND,
+    GAP_FRACTION_RANGE,
     cell_seed,
     configurations,
     exact_absorption,
@@ -110,7 +111,7 @@ def lattice(gap_fraction: float | None = None, gap: int | None = None) -> Lattic
         raise CRNError("give exactly one of gap fraction and gap")
     if gap_fraction is not None:
         if not 0 < gap_fraction < 1:
-            raise CRNError(f"the gap fraction must lie in (0, 1), got {gap_fraction}")
+            raise CRNError(f"{GAP_FRACTION_RANGE}, got {gap_fraction}")
         f = Fraction(gap_fraction).limit_denominator(1_000_000)
         if abs(float(f) - gap_fraction) > 1e-9 * gap_fraction:
             raise CRNError(f"gap fraction {gap_fraction} is not a ratio of small whole numbers")

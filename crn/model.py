@@ -129,7 +129,10 @@ def parse_overrides(pairs) -> dict[str, float | int]:
         try:
             out[name] = evaluate(value.strip())
         except ExpressionError as err:
-            raise ModelError(f"{name}: {err}", field="--set") from err
+            # a name in the value is not a parameter of the model: the value is simply not a number
+            why = "" if "unknown parameter" in str(err) else f" ({str(err).split(': ', 1)[-1]})"
+            raise ModelError(f"{value.strip()!r} is not a number for parameter {name}{why}",
+                             field="--set") from err
     return out
 
 

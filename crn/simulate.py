@@ -23,7 +23,7 @@ from .outcome import NO_CONSENSUS, tally
 from .stats import time_summary
 
 __all__ = ["Ensemble", "SimulationInterrupted", "simulate", "ENGINES", "choose_engine",
-           "default_horizon", "run_chunk", "AUTO_BATCHED_FROM"]
+           "default_horizon", "run_chunk", "probe_scheduler", "AUTO_BATCHED_FROM"]
 
 ENGINES = {
     "direct": ("crn.engines.direct", "run_direct"),
@@ -70,6 +70,9 @@ class Ensemble:
         Which child stream each run used (0..requested-1; all of them unless interrupted).
     requested : int
         Runs asked for.
+    outcome_labels : tuple of str
+        Every label a run can decide on (the network's output labels), so that
+        :meth:`outcomes` lists the labels no run reached, with 0.
     """
 
     runs: int
@@ -88,6 +91,7 @@ class Ensemble:
     species: tuple
     run_index: np.ndarray = field(default=None)
     requested: int = 0
+    outcome_labels: tuple = ()
 
     @property
     def complete(self) -> bool:
@@ -95,8 +99,12 @@ class Ensemble:
         return self.runs == self.requested
 
     def outcomes(self) -> dict[str, int]:
-        """First-consensus label -> number of runs, with ``"none"`` for no consensus."""
-        out = tally(self.labels)
+        """First-consensus label -> number of runs, with ``"none"`` for no consensus.
+
+        Every label of :attr:`outcome_labels` and ``"none"`` appear, with 0 when no run got it.
+        """
+        out = dict.fromkeys(self.outcome_labels, 0)
+        out.update(tally(self.labels))
         out.setdefault(NO_CONSENSUS, 0)
         return out
 
@@ -106,7 +114,8 @@ class Ensemble:
 
     @classmethod
     def from_trajectories(cls, trajectories, *, engine, seed_entropy, until, species,
-                          times, run_index=None, requested=None) -> Ensemble:
+                          times, run_index=None, requested=None, outcome_labels=()
+                          ) -> Ensemble:
         """Collect runs (in run order) into an ensemble."""
         trajectories = list(trajectories)
         r = len(trajectories)
@@ -128,6 +137,7 @@ class Ensemble:
             run_index=np.arange(r, dtype=np.int64) if run_index is None
             else np.asarray(run_index, dtype=np.int64),
             requested=r if requested is None else int(requested),
+            outcome_labels=tuple(outcome_labels),
         )
 
 
@@ -325,7 +335,7 @@ def _collect(done, name, root, until, net, times, runs) -> Ensemble:
     return Ensemble.from_trajectories([done[i] for i in order], engine=name,
                                       seed_entropy=int(root.entropy), until=until,
                                       species=net.species, times=times, run_index=order,
-                                      requested=runs)
+                                      requested=runs, outcome_labels=net.labels)
 
 
 def _chunks(n_runs: int, workers: int) -> list[range]:
@@ -371,16 +381,33 @@ def _terminate(pool) -> None:
         process.terminate()
 
 
-def _probe(address: str) -> None:
-    """Fail fast on a refused TCP address instead of waiting out Dask's connect retries."""
+def probe_scheduler(address: str) -> None:
+    """Fail fast on a malformed or refused TCP address instead of waiting out Dask's retries.
+
+    Parameters
+    ----------
+    address : str
+        ``tcp://HOST:PORT``, ``tls://HOST:PORT`` or ``HOST:PORT``; other schemes pass unchecked.
+
+    Raises
+    ------
+    CRNError
+        When a TCP or TLS address has no host or port, or nothing listens there.
+    """
     import socket
     from urllib.parse import urlsplit
 
     parts = urlsplit(address if "://" in address else f"tcp://{address}")
-    if parts.scheme not in ("tcp", "tls") or parts.port is None:
+    if parts.scheme not in ("tcp", "tls"):
         return
     try:
-        socket.create_connection((parts.hostname, parts.port), timeout=5).close()
+        port = parts.port
+    except ValueError:
+        port = None
+    if not parts.hostname or port is None:
+        raise CRNError(f"{address!r} is not a scheduler address; expected tcp://HOST:PORT")
+    try:
+        socket.create_connection((parts.hostname, port), timeout=5).close()
     except OSError as err:
         raise CRNError(f"cannot reach the Dask scheduler at {address}: {err}") from err
 
@@ -390,7 +417,7 @@ def _on_cluster(address, task, children, done, report):
         from distributed import Client, as_completed
     except ImportError as err:  # pragma: no cover - dask is a dependency
         raise CRNError("--cluster needs dask.distributed") from err
-    _probe(address)
+    probe_scheduler(address)
     try:
         client = Client(address, timeout="10s", set_as_default=False)
     except (OSError, TimeoutError) as err:

@@ -16,7 +16,7 @@ from ..units import (
     parse_time,
     parse_volume,
 )
-from .options import emit_json, json_option, model_argument, seed_option, set_option
+from .options import emit_json, json_option, model_argument, seed_notice, seed_option, set_option
 from .regimes import cell_networks
 
 __all__ = ["copies", "parse_deadline"]
@@ -58,8 +58,8 @@ def parse_deadline(text: str | None):
 @click.option("--runs-max", type=click.IntRange(min=1), default=4000, show_default=True,
               help="Most stochastic runs per probed population.")
 @click.option("--method", type=click.Choice(["auto", "exact", "stochastic"]), default="auto",
-              show_default=True)
-@seed_option
+              show_default=True, help="Exact analysis, stochastic runs, or exact when small.")
+@seed_option(workers=False)
 @json_option
 def copies(model, sets, gap_fraction, gap, risk, deadline, concentration, volume, rate, n_max,
            runs_max, method, seed, as_json):
@@ -119,7 +119,7 @@ def copies(model, sets, gap_fraction, gap, risk, deadline, concentration, volume
         })
         return
     if seed is None:
-        click.echo(f"crn: seed {result.seed_entropy}", err=True)
+        seed_notice(result.seed_entropy)
     click.echo(_text(model_obj.name, result, phys, bounds, deadline_seconds))
 
 

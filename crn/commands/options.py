@@ -12,7 +12,11 @@ from ..io.models import load_model
 from ..model import parse_overrides
 
 __all__ = ["model_argument", "set_option", "seed_option", "json_option", "load", "emit_json",
-           "progress_bar", "to_jsonable", "OUTPUT_FILE"]
+           "progress_bar", "to_jsonable", "seed_notice", "lab_time_options", "seconds_per_time",
+           "OUTPUT_FILE", "FIGURE_FILE", "FIGURE_FORMATS", "CLUSTER_ADDRESS"]
+
+#: Figure formats ``--plot`` accepts (all written by matplotlib's Agg, PDF, SVG and PS backends).
+FIGURE_FORMATS = ("png", "pdf", "svg", "svgz", "eps", "ps", "jpg", "jpeg", "tif", "tiff", "webp")
 
 
 def model_argument(func):
@@ -48,8 +52,46 @@ def set_option(func):
                         help="Override a parameter of the model (repeatable).")(func)
 
 
-def seed_option(func):
+def seed_option(func=None, *, workers: bool = True):
     """Add the ``--seed`` option (a non-negative int, default None) to a click command.
+
+    Parameters
+    ----------
+    func : callable, optional
+        The command function to decorate; without it, returns the decorator
+        (``@seed_option(workers=False)``).
+    workers : bool, default True
+        Whether the command runs on several workers (the help then says the
+        numbers do not depend on how many).
+
+    Returns
+    -------
+    callable
+        ``func`` with the option, passed to it as ``seed`` (int or None).
+    """
+    text = ("Root seed; the same seed gives the same numbers on any number of workers. "
+            if workers else "Root seed; the same seed gives the same numbers. ")
+
+    def decorate(f):
+        return click.option("--seed", type=click.IntRange(min=0), default=None,
+                            help=text + "Printed when not given.")(f)
+
+    return decorate if func is None else decorate(func)
+
+
+def seed_notice(entropy: int) -> None:
+    """Tell the user, on standard error, the seed drawn because ``--seed`` was not given.
+
+    Parameters
+    ----------
+    entropy : int
+        Entropy of the root ``SeedSequence``; ``--seed entropy`` repeats the run.
+    """
+    click.echo(f"crn: seed {entropy} (pass --seed {entropy} to repeat)", err=True)
+
+
+def lab_time_options(func):
+    """Add ``--rate`` and ``--concentration`` (text, default None), which give time in minutes.
 
     Parameters
     ----------
@@ -59,11 +101,53 @@ def seed_option(func):
     Returns
     -------
     callable
-        ``func`` with the option, passed to it as ``seed`` (int or None).
+        ``func`` with the options, passed to it as ``rate`` and ``concentration``
+        (str or None); :func:`seconds_per_time` turns them into a time unit.
     """
-    return click.option("--seed", type=click.IntRange(min=0), default=None,
-                        help="Root seed; the same seed gives the same numbers on any number "
-                             "of workers. Printed when not given.")(func)
+    func = click.option("--concentration", default=None, metavar="C",
+                        help="Total concentration of all agents, e.g. 10nM; with --rate the "
+                             "figure gets a second time axis in minutes.")(func)
+    return click.option("--rate", default=None, metavar="K",
+                        help="Bimolecular rate constant the reactions are built at, e.g. "
+                             "1e6/M/s; with --concentration the figure gets a second time "
+                             "axis in minutes.")(func)
+
+
+def seconds_per_time(net, rate: str | None, concentration: str | None) -> float | None:
+    """Seconds in one unit of parallel time, from ``--rate`` and ``--concentration``.
+
+    One unit of parallel time lasts ``1 / (k C)`` seconds for a protocol whose
+    reactions are built at ``k`` (/M/s) and total concentration ``C`` (M)
+    (DESIGN.md, physical units).
+
+    Parameters
+    ----------
+    net : Network
+        The model's network; only a protocol's time has this unit.
+    rate, concentration : str or None
+        The options as typed.
+
+    Returns
+    -------
+    float or None
+        None unless both are given.
+
+    Raises
+    ------
+    CRNError
+        When only one is given, a value cannot be read, or the model is not a protocol.
+    """
+    from ..errors import CRNError
+    from ..units import parse_concentration, parse_rate_constant
+
+    if rate is None and concentration is None:
+        return None
+    if rate is None or concentration is None:
+        raise CRNError("give --rate and --concentration together (time in minutes needs both)")
+    if not net.from_protocol:
+        raise CRNError("--rate and --concentration convert parallel time; this model is a "
+                       "reaction network, whose time unit is its own")
+    return 1.0 / (parse_rate_constant(rate) * parse_concentration(concentration))
 
 
 def json_option(func):
@@ -147,10 +231,18 @@ def progress_bar(description: str, total: int | None, enabled: bool = True):
             yield lambda done, new_total=None: None
             return
         from rich.console import Console
-        from rich.progress import BarColumn, MofNCompleteColumn, Progress, TimeElapsedColumn
+        from rich.progress import (
+            BarColumn,
+            MofNCompleteColumn,
+            Progress,
+            TextColumn,
+            TimeElapsedColumn,
+            TimeRemainingColumn,
+        )
 
         with Progress("[progress.description]{task.description}", BarColumn(),
-                      MofNCompleteColumn(), TimeElapsedColumn(),
+                      MofNCompleteColumn(), TimeElapsedColumn(), TextColumn("eta"),
+                      TimeRemainingColumn(),
                       console=Console(stderr=True), transient=True) as progress:
             task = progress.add_task(description, total=total)
 
@@ -192,3 +284,54 @@ class OutputFile(click.ParamType):
 
 
 OUTPUT_FILE = OutputFile()
+
+
+class FigureFile(OutputFile):
+    """An :class:`OutputFile` whose suffix names a figure format matplotlib writes (or none:
+    PNG), checked before any work starts."""
+
+    name = "figure"
+
+    def convert(self, value, param, ctx):
+        from pathlib import Path
+
+        suffix = Path(value).suffix.lstrip(".").lower()
+        if suffix and suffix not in FIGURE_FORMATS:
+            self.fail(f"{value!r}: cannot write a figure as .{suffix}; use one of "
+                      f"{', '.join(FIGURE_FORMATS)}", param, ctx)
+        return super().convert(value, param, ctx)
+
+
+FIGURE_FILE = FigureFile()
+
+
+class ClusterAddress(click.ParamType):
+    """A Dask scheduler address, ``[tcp|tls]://HOST:PORT`` (or ``HOST:PORT``), checked (and,
+    for TCP, reached) before any work starts."""
+
+    name = "address"
+    schemes = ("tcp", "tls")
+
+    def convert(self, value, param, ctx):
+        from urllib.parse import urlsplit
+
+        from ..errors import CRNError
+        from ..simulate import probe_scheduler
+
+        parts = urlsplit(value if "://" in value else f"tcp://{value}")
+        try:
+            port = parts.port
+        except ValueError:
+            port = None
+        if parts.scheme not in self.schemes or not parts.hostname or port is None \
+                or parts.path not in ("", "/"):
+            self.fail(f"{value!r} is not a scheduler address; expected tcp://HOST:PORT "
+                      f"(or tls://HOST:PORT)", param, ctx)
+        try:
+            probe_scheduler(value)
+        except CRNError as err:
+            self.fail(str(err), param, ctx)
+        return value
+
+
+CLUSTER_ADDRESS = ClusterAddress()

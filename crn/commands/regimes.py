@@ -19,12 +19,15 @@ from ..model import parse_overrides
 from ..probes import InitialSplit, ModelParameters
 from ..regimes import RegimeCell, RegimeMap, plan_cells, regime_map
 from .options import (
+    CLUSTER_ADDRESS,
+    FIGURE_FILE,
     OUTPUT_FILE,
     emit_json,
     json_option,
     load,
     model_argument,
     progress_bar,
+    seed_notice,
     seed_option,
     set_option,
     to_jsonable,
@@ -108,8 +111,8 @@ def _fmt(value, spec=".3g"):
               show_default=True, help="Flag times when SSA median and ODE differ by more.")
 @click.option("--method", type=click.Choice(["auto", "exact", "stochastic"]), default="auto",
               show_default=True, help="Exact analysis, stochastic runs, or exact when small.")
-@click.option("--plot", "plot_file", type=OUTPUT_FILE, default=None,
-              help="Write the heatmap figure (png, pdf, svg).")
+@click.option("--plot", "plot_file", type=FIGURE_FILE, default=None,
+              help="Write the heatmap figure (png, pdf, svg, ...).")
 @click.option("--csv", "csv_file", type=OUTPUT_FILE, default=None,
               help="Write the table as CSV.")
 @click.option("--out", "out_dir", type=click.Path(file_okay=False), default=None,
@@ -118,7 +121,7 @@ def _fmt(value, spec=".3g"):
 @click.option("--resume", is_flag=True, help="Continue the sweep whose results are in --out.")
 @click.option("--workers", type=click.IntRange(min=1), default=None,
               help="Processes computing cells in parallel (default 1).")
-@click.option("--cluster", default=None, metavar="ADDR",
+@click.option("--cluster", type=CLUSTER_ADDRESS, default=None, metavar="ADDRESS",
               help="Dask scheduler address for the stochastic runs.")
 @seed_option
 @json_option
@@ -164,7 +167,7 @@ def regimes(model, sets, n_list, gap_list, fraction_list, risk, until, runs_max,
             if kill_after is not None and len(store.finished) >= int(kill_after):
                 os.kill(os.getpid(), signal.SIGKILL)
     if seed is None and not as_json:
-        click.echo(f"crn: seed {entropy}", err=True)
+        seed_notice(entropy)
 
     with progress_bar("cells", len(cells), enabled=not as_json) as update:
         result = regime_map(networks, ns, gaps=gaps, gap_fractions=fractions, risk=risk,

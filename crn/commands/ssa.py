@@ -7,17 +7,20 @@ import click
 from ..simulate import ENGINES, Ensemble, SimulationInterrupted, simulate
 from ..stats import wilson_interval
 from .options import (
+    CLUSTER_ADDRESS,
     OUTPUT_FILE,
     emit_json,
     json_option,
     load,
     model_argument,
     progress_bar,
+    seed_notice,
     seed_option,
     set_option,
 )
 
-__all__ = ["ssa", "ensemble_options", "run_ensemble", "ensemble_summary", "format_ensemble"]
+__all__ = ["ssa", "ensemble_options", "run_ensemble", "ensemble_summary", "format_ensemble",
+           "horizon_text"]
 
 
 def ensemble_options(func):
@@ -32,7 +35,7 @@ def ensemble_options(func):
                      show_default=True, help="Stochastic engine."),
         click.option("--workers", type=click.IntRange(min=1), default=None,
                      help="Local worker processes (default: all cores)."),
-        click.option("--cluster", metavar="ADDRESS", default=None,
+        click.option("--cluster", type=CLUSTER_ADDRESS, metavar="ADDRESS", default=None,
                      help="Dask scheduler address (tcp://HOST:PORT) to run the ensemble on."),
     ]
     for option in reversed(options):
@@ -53,8 +56,7 @@ def run_ensemble(net, *, runs, until, engine, seed, workers, cluster, as_json, t
 
     root = np.random.SeedSequence(seed)
     if seed is None:
-        click.echo(f"seed entropy {root.entropy} (pass --seed {root.entropy} to repeat)",
-                   err=True)
+        seed_notice(root.entropy)
     with progress_bar(description, runs, enabled=not as_json) as update:
         try:
             ensemble = simulate(net, runs=runs, until=until, times=times, engine=engine,
@@ -79,6 +81,11 @@ def ensemble_summary(ensemble: Ensemble, model_name: str) -> dict:
         "consensus_time": ensemble.consensus_time_summary(),
         "events_mean": float(events.mean()) if events.size and (events >= 0).all() else None,
     }
+
+
+def horizon_text(until: float, net) -> str:
+    """``"158.2 parallel time"`` for a protocol, ``"5 time units"`` for a network."""
+    return f"{until:.4g} {'parallel time' if net.from_protocol else 'time units'}"
 
 
 def _number(x) -> str:
@@ -138,7 +145,7 @@ def ssa(model, sets, runs, until, engine, workers, cluster, seed, as_json, csv_p
         emit_json(ensemble_summary(ensemble, loaded.name))
     else:
         head = (f"{loaded.name}: {ensemble.runs} runs, engine {ensemble.engine}, "
-                f"horizon {ensemble.until:.4g}")
+                f"horizon {horizon_text(ensemble.until, net)}")
         click.echo("\n".join([head, *format_ensemble(ensemble, correct_label(net))]))
     if interrupted:
         _finish_interrupted(ensemble)
