@@ -323,11 +323,17 @@ class _Builder:
         if has_protocol:
             rules, transitions, states = self.protocol(initial)
             self.check_mentioned(states, output, majority)
+            self.warn_undeclared(
+                [(r.text, r.line, f"protocol.transitions[{i}]", (r.initiator, r.responder),
+                  (r.outcome.initiator, r.outcome.responder))
+                 for i, r in enumerate(r for r in rules if not r.mirrored)],
+                initial, output, "rule")
             protocol = Protocol(name, states, transitions, initial, output, majority, about)
             network = protocol_to_network(protocol)
             return Model(name, about, self.file, params, network, protocol, tuple(rules))
         reactions, species, volume = self.network(initial, params)
         self.check_mentioned(species, output, majority)
+        self.warn_undeclared(self.reaction_sites, initial, output, "reaction")
         try:
             network = Network.from_reactions(name, species, reactions, volume=volume,
                                              initial=initial, output=output, majority=majority,
@@ -408,6 +414,33 @@ class _Builder:
                 raise self.error(f"state {state!r} appears in no rule and no initial count",
                                  "question", "majority")
 
+    def warn_undeclared(self, sites, initial, output, kind):
+        """Warn once per state a rule names that is neither declared nor made by any rule
+        (it can never be present), and once per unlabelled state a rule makes that is
+        neither declared nor changed by any rule (once made it blocks consensus for good;
+        protocols only: a network's waste species are made and left alone on purpose).
+
+        ``sites`` lists ``(text, line, field, reactants, products)`` in written order.
+        """
+        declared = set(initial) | set(output)
+        made = {s for *_, products in sites for s in products}
+        used = {s for *_, reactants, _ in sites for s in reactants}
+        warned = set()
+        for text, line, where, reactants, products in sites:
+            for s in reactants:
+                if s not in declared and s not in made and s not in warned:
+                    warned.add(s)
+                    self.warn(line, where, f"{kind} {text!r} names state {s!r}, which has no "
+                                           "initial count and no output label and which no "
+                                           f"{kind} makes: it is never present (a typo?)")
+            for s in products:
+                if (kind == "rule" and output and s not in declared and s not in used
+                        and s not in warned):
+                    warned.add(s)
+                    self.warn(line, where, f"{kind} {text!r} makes state {s!r}, which has no "
+                                           f"output label and which no {kind} changes: once "
+                                           "made it stays, and no consensus is possible")
+
     def protocol(self, initial):
         table = self.table("protocol")
         for key in table:
@@ -483,6 +516,7 @@ class _Builder:
         if not isinstance(items, list):
             raise self.error("reactions must be a list", "network", "reactions")
         reactions = []
+        self.reaction_sites = []
         species = list(initial)
         for i, item in enumerate(items):
             where = f"network.reactions[{i}]"
@@ -509,4 +543,5 @@ class _Builder:
             if rate == 0:
                 self.warn(line, where, f"reaction {text!r} has rate 0 and never fires")
             reactions.append(Reaction(reactants, products, rate))
+            self.reaction_sites.append((text, line, where, tuple(reactants), tuple(products)))
         return reactions, tuple(species), volume

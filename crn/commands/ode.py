@@ -49,7 +49,9 @@ def _eigenvalue(z: complex, tol: float = 1e-7):
 
 
 def _free(point, species) -> list[str]:
-    """Species left free along a continuum of fixed points (NaN coordinates)."""
+    """Species left free along a continuum of fixed points (the others follow from them)."""
+    if point.exact is not None:
+        return [s for s in species if point.exact[s] == s]
     return [s for s, v in zip(species, point.point, strict=True) if not math.isfinite(v)]
 
 
@@ -81,8 +83,7 @@ def _format_continuum(point, species) -> str:
     else:
         where = ", ".join(f"{s}={v:.6g}" for s, v in zip(species, point.point, strict=True)
                           if s in fixed)
-    what = ("a continuum of fixed points, one for every value of " + " and ".join(free)
-            + (f" ({len(free)} free coordinates)" if len(free) > 1 else ""))
+    what = "a continuum of fixed points, one for every value of " + " and ".join(free)
     return (f"{where + ': ' if where else ''}{what}; not isolated, so the eigenvalues say "
             "nothing about stability")
 
