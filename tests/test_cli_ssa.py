@@ -50,7 +50,7 @@ def test_ssa_json_same_on_a_dask_cluster():
 def test_ssa_table_seed_entropy_and_csv(tmp_path):
     out = tmp_path / "runs.csv"
     result = invoke(["ssa", AM, *SMALL, "--runs", "12", "--workers", "1", "--csv", str(out)])
-    assert "seed entropy" in result.stderr  # no --seed: the entropy is printed
+    assert "crn: seed " in result.stderr  # no --seed: the entropy is printed
     assert "95% interval" in result.stdout and "consensus time" in result.stdout
     rows = list(csv.DictReader(out.open()))
     assert len(rows) == 12 and rows[0]["run"] == "0"
