@@ -171,7 +171,7 @@ def _describe(net: Network, point, subspace, exact=None, family=False,
     labels = np.asarray(net.species_label)
     n_labels = len(net.labels)
     # the searches keep only points >= 0 up to roundoff; clip that roundoff (-1e-17) to 0
-    point = np.maximum(np.asarray(point, dtype=np.float64), 0.0)
+    point = np.maximum(np.asarray(point, dtype=np.float64), 0.0) + 0.0  # + 0.0: no -0.0
     safe = np.nan_to_num(point)
     totals = np.bincount(labels[labels >= 0], weights=np.maximum(safe, 0)[labels >= 0],
                          minlength=n_labels)

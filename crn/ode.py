@@ -362,7 +362,7 @@ def _clip_roundoff(values: np.ndarray, rtol: float, atol: float) -> np.ndarray:
     if not values.size:
         return values
     tol = 100.0 * (atol + rtol * float(np.nanmax(np.abs(values))))
-    return np.where((values < 0) & (values >= -tol), 0.0, values)
+    return np.where((values <= 0) & (values >= -tol), 0.0, values)  # -0.0 too
 
 
 def solve_mean_field(net: Network, *, until=None, times=None, method: str = "LSODA",

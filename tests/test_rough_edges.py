@@ -143,9 +143,10 @@ def test_no_output_fraction_is_negative(model):
 def test_clipping_leaves_a_real_undershoot_visible():
     from crn.ode import _clip_roundoff
 
-    values = np.array([[0.5, -1e-17, 0.5], [0.7, -0.2, 0.5]])
+    values = np.array([[0.5, -1e-17, 0.5], [0.7, -0.2, -0.0]])
     clipped = _clip_roundoff(values, rtol=1e-10, atol=1e-12)
     assert clipped[0, 1] == 0.0 and clipped[1, 1] == -0.2  # -0.2 is a failure, not roundoff
+    assert not np.signbit(clipped[0, 1]) and not np.signbit(clipped[1, 2])  # never "-0"
 
 
 # a continuum of fixed points in words -----------------------------------------------------------

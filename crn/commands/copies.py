@@ -39,7 +39,7 @@ def parse_deadline(text: str | None):
 @model_argument
 @set_option
 @click.option("--gap-fraction", type=float, default=None, metavar="F",
-              help="Gap as a fraction of the population (e.g. 0.05).")
+              help="Gap as a fraction of the population, in (0, 1) (e.g. 0.05).")
 @click.option("--gap", type=click.IntRange(min=0), default=None, metavar="G",
               help="A fixed gap in molecules.")
 @click.option("--risk", type=click.FloatRange(0, 1, min_open=True, max_open=True), default=0.01,

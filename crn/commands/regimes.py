@@ -100,7 +100,8 @@ def _fmt(value, spec=".3g"):
               help="Absolute gaps, comma-separated; cells whose gap differs from n in parity "
                    "are skipped.")
 @click.option("--gap-fraction", "fraction_list", default=None, metavar="LIST",
-              help="Gaps as fractions of n, rounded to the nearest gap of n's parity.")
+              help="Gaps as fractions of n, each in (0, 1), rounded to the nearest gap of n's "
+                   "parity.")
 @click.option("--risk", type=click.FloatRange(0, 1, min_open=True, max_open=True), default=0.01,
               show_default=True, help="Acceptable probability of disagreeing with the ODE.")
 @click.option("--until", type=click.FloatRange(min=0, min_open=True), default=None, metavar="T",
