@@ -179,7 +179,7 @@ def _plot(result, name: str, path, seconds=None) -> None:
     from ..io.atomic import save_figure
     from ..plots.ode import plot_mean_field
 
-    ax = plot_mean_field(result, title=f"Mean-field ODE of {name}", seconds_per_time=seconds)
+    ax = plot_mean_field(result, title=f"{name}\nmean-field ODE", seconds_per_time=seconds)
     try:
         save_figure(path, ax.figure)
     finally:
