@@ -54,7 +54,7 @@ def disagreement(labels, ode_label) -> tuple[float, float, float]:
 @seed_option
 @json_option
 @click.option("--plot", "plot_path", type=FIGURE_FILE, default=None,
-              help="Write the figure (ODE over the stochastic median and 5-95% band; png, pdf, "
+              help="Write the figure (ODE over the stochastic mean and 5-95% band; png, pdf, "
                    "svg, ...).")
 @lab_time_options
 def compare(model, sets, runs, until, engine, workers, cluster, seed, as_json, plot_path, rate,
