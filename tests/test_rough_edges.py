@@ -385,3 +385,20 @@ def test_the_progress_bar_shows_the_time_remaining(monkeypatch):
     with progress_bar("runs", 10, enabled=False) as update:  # --json: no bar at all
         update(5)
     assert built == []
+
+
+def test_lab_time_options_never_duplicate_a_commands_own_rate():
+    import click
+
+    from crn.commands.options import dna_options, lab_time_options
+
+    @click.command()
+    @lab_time_options
+    @dna_options
+    def command(rate, concentration, fuel, max_rate, toehold, leak):
+        click.echo(f"{rate} {concentration}")
+
+    names = [p.name for p in command.params]
+    assert names.count("rate") == 1 and names.count("concentration") == 1
+    result = CliRunner().invoke(command, ["--rate", "1e6/M/s", "--concentration", "10nM"])
+    assert result.output == "1e6/M/s 10nM\n"

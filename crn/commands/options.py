@@ -106,13 +106,18 @@ def lab_time_options(func):
         ``func`` with the options, passed to it as ``rate`` and ``concentration``
         (str or None); :func:`seconds_per_time` turns them into a time unit.
     """
-    func = click.option("--concentration", default=None, metavar="C",
-                        help="Total concentration of all agents, e.g. 10nM; with --rate the "
-                             "figure gets a second time axis in minutes.")(func)
-    return click.option("--rate", default=None, metavar="K",
-                        help="Bimolecular rate constant the reactions are built at, e.g. "
-                             "1e6/M/s; with --concentration the figure gets a second time "
-                             "axis in minutes.")(func)
+    # a command that already has them (from dna_options) keeps its own: one option, one name
+    present = {param.name for param in getattr(func, "__click_params__", ())}
+    if "concentration" not in present:
+        func = click.option("--concentration", default=None, metavar="C",
+                            help="Total concentration of all agents, e.g. 10nM; with --rate "
+                                 "the figure gets a second time axis in minutes.")(func)
+    if "rate" not in present:
+        func = click.option("--rate", default=None, metavar="K",
+                            help="Bimolecular rate constant the reactions are built at, e.g. "
+                                 "1e6/M/s; with --concentration the figure gets a second time "
+                                 "axis in minutes.")(func)
+    return func
 
 
 def seconds_per_time(net, rate: str | None, concentration: str | None) -> float | None:
