@@ -47,6 +47,7 @@ def block(monkeypatch, target):
     ("ode", "crn.commands.ode.solve_mean_field", []),
     ("compare", "crn.commands.compare.run_ensemble", ["--runs", "2"]),
     ("regimes", "crn.commands.regimes.regime_map", ["--n", "20", "--gap", "2"]),
+    ("ssa", "crn.commands.ssa.run_ensemble", ["--runs", "2"]),
 ])
 @pytest.mark.parametrize("name", ["ode.txt", "c.jpgx", "r.foo"])
 def test_an_unsupported_figure_extension_fails_before_any_work(tmp_path, capsys, monkeypatch,
@@ -295,6 +296,8 @@ def test_the_seed_notice_is_worded_one_way(capsys):
     notices = []
     for argv in (["ssa", "models/voter.toml", "--set", "n=10", "--set", "gap=2", "--runs", "2",
                   "--workers", "1"],
+                 ["ssa", "models/voter.toml", "--set", "n=10", "--set", "gap=2", "--runs", "2",
+                  "--workers", "1", "--every", "1", "--until", "4"],
                  ["regimes", "models/voter.toml", "--n", "10", "--gap", "2", "--method", "exact"],
                  ["copies", "models/voter.toml", "--gap", "2", "--risk", "0.3", "--method",
                   "exact", "--n-max", "20"]):
