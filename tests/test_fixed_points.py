@@ -166,4 +166,12 @@ def test_an_inert_state_gives_its_own_conservation_law():
     laws = conservation_laws(net)
     assert {"U": 1} in [{k: int(v) for k, v in law.items()} for law in laws]
     assert "dU/dt = 0" in format_equations(net)
-    assert find_fixed_points(net)
+    # derived: with u = 1/10 fixed, x' = x y on x + y = 9/10 rests where x y = 0; at
+    # (x, y) = (9/10, 0) the perturbation y' = -x y decays at rate 9/10 (stable), at
+    # (0, 9/10) x' = x y grows at rate 9/10 (unstable)
+    found = {fp.classification: fp for fp in find_fixed_points(net)}
+    assert set(found) == {"stable", "unstable"}
+    assert found["stable"].exact == {"U": "1/10", "X": "9/10", "Y": "0"}
+    assert found["unstable"].exact == {"U": "1/10", "X": "0", "Y": "9/10"}
+    assert found["stable"].eigenvalues == pytest.approx([-0.9])
+    assert found["unstable"].eigenvalues == pytest.approx([0.9])

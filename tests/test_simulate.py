@@ -89,13 +89,12 @@ def test_engine_choice_and_horizon(am_net):
     assert choose_engine(am_net) == "direct"
     with pytest.raises(CRNError, match="unknown engine"):
         choose_engine(am_net, "fast")
-    big = am_net.with_initial({"X": AUTO_BATCHED_FROM, "Y": AUTO_BATCHED_FROM})
-    try:
-        import crn.engines.batched  # noqa: F401
-
-        assert choose_engine(big) == "batched"
-    except ImportError:
-        assert choose_engine(big) == "direct"
+    # documented rule: batched for a protocol from AUTO_BATCHED_FROM = 100,000 agents on
+    big = am_net.with_initial({"X": AUTO_BATCHED_FROM // 2, "Y": AUTO_BATCHED_FROM // 2})
+    assert AUTO_BATCHED_FROM == 100_000 and big.population == AUTO_BATCHED_FROM
+    assert choose_engine(big) == "batched"
+    below = am_net.with_initial({"X": AUTO_BATCHED_FROM // 2, "Y": AUTO_BATCHED_FROM // 2 - 1})
+    assert choose_engine(below) == "direct"
     # documented rule: 20 (1 + ln n) parallel time for a protocol
     assert default_horizon(am_net) == pytest.approx(20 * (1 + math.log(120)))
     with pytest.raises(ValueError, match="runs"):
