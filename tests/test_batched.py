@@ -31,7 +31,7 @@ def _seeds(key, runs):
 
 
 def _generator(net):
-    """Generator of the network's Markov chain on counts (the DESIGN.md propensities)."""
+    """Generator of the network's Markov chain on counts (the propensities of docs/design.md)."""
     n = net.population
     states = [s for s in itertools.product(range(n + 1), repeat=net.n_species) if sum(s) == n]
     index = {s: i for i, s in enumerate(states)}
@@ -109,7 +109,7 @@ def test_small_population_counts_match_the_exact_transient_law(pairing):
 
 
 def test_discrete_clock_matches_the_embedded_chain(pairing):
-    # exact: the protocol's one-interaction transition matrix to the power K (DESIGN.md:
+    # exact: the protocol's one-interaction transition matrix to the power K (docs/design.md:
     # ordered pairs uniform over n(n-1)); K = 6 interactions at n = 8 is time 6/8 exactly
     model = load_model(f"{MODELS}/approximate_majority.toml", {"n": 8, "gap": 2})
     net, protocol = model.network, model.protocol
@@ -172,8 +172,9 @@ def _harmonic(m):
 
 @pytest.mark.parametrize("both_orders", [True, False])
 def test_epidemic_mean_consensus_time_at_a_million(both_orders):
-    # REFERENCES.md [derived]: (n-1) H_{n-1} / n with both orders infecting, twice that when
-    # only the initiator infects; 4 standard errors of the mean of R runs
+    # derived: (n-1) H_{n-1} / n with both orders infecting (from i infected the next
+    # infection takes n (n-1) / (2 i (n-i)) interactions; sum over i, divide by n), twice
+    # that when only the initiator infects; 4 standard errors of the mean of R runs
     n, runs = 10**6, 120
     if both_orders:
         net = load_model(f"{MODELS}/epidemic.toml", {"n": n}).network

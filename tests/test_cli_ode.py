@@ -58,7 +58,7 @@ def test_at_reports_exactly_the_requested_times():
     assert data["fixed_points"] is None
     f0 = 1 / 1000
     t = np.array(data["times"])
-    # derived (REFERENCES.md): logistic f(t) = f0 e^{2t} / (1 - f0 + f0 e^{2t})
+    # derived: logistic f(t) = f0 e^{2t} / (1 - f0 + f0 e^{2t})
     logistic = f0 * np.exp(2 * t) / (1 - f0 + f0 * np.exp(2 * t))
     np.testing.assert_allclose(data["fractions"]["I"], logistic, atol=1e-7)
 

@@ -44,7 +44,8 @@ def consensus_times(net, runs, seed, until=200.0):
 
 
 def test_epidemic_both_orders_mean_time():
-    # derived (REFERENCES.md): both orders infect -> (n-1) H_{n-1} interactions expected,
+    # derived: both orders infect, so from i infected the next infection takes
+    # n (n-1) / (2 i (n-i)) interactions on average; summed over i that is (n-1) H_{n-1},
     # parallel time (n-1) H_{n-1} / n; within 4 standard errors of 3000 runs.
     n = 100
     net = load_model("models/epidemic.toml", {"n": n, "seeds": 1}).network
@@ -54,7 +55,8 @@ def test_epidemic_both_orders_mean_time():
 
 
 def test_epidemic_initiator_only_mean_time():
-    # derived (REFERENCES.md): only the initiator infects -> 2 (n-1) H_{n-1} / n parallel time;
+    # derived: only the initiator infects, so half the infecting pairs of the both-orders
+    # case remain and every wait doubles: 2 (n-1) H_{n-1} / n parallel time;
     # within 4 standard errors of 3000 runs.
     n = 100
     net = parse_model(INITIATOR_ONLY).network
@@ -70,9 +72,10 @@ def birth_death(lam, mu, n0):
 
 
 def test_birth_death_stationary_poisson():
-    # derived (REFERENCES.md): 0 -> X (lambda), X -> 0 (mu x) is stationary Poisson(lambda/mu);
-    # from X0 = 0 the law at t is Poisson((lambda/mu)(1 - e^{-mu t})), at t = 15 the mean
-    # differs by 3e-6 relative. Chi-square, alpha = 0.001, 3000 independent runs.
+    # derived: 0 -> X (lambda), X -> 0 (mu x) is stationary Poisson(lambda/mu) (the
+    # immigration-death chain); from X0 = 0 the law at t is Poisson((lambda/mu)(1 - e^{-mu t})),
+    # at t = 15 the mean differs by e^-15 = 3.1e-7 relative. Chi-square, alpha = 0.001,
+    # 3000 independent runs.
     lam, mu = 12.0, 1.0
     net = birth_death(lam, mu, 0)
     children = np.random.SeedSequence(21).spawn(3000)
@@ -82,7 +85,7 @@ def test_birth_death_stationary_poisson():
 
 
 def test_birth_death_transient_mean():
-    # derived (REFERENCES.md): E X(t) = n0 e^{-mu t} + (lambda/mu)(1 - e^{-mu t});
+    # derived (immigration-death chain): E X(t) = n0 e^{-mu t} + (lambda/mu)(1 - e^{-mu t});
     # each sample time within 4 standard errors of 2000 runs.
     lam, mu, n0 = 5.0, 0.5, 60
     net = birth_death(lam, mu, n0)
@@ -98,7 +101,7 @@ def test_birth_death_transient_mean():
 
 
 def test_pure_decay_is_binomial():
-    # derived (REFERENCES.md): X -> 0 at c gives X(t) ~ Binomial(X0, e^{-ct});
+    # derived: X -> 0 at c gives X(t) ~ Binomial(X0, e^{-ct});
     # chi-square, alpha = 0.001, 3000 runs.
     x0, c, t = 40, 0.7, 1.0
     net = Network.from_reactions("decay", ["X"], [Reaction({"X": 1}, {}, c)], initial={"X": x0})
@@ -192,7 +195,8 @@ def test_bad_horizon_is_refused():
 def test_many_reactions_use_the_incremental_total():
     # 80 independent decays X_i -> 0 (more reactions than the kernel re-sums at every event,
     # so the total propensity is kept incrementally): every X_i(t) ~ Binomial(20, e^{-ct})
-    # (derived, REFERENCES.md pure decay); the 80 x 300 counts pooled, chi-square, alpha = 0.001.
+    # (derived: pure decay, each molecule independently); the 80 x 300 counts pooled,
+    # chi-square, alpha = 0.001.
     k, x0, c, t = 80, 20, 0.7, 1.0
     names = [f"X{i}" for i in range(k)]
     net = Network.from_reactions("decays", names, [Reaction({s: 1}, {}, c) for s in names],

@@ -116,7 +116,7 @@ def test_cancel_and_spread_can_end_undecided():
 
 @pytest.mark.parametrize("n", [2, 10, 50, 200])
 def test_epidemic_time_is_n_minus_1_harmonic(n):
-    # REFERENCES.md [derived]: both orders infect, so from i infected the next
+    # derived: both orders infect, so from i infected the next
     # infection comes at rate 2 i (n - i) / (n - 1) in parallel time; the mean is
     # (n - 1) H_{n-1} / n and the variance the sum of the squared mean waits
     result = exact_outcomes(model_net("epidemic", n=n))

@@ -37,7 +37,7 @@ def _chi_square_pvalue(samples, pmf_values, support):
     [
         (5, 7, 4),  # tiny: inversion
         (3, 997, 500),  # small mode, large population: inversion, sample > half
-        (30, 40, 25),  # mode 10 < 16: inversion
+        (30, 40, 25),  # mode 11 < 16: inversion
         (100, 300, 150),  # ratio of uniforms
         (4000, 1000, 3000),  # ratio of uniforms, more good than bad, sample > half
         (10**6, 3 * 10**6, 1000),  # ratio of uniforms, sample << population

@@ -51,15 +51,16 @@ def test_gap_rounding_keeps_parity():
 
 
 def test_flags_follow_design_rule():
-    # DESIGN.md: misleading when the lower bound exceeds the risk, ok when the upper is below
+    # docs/design.md: misleading when the lower bound exceeds the risk, ok when the upper is below
     assert risk_flag(0.02, 0.3, 0.01) == "misleading"
     assert risk_flag(0.0, 0.009, 0.01) == "ok"
     assert risk_flag(0.005, 0.02, 0.01) == "uncertain"
 
 
 def test_misleading_region_shrinks_with_n(am_map):
-    # Angluin, Aspnes, Eisenstat 2008 / Perron et al. 2009: at a fixed relative gap the error
-    # of approximate majority decays exponentially in n, so fewer relative gaps mislead as n grows
+    # Angluin, Aspnes, Eisenstat 2008: approximate majority is correct with high probability
+    # once the margin is omega(sqrt(n) log n); at a fixed relative gap the margin grows like n,
+    # so its error falls as n grows and fewer relative gaps mislead
     misleading = {n: sum(c.flag == "misleading" for c in am_map.cells if c.n == n) for n in NS}
     counts = [misleading[n] for n in NS]
     assert all(a >= b for a, b in zip(counts, counts[1:], strict=False)), counts

@@ -192,7 +192,7 @@ def test_propensity_convention_of_condon_et_al():
 
 
 def test_epidemic_both_orders_merge_into_one_reaction_of_rate_two():
-    # REFERENCES.md [derived]: with both orders infecting, the mean field is
+    # derived: with both orders infecting, the mean field is
     # dy/dt = 2 y (1 - y), i.e. one reaction I + S -> 2 I of rate 2 (the two ordered pairs)
     p = Protocol("e", ("I", "S"), {("I", "S"): (Outcome("I", "I"),),
                                    ("S", "I"): (Outcome("I", "I"),)}, {"I": 1, "S": 9})

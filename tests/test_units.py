@@ -25,7 +25,7 @@ from crn.units import (
 
 
 def test_one_nanomolar_in_one_microlitre():
-    # REFERENCES.md Units: N_A = 6.02214076e23 /mol exact since the 2019 SI (IUPAC Gold Book);
+    # N_A = 6.02214076e23 /mol exact since the 2019 SI (IUPAC Gold Book);
     # 1 nM in 1 uL = 6.02214076e8 molecules
     assert AVOGADRO == 6.02214076e23
     n = copies(parse_concentration("1nM"), parse_volume("1uL"))
