@@ -5,7 +5,7 @@ BIN := $(VENV)/bin
 STAMP := $(VENV)/.installed
 TEST_STAMP := $(VENV)/.installed-test
 
-.PHONY: demo test lint bench clean
+.PHONY: demo test test-slow lint bench clean
 
 $(BIN)/python:
 	$(PYTHON) -m venv $(VENV)
@@ -24,6 +24,10 @@ demo: $(STAMP)
 
 test: $(TEST_STAMP)
 	$(BIN)/python -m pytest -q
+
+# the long statistical runs (marked slow; a faster test of the same code is in `make test`)
+test-slow: $(TEST_STAMP)
+	$(BIN)/python -m pytest -q -m slow
 
 lint: $(TEST_STAMP)
 	$(BIN)/ruff check crn tests benchmarks

@@ -6,7 +6,7 @@ that a run disagrees with the ODE's label, with a 95% interval simultaneous
 over the sequential looks (Clopper-Pearson, Bonferroni), and the stochastic
 median consensus time. A cell is ``misleading`` when the interval
 lies wholly above the risk, ``ok`` when wholly below, ``uncertain`` otherwise
-(DESIGN.md); its time flag says whether the stochastic median and the ODE time
+(docs/design.md); its time flag says whether the stochastic median and the ODE time
 differ by more than a factor. The boundary where the disagreement probability
 crosses the risk is fitted as ``gap_c ~ n**b`` on log-log axes.
 """

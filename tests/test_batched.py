@@ -292,6 +292,32 @@ def test_mean_field_check_detects_a_one_percent_rate_error(reaction):
     assert _worst_z(wrong, ode, var, times, _seeds(70 + reaction, 1)) > bound
 
 
+@pytest.mark.slow
+def test_batched_ensemble_has_the_linear_noise_mean_and_variance():
+    # The long version of the mean-field check (the fast one above covers the same code):
+    # 1000 runs at n = 1e6 from (0.5, 0.4, 0.1); at each of the 12 sample times the mean of
+    # X/n must lie within the Bonferroni normal bound of the ODE (sd from _linear_noise over
+    # sqrt(runs)), and the sample variance must pass the two-sided chi-square test
+    # (runs - 1) s^2 / var ~ chi2(runs - 1) against the linear-noise variance; 24 tests,
+    # overall level ALPHA. derived: the next-order corrections are O(1/n) relative.
+    from crn.ode import solve_mean_field
+
+    n, runs = 10**6, 1000
+    net = _am(n, 0).with_initial({"X": n // 2, "Y": 2 * n // 5, "B": n // 10})
+    times = np.linspace(0.0, 6.0, 13)
+    ode = solve_mean_field(net, times=times, stop_at_consensus=False).values
+    _, var = _linear_noise(net, times)
+    x = np.array([run_batched(net, until=times[-1], times=times, rng=child).counts[1:, 0] / n
+                  for child in _seeds(77, runs)])
+    tests = 2 * (len(times) - 1)
+    z = stats.norm.isf(ALPHA / (2 * tests))
+    assert (np.abs(x.mean(axis=0) - ode[1:, 0]) < z * np.sqrt(var[1:, 0] / runs)).all()
+    ratio = (runs - 1) * x.var(axis=0, ddof=1) / var[1:, 0]
+    low = stats.chi2.ppf(ALPHA / (2 * tests), runs - 1)
+    high = stats.chi2.isf(ALPHA / (2 * tests), runs - 1)
+    assert ((low < ratio) & (ratio < high)).all(), ratio / (runs - 1)
+
+
 def test_direct_and_batched_agree_in_distribution(pairing):
     # two-sample KS on consensus times and chi-square on X at a fixed time, both at ALPHA
     from crn.engines.direct import run_direct

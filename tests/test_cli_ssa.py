@@ -117,7 +117,7 @@ def test_compare_json_table_and_plot(tmp_path):
 
 
 def assert_compare_ode_contract(ode):
-    """compare's ``ode`` is the ``crn ode --json`` object (DESIGN.md CLI contract)."""
+    """compare's ``ode`` is the ``crn ode --json`` object (docs/design.md CLI contract)."""
     assert {"times", "fractions", "consensus", "fixed_points"} <= set(ode)
     alone = json.loads(invoke(["ode", AM, *SMALL, "--json"]).stdout)
     # same ODE as `crn ode`; both solves locate the consensus event at rtol 1e-10

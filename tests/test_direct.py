@@ -6,6 +6,7 @@ import numpy as np
 import pytest
 from scipy import stats
 from scipy.linalg import expm
+from seeds import seed
 from ssa_checks import chi_square_pvalue
 
 from crn.engines.direct import dependency_graph, run_direct
@@ -33,8 +34,8 @@ def harmonic(m):
     return sum(1.0 / k for k in range(1, m + 1))
 
 
-def consensus_times(net, runs, seed, until=200.0):
-    children = np.random.SeedSequence(seed).spawn(runs)
+def consensus_times(net, runs, key, until=200.0):
+    children = np.random.SeedSequence(seed(key)).spawn(runs)
     out = np.empty(runs)
     for i, child in enumerate(children):
         run = run_direct(net, until=until, times=[0.0], rng=child, stop_at_consensus=True)
@@ -49,7 +50,7 @@ def test_epidemic_both_orders_mean_time():
     # parallel time (n-1) H_{n-1} / n; within 4 standard errors of 3000 runs.
     n = 100
     net = load_model("models/epidemic.toml", {"n": n, "seeds": 1}).network
-    t = consensus_times(net, 3000, seed=11)
+    t = consensus_times(net, 3000, key=11)
     expected = (n - 1) * harmonic(n - 1) / n
     assert abs(t.mean() - expected) < 4 * t.std(ddof=1) / math.sqrt(t.size)
 
@@ -60,7 +61,7 @@ def test_epidemic_initiator_only_mean_time():
     # within 4 standard errors of 3000 runs.
     n = 100
     net = parse_model(INITIATOR_ONLY).network
-    t = consensus_times(net, 3000, seed=12, until=400.0)
+    t = consensus_times(net, 3000, key=12, until=400.0)
     expected = 2 * (n - 1) * harmonic(n - 1) / n
     assert abs(t.mean() - expected) < 4 * t.std(ddof=1) / math.sqrt(t.size)
 
@@ -78,7 +79,7 @@ def test_birth_death_stationary_poisson():
     # 3000 independent runs.
     lam, mu = 12.0, 1.0
     net = birth_death(lam, mu, 0)
-    children = np.random.SeedSequence(21).spawn(3000)
+    children = np.random.SeedSequence(seed(21)).spawn(3000)
     x = np.array([run_direct(net, until=15.0, times=[15.0], rng=c).counts[0, 0]
                   for c in children])
     assert chi_square_pvalue(x, lambda k: stats.poisson.pmf(k, lam / mu), 40) > ALPHA
@@ -90,7 +91,7 @@ def test_birth_death_transient_mean():
     lam, mu, n0 = 5.0, 0.5, 60
     net = birth_death(lam, mu, n0)
     times = np.array([0.0, 0.5, 1.0, 2.0, 4.0])
-    children = np.random.SeedSequence(22).spawn(2000)
+    children = np.random.SeedSequence(seed(22)).spawn(2000)
     x = np.stack([run_direct(net, until=4.0, times=times, rng=c).counts[:, 0]
                   for c in children])
     assert (x[:, 0] == n0).all()
@@ -105,7 +106,7 @@ def test_pure_decay_is_binomial():
     # chi-square, alpha = 0.001, 3000 runs.
     x0, c, t = 40, 0.7, 1.0
     net = Network.from_reactions("decay", ["X"], [Reaction({"X": 1}, {}, c)], initial={"X": x0})
-    children = np.random.SeedSequence(23).spawn(3000)
+    children = np.random.SeedSequence(seed(23)).spawn(3000)
     x = np.array([run_direct(net, until=t, times=[t], rng=ch).counts[0, 0] for ch in children])
     p = math.exp(-c * t)
     assert chi_square_pvalue(x, lambda k: stats.binom.pmf(k, x0, p), x0) > ALPHA
@@ -131,7 +132,7 @@ def test_mixed_orders_match_the_master_equation():
     p0[25] = 1.0
     pt = p0 @ expm(q * t)
     assert 1.0 - pt.sum() < 1e-9
-    children = np.random.SeedSequence(24).spawn(3000)
+    children = np.random.SeedSequence(seed(24)).spawn(3000)
     x = np.array([run_direct(net, until=t, times=[t], rng=ch).counts[0, 0] for ch in children])
     assert chi_square_pvalue(x, lambda k: pt[k], n_max) > ALPHA
 
@@ -165,7 +166,7 @@ def test_stop_at_consensus_and_horizon():
 def test_huge_counts_do_not_overflow():
     # n = 1e9: propensities ~ 1e9 in float64, counts int64; the run keeps the population.
     net = load_model("models/approximate_majority.toml", {"n": 10**9, "gap": 0}).network
-    run = run_direct(net, until=2e-4, times=[0.0, 2e-4], rng=3)
+    run = run_direct(net, until=2e-4, times=[0.0, 2e-4], rng=seed(3))
     assert run.counts[-1].sum() == 10**9
     # derived: total propensity 2 x y / (n - 1) = n / 2 at x = y = n / 2, nearly constant over
     # so short a time, so the events are Poisson with mean (n / 2) t = 1e5; 6 standard deviations
@@ -201,7 +202,7 @@ def test_many_reactions_use_the_incremental_total():
     names = [f"X{i}" for i in range(k)]
     net = Network.from_reactions("decays", names, [Reaction({s: 1}, {}, c) for s in names],
                                  initial={s: x0 for s in names})
-    children = np.random.SeedSequence(25).spawn(300)
+    children = np.random.SeedSequence(seed(25)).spawn(300)
     x = np.concatenate([run_direct(net, until=t, times=[t], rng=ch).counts[0] for ch in children])
     p = math.exp(-c * t)
     assert chi_square_pvalue(x, lambda j: stats.binom.pmf(j, x0, p), x0) > ALPHA

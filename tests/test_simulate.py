@@ -4,6 +4,7 @@ import math
 
 import numpy as np
 import pytest
+from seeds import seed
 from ssa_checks import two_sample_chi_square_pvalue
 
 from crn.errors import CRNError
@@ -109,10 +110,10 @@ def test_direct_and_reference_engines_agree_in_distribution():
     net = load_model("models/approximate_majority.toml", {"n": 40, "gap": 4}).network
     times = [0.0, 1.0, 2.0]
     x = net.index["X"]
-    ours = simulate(net, runs=400, until=2.0, times=times, engine="direct", rng=31, workers=1)
+    ours = simulate(net, runs=400, until=2.0, times=times, engine="direct", rng=seed(31), workers=1)
     ref = np.array([run_reference(net, until=2.0, times=times, rng=child,
                                   solver="numpy").counts[-1, x]
-                    for child in np.random.SeedSequence(32).spawn(400)])
+                    for child in np.random.SeedSequence(seed(32)).spawn(400)])
     assert two_sample_chi_square_pvalue(ours.counts[:, -1, x], ref) > ALPHA
 
 
@@ -124,8 +125,8 @@ def test_direct_and_batched_engines_agree_in_distribution():
 
     net = load_model("models/approximate_majority.toml", {"n": 1000, "gap": 20}).network
     common = dict(runs=600, until=80.0, times=[0.0, 3.0], workers=1)
-    direct = simulate(net, engine="direct", rng=41, **common)
-    batched = simulate(net, engine="batched", rng=42, **common)
+    direct = simulate(net, engine="direct", rng=seed(41), **common)
+    batched = simulate(net, engine="batched", rng=seed(42), **common)
     assert batched.engine == "batched"
     assert direct.outcomes()["none"] == 0 and batched.outcomes()["none"] == 0
     assert stats.ks_2samp(direct.consensus_times, batched.consensus_times).pvalue > ALPHA

@@ -104,7 +104,7 @@ def test_conversions_round_trip(conc, vol):
 
 
 def test_parallel_time_unit():
-    # DESIGN.md physical units: one unit of parallel time = 1 / (k_phys C) seconds;
+    # docs/design.md physical units: one unit of parallel time = 1 / (k_phys C) seconds;
     # derived: k = 1e6 /M/s, C = 10 nM -> 100 s
     assert seconds_per_parallel_time(1e6, 1e-8) == pytest.approx(100.0, rel=1e-15)
     assert to_seconds(36.0, 1e6, 1e-8) == pytest.approx(3600.0)
