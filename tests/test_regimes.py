@@ -112,7 +112,7 @@ def test_boundary_exponent_matches_an_independent_exact_computation(am_map):
     # same way (linear in log gap, log p; the uppermost crossing). Both are exact, so they
     # agree to solver precision (1e-6 allowed). Angluin, Aspnes, Eisenstat, Distributed
     # Computing 21(2), 2008: at a fixed risk the critical gap grows like sqrt(n) up to log
-    # factors, so on this grid the slope lies near 1/2 (0.51 here; 0.05 allowed for the log
+    # factors, so on this grid the slope lies near 1/2 (0.517 here; 0.05 allowed for the log
     # factors over n = 40..320).
     b = am_map.boundary
     assert len(b.critical_gaps) == len(NS)
