@@ -63,6 +63,7 @@ RUNS = {
     "copies": ["copies", AM, "--gap-fraction", "0.3", "--risk", "0.1", "--method", "exact",
                "--seed", "1"],
     "check": ["check", AM],
+    "implement": ["implement", AM, *SMALL],
 }
 
 
