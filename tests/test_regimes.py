@@ -267,7 +267,7 @@ def test_four_state_exact_majority_never_misleads_and_slows_with_smaller_gap():
     # Draief, Vojnovic 2012: its time grows as the margin shrinks, like 1 / epsilon.
     net = load_model(EM).network
     gaps = [2, 4, 8, 16, 32]
-    result = regime_map(InitialSplit(net), [64, 128], gaps=gaps, rng=3, method="exact")
+    result = regime_map(InitialSplit(net), [64, 128], gaps=gaps, rng=seed(3), method="exact")
     for c in result.cells:
         assert c.flag == "ok"
         assert c.low == pytest.approx(0.0, abs=1e-9)
