@@ -192,6 +192,24 @@ def test_exponent_interval_covers_a_known_exponent_at_its_level():
     assert abs(np.mean(estimates)) < 4 * np.std(estimates, ddof=1) / math.sqrt(maps)
 
 
+def test_bootstrap_crossings_equal_the_scalar_crossings():
+    # the bootstrap finds crossings for all replicates at once; on one replicate it must give
+    # exactly the critical gaps of the scalar scan (same rule: the uppermost crossing, none
+    # when even the largest gap exceeds the risk), here on maps with small and large counts
+    from crn.regimes import _critical_gaps, _critical_gaps_many
+
+    rng = np.random.default_rng(seed(18))
+    for _ in range(50):
+        cells = _synthetic_cells(rng, 0.5, runs=int(rng.integers(50, 2000)))
+        p = np.array([[c.p_wrong for c in cells]])
+        ns, log_gaps = _critical_gaps_many(cells, 0.01, p)
+        many = {int(n): math.exp(g) for n, g in zip(ns, log_gaps[0], strict=True)
+                if np.isfinite(g)}
+        one = dict(_critical_gaps(cells, 0.01, p[0]))
+        assert many.keys() == one.keys()
+        assert [many[n] for n in one] == pytest.approx(list(one.values()), rel=1e-12)
+
+
 def test_too_few_bracketed_n_give_no_exponent_and_merged_fractions_are_reported():
     # derived: a line through two points always fits, so two crossings say nothing about a
     # power law; with two bracketed n there is no exponent, only the reason
