@@ -178,7 +178,7 @@ class Boundary:
     def describe(self, digits: int = 2) -> str:
         """One line: the exponent with what its interval is, or why there is none."""
         if self.exponent is None:
-            return self.note
+            return self.note or f"no exponent (fewer than {MIN_BRACKETED} n with a crossing)"
         f = f".{digits}f"
         text = f"critical gap ~ n^{self.exponent:{f}}"
         if self.low is not None:

@@ -14,7 +14,8 @@ from ..model import parse_overrides
 __all__ = ["model_argument", "set_option", "seed_option", "json_option", "load", "emit_json",
            "progress_bar", "to_jsonable", "OUTPUT_FILE", "dna_options", "dna_parameters",
            "dna_errors", "build_implementation", "DNA_OPTION_NAMES", "DEFAULT_DNA_RATE",
-           "DEFAULT_DNA_CONCENTRATION"]
+           "DEFAULT_DNA_CONCENTRATION", "every_option", "force_option",
+           "sample_times_option_value"]
 
 
 def model_argument(func):
@@ -393,3 +394,67 @@ def build_implementation(formal, scheme: str, params, option: str = "--scheme"):
             raise
         except CRNError as err:
             raise CRNError(f"{option} {scheme}: {err}") from None
+
+
+def every_option(func):
+    """Add ``--every DT`` (sample interval of a time course, default None) to a click command.
+
+    Parameters
+    ----------
+    func : callable
+        The command function to decorate.
+
+    Returns
+    -------
+    callable
+        ``func`` with the option, passed to it as ``every`` (float or None).
+    """
+    return click.option("--every", type=float, default=None, metavar="DT",
+                        help="Record a time course every DT time units up to --until and "
+                             "report it (mean, sd, 5% and 95% quantiles per species).")(func)
+
+
+def force_option(func):
+    """Add the ``--force`` flag (go ahead past a size limit) to a click command.
+
+    Parameters
+    ----------
+    func : callable
+        The command function to decorate.
+
+    Returns
+    -------
+    callable
+        ``func`` with the flag, passed to it as ``force`` (bool).
+    """
+    return click.option("--force", is_flag=True,
+                        help="Go ahead even past a size limit (more than 1,000,000 sample "
+                             "times, say).")(func)
+
+
+def sample_times_option_value(every: float, until: float, force: bool):
+    """The sample times of ``--every`` up to ``until``, or a one-line ``--every`` error.
+
+    Parameters
+    ----------
+    every : float
+    until : float
+    force : bool
+
+    Returns
+    -------
+    ndarray of float64
+
+    Raises
+    ------
+    click.BadParameter
+        For an interval that is not positive, longer than the horizon, or
+        makes more sample times than :data:`crn.time_course.MAX_SAMPLES`
+        without ``--force``.
+    """
+    from ..time_course import sample_times
+
+    try:
+        return sample_times(every, until, force=force)
+    except ValueError as err:
+        raise click.BadParameter(str(err), param_hint="--every") from err
