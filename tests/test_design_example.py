@@ -64,6 +64,7 @@ RUNS = {
                "--seed", "1"],
     "check": ["check", AM],
     "implement": ["implement", AM, *SMALL],
+    "report": ["report", AM, *SMALL, "--runs", "0", "--regime-n", "", "--seed", "1"],
 }
 
 
@@ -72,7 +73,8 @@ def test_every_command_is_in_the_design_table():
 
 
 @pytest.mark.parametrize("command", sorted(RUNS))
-def test_json_has_the_documented_keys(command):
+def test_json_has_the_documented_keys(command, tmp_path, monkeypatch):
+    monkeypatch.chdir(tmp_path)  # files a command writes by default land here
     result = CliRunner().invoke(cli, [*RUNS[command], "--json"])
     assert result.exit_code in (0, 1), result.output  # verify exits 1 on a counterexample
     data = json.loads(result.stdout)
