@@ -178,9 +178,8 @@ def run_demo(out, *, quick: bool = False, seed: int = 20261201, workers: int = 2
         echo(f"  {n:>7} " + " ".join(f"{c.flag:>11}" for c in row))
     echo(f"  ({time.perf_counter() - started:.0f} s so far)")
     b = rmap.boundary
-    if b.exponent is not None:
-        echo(f"  critical gap grows like n^{b.exponent:.2f} (95% interval {b.low:.2f} .. "
-             f"{b.high:.2f}); theory: sqrt(n) up to log factors (Angluin et al. 2008)")
+    theory = "; theory: sqrt(n) up to log factors (Angluin et al. 2008)"
+    echo(f"  {b.describe()}" + (theory if b.exponent is not None else ""))
     ax = plot_regime_map(rmap, title=f"{model.name.split('(')[0].strip()}: regime map")
     _figure_path(out, "regime_map.png", ax.figure)
     write_atomic(out / "regime_map.csv", table_csv(rmap.cells))

@@ -1,6 +1,6 @@
 """Models: the parsed content of a model file, ready for the engines.
 
-:func:`parse_model` turns the text of a TOML model (DESIGN.md format) into a
+:func:`parse_model` turns the text of a TOML model (docs/design.md format) into a
 :class:`Model`; it never touches the file system. Opening files (and running
 trusted Python model files) is :mod:`crn.io.models`' job.
 """
@@ -253,7 +253,7 @@ def parse_model(text: str, *, source: str = "<string>", overrides: Mapping | Non
     Parameters
     ----------
     text : str
-        The file's content (DESIGN.md format).
+        The file's content (docs/design.md format).
     source : str
         File name used in error messages.
     overrides : mapping of str to number, optional

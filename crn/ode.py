@@ -3,7 +3,7 @@
 For a network translated from a protocol the state is the vector of fractions
 ``y = x / n`` in the limit n -> infinity; for any other network it is the
 vector of concentrations ``c = x / volume``. Both obey the same mass-action law
-``d/dt y = sum_R k_R nu_R prod_s y_s**r_sR`` (DESIGN.md, Semantics).
+``d/dt y = sum_R k_R nu_R prod_s y_s**r_sR`` (docs/design.md, Semantics).
 
 The law is evaluated in complex form: reactions that share a reactant
 multiset (a *complex*) share one monomial ``psi_c(y) = prod_s y_s**r_sc``, so

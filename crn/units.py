@@ -5,7 +5,7 @@ Concentrations (``10nM``), volumes (``5 uL``), bimolecular rate constants
 accepted list is an error whose message lists the accepted units. Copy numbers
 follow ``n = C V N_A`` with the exact SI 2019 Avogadro constant, and one unit
 of parallel time of a protocol built at ``k_phys`` and total concentration
-``C`` lasts ``1 / (k_phys C)`` seconds (DESIGN.md, physical units).
+``C`` lasts ``1 / (k_phys C)`` seconds (docs/design.md, physical units).
 """
 
 from __future__ import annotations

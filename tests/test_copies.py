@@ -4,6 +4,7 @@ import json
 
 import pytest
 from click.testing import CliRunner
+from seeds import seed
 
 from crn.cli import cli, main
 from crn.copies import lattice, physical_outputs, smallest_n
@@ -48,7 +49,7 @@ def test_stochastic_search_interval_contains_exact_smallest_n():
     nets = InitialSplit(load_model(AM).network)
     risk = 0.05
     exact_n = _exact_smallest(nets, lattice(0.2), 1 - risk)
-    result = smallest_n(nets, gap_fraction=0.2, risk=risk, method="stochastic", rng=11,
+    result = smallest_n(nets, gap_fraction=0.2, risk=risk, method="stochastic", rng=seed(11),
                         runs_max=4000)
     assert result.low <= exact_n <= result.high, (result.low, exact_n, result.high)
     assert result.ended == "found"
@@ -71,7 +72,7 @@ def test_deadline_search_matches_transient_scan():
 
 
 def test_physical_outputs():
-    # DESIGN.md: n = C V N_A; one unit of parallel time = 1 / (k C) s
+    # docs/design.md: n = C V N_A; one unit of parallel time = 1 / (k C) s
     out = physical_outputs(6022, concentration_molar=1e-8, rate=1e6, parallel_time=20.0)
     assert out["volume_liters"] == pytest.approx(6022 / (1e-8 * AVOGADRO))
     assert out["seconds"] == pytest.approx(2000.0)

@@ -45,7 +45,7 @@ def test_demo_numbers_are_consistent_with_units_and_exact_analysis(demo):
     s = SETTINGS["quick"]
     chosen = summary["chosen"]
     conc, n = chosen["concentration_molar"], chosen["copies"]
-    # DESIGN.md physical units: V = n / (C N_A); deadline 2 h = 7200 s * k * C parallel time
+    # docs/design.md physical units: V = n / (C N_A); deadline 2 h = 7200 s * k * C parallel time
     assert chosen["volume_liters"] == pytest.approx(n / (conc * AVOGADRO), rel=1e-12)
     assert chosen["deadline_parallel"] == pytest.approx(7200 * 1e6 * conc, rel=1e-12)
     assert chosen["median_hours"] < 2.0

@@ -223,7 +223,7 @@ def _plot(result, name: str, path, seconds=None) -> None:
 
 
 def mean_field_json(model, result, fixed_points, *, consensus=None) -> dict:
-    """The ``crn ode --json`` object (DESIGN.md CLI contract) of a mean-field solve.
+    """The ``crn ode --json`` object (docs/design.md CLI contract) of a mean-field solve.
 
     Parameters
     ----------

@@ -81,9 +81,11 @@ def result_json(model_name: str, result: RegimeMap) -> dict:
         "seed": result.seed_entropy,
         "cells": result.table(),
         "exponent": {k: v for k, v in result.boundary.to_dict().items()
-                     if k in ("estimate", "low", "high")},
+                     if k in ("estimate", "low", "high", "interval", "grid_low", "grid_high",
+                              "bracketed", "note")},
         "boundary": result.boundary.to_dict(),
         "skipped": [{"n": n, "gap": g} for n, g in result.skipped],
+        "merged": list(result.merged),
     }
 
 
@@ -216,11 +218,11 @@ def _text(name, result: RegimeMap) -> str:
             f"{c.n:>10} {c.gap:>8} {c.ode_label or '-':>5} {_fmt(c.ode_time):>8} "
             f"{c.p_wrong:>12.4g} [{c.low:8.3g}, {c.high:8.3g}] {c.runs:>6} {c.flag:>10} "
             f"{_fmt(c.ssa_median_time):>8} {c.time_flag:>7} {c.method}")
+    for m in result.merged:
+        lines.append(f"merged: at n={m['n']} the gap fractions "
+                     + ", ".join(f"{f:g}" for f in m["gap_fractions"])
+                     + f" all round to gap {m['gap']} (one cell)")
     b = result.boundary
-    if b.exponent is None:
-        lines.append("boundary: too few n with a crossing inside the gap range to fit")
-    else:
-        lines.append(f"boundary: critical gap ~ n^{b.exponent:.3f} (95% interval "
-                     f"[{b.low:.3f}, {b.high:.3f}]) over "
-                     + ", ".join(f"n={n}: {g:.3g}" for n, g in b.critical_gaps))
+    where = ", ".join(f"n={n}: {g:.3g}" for n, g in b.critical_gaps)
+    lines.append(f"boundary: {b.describe(3)}" + (f"; critical gaps {where}" if where else ""))
     return "\n".join(lines)

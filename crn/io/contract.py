@@ -1,4 +1,4 @@
-"""The JSON contract object of a network (DESIGN.md, ``crn translate --json``) and its reader.
+"""The JSON contract object of a network (docs/design.md, ``crn translate --json``) and its reader.
 
 The object holds at least ``species``, ``initial``, ``volume`` and
 ``reactions`` (each ``{reactants: {name: mult}, products: {name: mult},

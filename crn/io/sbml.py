@@ -377,7 +377,7 @@ def _rate_constant(expr, reactants, volume):
     """Rate constant k of a mass-action law (a sympy expression over amounts), or raise.
 
     The law must equal ``c * prod_s x_s (x_s - 1) ... (x_s - r_s + 1)`` (the propensity
-    convention of DESIGN.md: ``2 A`` counts a (a - 1), no 1/2) or ``c * prod_s x_s^r_s`` (the
+    convention of docs/design.md: ``2 A`` counts a (a - 1), no 1/2) or ``c * prod_s x_s^r_s`` (the
     deterministic form, read with the same constant) for a number c >= 0, in any
     algebraically equivalent form; then ``k = c * volume^(order - 1)``.
     """
@@ -573,7 +573,7 @@ def network_from_sbml(text: str, *, source: str = "<sbml>") -> Network:
     ``hasOnlySubstanceUnits`` is false stands for ``x_s / size``), so
     ``k * X * (X - 1) / 2``, ``k * X / 2 / 0.5`` and ``cell * k * X`` are all
     read. The rate constant is ``c * volume^(order - 1)`` under this project's
-    propensity convention (DESIGN.md): ``k * X * (X - 1) / 2`` for ``2 X`` gives
+    propensity convention (docs/design.md): ``k * X * (X - 1) / 2`` for ``2 X`` gives
     ``k / 2``.
 
     References

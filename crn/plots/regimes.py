@@ -67,8 +67,9 @@ def plot_regime_map(regime_map, *, ax=None, title: str | None = None):
     if boundary.exponent is not None:
         grid = np.geomspace(ns.min(), ns.max(), 50)
         ax.plot(grid, boundary.prefactor * grid ** boundary.exponent, "--", c=PALETTE[4],
-                label=f"fit: gap ~ n^{boundary.exponent:.2f} "
-                      f"[{boundary.low:.2f}, {boundary.high:.2f}]")
+                label=f"fit: gap ~ n^{boundary.exponent:.2f}"
+                      + ("" if boundary.low is None else
+                         f" (95% CI {boundary.low:.2f} .. {boundary.high:.2f})"))
     ax.set_xscale("log")
     ax.set_yscale("log")
     ax.set_xlabel("n (agents / molecules of the two inputs)")

@@ -294,9 +294,11 @@ def _as_regime_map(obj):
         boundary = Boundary(
             exponent=b.get("estimate"), low=b.get("low"), high=b.get("high"),
             prefactor=b.get("prefactor"),
-            critical_gaps=tuple((c["n"], c["gap"]) for c in b.get("critical_gaps", ())))
+            critical_gaps=tuple((c["n"], c["gap"]) for c in b.get("critical_gaps", ())),
+            grid_low=b.get("grid_low"), grid_high=b.get("grid_high"), note=b.get("note") or "")
         return RegimeMap(cells=cells, boundary=boundary, risk=float(obj["risk"]),
                          time_factor=float(obj.get("time_factor", 2.0)),
-                         seed_entropy=int(obj.get("seed") or 0))
+                         seed_entropy=int(obj.get("seed") or 0),
+                         merged=tuple(obj.get("merged") or ()))
     except (KeyError, TypeError, ValueError) as err:
         raise CRNError(f"regimes.json: not a saved regime map ({err})") from err
