@@ -275,7 +275,7 @@ def _feasibility_row(result, conc, deadline, rate) -> dict:
                copies_low=result.low, copies_high=result.high, copies_below=result.below,
                volume_liters=None, volume_low_liters=None, volume_high_liters=None,
                median_hours=None, p_wrong=None, p_wrong_low=None, p_wrong_high=None,
-               risk_loading=None, risk_kinetics=None, loading_reversal=None,
+               p_wrong_runs=None, risk_loading=None, risk_kinetics=None, loading_reversal=None,
                loading=result.loading, method=result.method)
     if result.estimate is None:
         return row
@@ -286,6 +286,7 @@ def _feasibility_row(result, conc, deadline, rate) -> dict:
         row["median_hours"] = to_seconds(result.median_time, rate, conc) / 3600
     at = result.at_estimate
     row["p_wrong"], row["p_wrong_low"], row["p_wrong_high"] = at.p_wrong
+    row["p_wrong_runs"] = at.trials
     if at.loading == "poisson":
         row["risk_loading"], row["risk_kinetics"] = at.wrong_loading, at.wrong_kinetics
         row["loading_reversal"] = at.reversal
