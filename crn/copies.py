@@ -28,7 +28,14 @@ from fractions import Fraction
 import numpy as np
 
 from .errors import CRNError
-from .loading import LOADINGS, draw_droplets, droplet_network, loading_grid, split_decisions
+from .loading import (
+    LOADINGS,
+    draw_droplets,
+    droplet_network,
+    loading_grid,
+    reversal_probability,
+    split_decisions,
+)
 from .network import Network
 from .outcome import correct_label
 from .probes import (
@@ -74,11 +81,16 @@ class Probe:
         mean; each input's count is Poisson, see :mod:`crn.loading`).
     reversal : float or None
         Poisson loading: probability that a droplet's minority count reaches
-        or passes its majority count (the sign of the gap reversed or zeroed).
+        or passes its majority count (the sign of the gap reversed or zeroed;
+        exact, the Skellam distribution).
     wrong_loading, wrong_kinetics : float or None
         Poisson loading: P(no correct decision) split into droplets whose
         counts were reversed or tied (loading) and droplets that held the
-        right majority (kinetics); they add up to ``1 - p``.
+        right majority (kinetics). Exact probes: they add up to ``1 - p``.
+        Sampled probes: ``reversal`` (or ``1 - reversal``) times the share of
+        wrong runs among the droplets drawn reversed (or not), which adds up
+        to about ``1 - p``; with no reversed droplet drawn the loading part is
+        ``reversal`` itself, an upper bound.
     """
 
     n: int
@@ -360,11 +372,15 @@ class Prober:
         est = sample_until_decided(count, draw, target, self.runs_max, first=FIRST_ROUND)
         ok = outcome()
         reversed_ = store["minor"] >= store["major"]
-        trials = max(len(ok), 1)
+        # post-stratified on the exact reversal probability; with no reversed droplet drawn
+        # (rare loadings) the loading part is bounded by that probability itself
+        reversal = reversal_probability(n, gap)
+        wrong_rev = float((~ok[reversed_]).mean()) if reversed_.any() else 1.0
+        wrong_right = float((~ok[~reversed_]).mean()) if (~reversed_).any() else 1.0
         return Probe(n, gap, est.p, est.low, est.high, est.successes, est.trials, "stochastic",
-                     deadline, loading="poisson", reversal=float(reversed_.mean()),
-                     wrong_loading=float((~ok & reversed_).sum() / trials),
-                     wrong_kinetics=float((~ok & ~reversed_).sum() / trials))
+                     deadline, loading="poisson", reversal=reversal,
+                     wrong_loading=reversal * wrong_rev,
+                     wrong_kinetics=(1.0 - reversal) * wrong_right)
 
     def _poisson_exact(self, n, gap, deadline, truth, grid) -> Probe:
         p = wrong_loading = wrong_kinetics = 0.0

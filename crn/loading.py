@@ -28,6 +28,7 @@ __all__ = [
     "LoadingGrid",
     "poisson_means",
     "loading_grid",
+    "reversal_probability",
     "draw_droplets",
     "droplet_network",
     "split_decisions",
@@ -119,6 +120,21 @@ def loading_grid(n: float, gap: float, tail: float = 1e-9) -> LoadingGrid:
     a, b = np.meshgrid(axes[0], axes[1], indexing="ij")
     w = np.outer(probs[0], probs[1])
     return LoadingGrid(a.ravel(), b.ravel(), w.ravel(), covered)
+
+
+def reversal_probability(n: float, gap: float, tail: float = 1e-12) -> float:
+    """P(the minority count reaches or passes the majority count) under Poisson loading.
+
+    ``sum_a P(A = a) P(B >= a)`` over the majority count's Poisson range
+    (all but ``tail``): the Skellam probability ``P(A - B <= 0)``, in one
+    dimension so it stays cheap for large droplets.
+    """
+    from scipy.stats import poisson
+
+    lam_a, lam_b = poisson_means(n, gap)
+    lo, hi = int(poisson.ppf(tail / 2, lam_a)), int(poisson.isf(tail / 2, lam_a))
+    a = np.arange(lo, hi + 1)
+    return float(poisson.pmf(a, lam_a) @ poisson.sf(a - 1, lam_b))
 
 
 def draw_droplets(n: float, gap: float, size: int, rng) -> tuple[np.ndarray, np.ndarray]:

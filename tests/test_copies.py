@@ -126,7 +126,7 @@ US = "models/undecided_state.toml"
 DROPLET = "models/droplet_assay.toml"
 
 
-@functools.lru_cache(maxsize=None)
+@functools.cache
 def _safe_answer(path, fraction, risk, seed, deadline=None):
     nets = InitialSplit(load_model(path).network)
     result = smallest_n(nets, gap_fraction=fraction, risk=risk, deadline=deadline,

@@ -16,6 +16,7 @@ from crn.loading import (
     droplet_network,
     loading_grid,
     poisson_means,
+    reversal_probability,
     split_decisions,
 )
 from crn.probes import InitialSplit
@@ -39,6 +40,8 @@ def test_reversal_matches_the_skellam_distribution(n, gap):
     assert reversed_ == pytest.approx(skellam.cdf(-1, lam_a, lam_b), abs=1e-8)
     assert tied == pytest.approx(skellam.pmf(0, lam_a, lam_b), abs=1e-8)
     assert 1 - 1e-9 <= grid.covered <= 1
+    # the one-dimensional sum used for large droplets
+    assert reversal_probability(n, gap) == pytest.approx(skellam.cdf(0, lam_a, lam_b), abs=1e-10)
 
 
 def test_droplet_draws_follow_the_poisson_means():
@@ -108,9 +111,12 @@ def test_sampled_poisson_probe_agrees_with_the_exact_one(nets):
                      rng=8).probe(n, gap, None, exact.p)
     assert sampled.trials >= 800
     assert sampled.low <= exact.p <= sampled.high
-    _, low, high = wilson_interval(round(sampled.reversal * sampled.trials), sampled.trials,
-                                   confidence=0.999)
-    assert low <= exact.reversal <= high
+    assert sampled.reversal == pytest.approx(exact.reversal, abs=1e-6)
+    # the post-stratified parts against the exact ones: each within 4 standard errors of a
+    # proportion over the runs (derived: binomial variance p (1 - p) / runs, 99.99% two-sided)
+    for part in ("wrong_loading", "wrong_kinetics"):
+        p = getattr(exact, part)
+        assert abs(getattr(sampled, part) - p) < 4 * np.sqrt(p * (1 - p) / sampled.trials) + 1e-9
 
 
 def test_poisson_loading_needs_more_copies_than_a_fixed_split(nets):

@@ -171,8 +171,9 @@ def _text(name, result, phys, bounds, deadline_seconds) -> str:
         lines.append(f"  {WET_LAB_CAUTION}")
         return "\n".join(lines)
     at, below = result.at_estimate, result.at_below
+    sure = "" if at.method == "exact" else " with 95% confidence"
     lines.append(f"  n = {result.estimate:,} (gap {result.gap_estimate:,}): {_interval(at)}, "
-                 f"below the risk {result.risk:g} with 95% confidence [{result.method}]")
+                 f"below the risk {result.risk:g}{sure} [{result.method}]")
     if below is not None:
         lines.append(f"  one step below, n = {below.n:,}: {_interval(below)}, not surely below "
                      f"the risk")
