@@ -153,5 +153,5 @@ def plot_feasibility(rows, *, ax=None, title: str | None = None, chosen=None,
                        color="0.3", ha="left", va="bottom")
         engine = ax.figure.get_layout_engine()
         if engine is not None and hasattr(engine, "set"):
-            engine.set(rect=(0, 0.05, 1, 0.95))
+            engine.set(rect=(0, 0.09, 1, 0.91))
     return ax
