@@ -3,7 +3,10 @@
 A configuration is in consensus on label L when every molecule present reports
 L (a molecule that reports nothing breaks consensus). The mean field reaches
 consensus when the molecules not reporting the leading label add up to fewer
-than one.
+than one. Species marked :data:`~crn.network.IGNORED` (fuel, gates,
+intermediates and waste of a DNA implementation) take no part: they neither
+report a label nor break consensus. A formal species held inside an
+intermediate therefore counts toward no label until it is released again.
 """
 
 from __future__ import annotations
@@ -15,7 +18,7 @@ from dataclasses import dataclass
 import numba
 import numpy as np
 
-from .network import NO_CONSENSUS, Network
+from .network import IGNORED, NO_CONSENSUS, Network
 
 __all__ = [
     "NO_CONSENSUS",
@@ -38,7 +41,8 @@ def consensus_index(species_label, x):
     Parameters
     ----------
     species_label : ndarray of int64, shape (n_species,)
-        Label index of each species, -1 for none.
+        Label index of each species, -1 for none, ``IGNORED`` (-2) for a species
+        that takes no part.
     x : ndarray, shape (n_species,)
         Counts.
     """
@@ -46,6 +50,8 @@ def consensus_index(species_label, x):
     for s in range(x.shape[0]):
         if x[s] > 0:
             label = species_label[s]
+            if label == IGNORED:
+                continue
             if label < 0:
                 return -1
             if found < 0:
@@ -89,7 +95,7 @@ def mean_field_consensus_index(species_label, n_labels, y, molecules_per_unit):
     # would turn exactly one molecule into 0.999... by cancellation.
     others = 0.0
     for s in range(y.shape[0]):
-        if species_label[s] != best:
+        if species_label[s] != best and species_label[s] != IGNORED:
             others += max(y[s], 0.0)
     if others * molecules_per_unit < 1.0:
         return best
