@@ -312,9 +312,9 @@ def _verdict(rows, chosen, s, echo) -> None:
              f"{chosen['p_wrong']:.2g}, 95% interval {chosen['p_wrong_low']:.2g} .. "
              f"{chosen['p_wrong_high']:.2g}, below the risk {risk:g}).")
         if chosen["risk_loading"] is not None:
-            echo(f"  Of that risk, {chosen['risk_loading']:.2g} comes from droplets loaded with "
+            echo(f"  By cause: about {chosen['risk_loading']:.2g} from droplets loaded with "
                  f"the wrong or a tied majority (P = {chosen['loading_reversal']:.2g}) and "
-                 f"{chosen['risk_kinetics']:.2g} from the kinetics.")
+                 f"about {chosen['risk_kinetics']:.2g} from the kinetics.")
         if chosen["median_hours"] is not None:
             echo(f"  It decides in about {chosen['median_hours']:.2f} h (median), within the "
                  f"{format_time(deadline_s)} deadline with probability >= {1 - risk:g}.")

@@ -181,9 +181,10 @@ def _text(name, result, phys, bounds, deadline_seconds) -> str:
         lines.append(f"  allowing for sampling error the smallest n could be as low as "
                      f"{result.low:,}")
     if at.loading == "poisson":
-        lines.append(f"  of P(wrong) {at.p_wrong[0]:.3g}: {at.wrong_loading:.3g} from droplets "
-                     f"whose counts reversed or tied the gap (P = {at.reversal:.3g}), "
-                     f"{at.wrong_kinetics:.3g} from the kinetics")
+        about = "" if at.method == "exact" else "about "
+        lines.append(f"  P(wrong) by cause: {about}{at.wrong_loading:.3g} from droplets whose "
+                     f"counts reversed or tied the gap (P = {at.reversal:.3g}), "
+                     f"{about}{at.wrong_kinetics:.3g} from the kinetics")
     if result.deadline is not None:
         lines.append(f"  deadline: {result.deadline:.4g} parallel time"
                      + (f" ({format_time(deadline_seconds)})" if deadline_seconds else ""))
