@@ -36,7 +36,14 @@ __all__ = [
     "format_volume",
     "format_time",
     "format_rate_constant",
+    "WET_LAB_CAUTION",
 ]
+
+#: Carried by every output holding wet-lab numbers (text, JSON ``caution``, CSV, figures).
+WET_LAB_CAUTION = ("Wet-lab numbers (copies, concentrations, volumes, times) are predictions of "
+                   "a mathematical model (ideal mass-action kinetics, no leak or strand loss), "
+                   "not measurements: validate them with your lab's own controls and follow its "
+                   "validation and safety practice before relying on them.")
 
 #: Avogadro constant in 1/mol, exact by definition since the 2019 SI.
 AVOGADRO = 6.02214076e23
