@@ -3,7 +3,6 @@
 from __future__ import annotations
 
 import numpy as np
-from scipy import stats as _stats
 
 __all__ = ["wilson_interval", "time_summary"]
 
@@ -30,6 +29,8 @@ def wilson_interval(successes: int, trials: int, confidence: float = 0.95):
         raise ValueError(f"need 0 <= successes <= trials, got {successes} of {trials}")
     if trials == 0:
         return float("nan"), 0.0, 1.0
+    from scipy import stats as _stats
+
     z = _stats.norm.ppf(0.5 + confidence / 2)
     p = successes / trials
     denom = 1 + z * z / trials

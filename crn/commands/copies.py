@@ -4,7 +4,6 @@ from __future__ import annotations
 
 import click
 
-from ..copies import physical_outputs, smallest_n
 from ..errors import CRNError
 from ..units import (
     AVOGADRO,
@@ -68,6 +67,8 @@ def copies(model, sets, gap_fraction, gap, risk, deadline, concentration, volume
     population a 95% interval, simultaneous over the sequential looks (Clopper-Pearson,
     Bonferroni)); and
     with physical options the concentration or volume and the time in seconds and hours."""
+    from ..copies import physical_outputs, smallest_n
+
     if (gap_fraction is None) == (gap is None):
         raise CRNError("give exactly one of --gap-fraction and --gap")
     if concentration is not None and volume is not None:

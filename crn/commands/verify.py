@@ -4,7 +4,6 @@ from __future__ import annotations
 
 import click
 
-from ..verify import verify as verify_model
 from .options import emit_json, json_option, load, model_argument, progress_bar, set_option
 
 __all__ = ["verify"]
@@ -37,6 +36,8 @@ def verify(model, sets, max_n, max_states, as_json):
     the shortest sequence of interactions leading into a wrong component.
     Non-input states keep the model's initial counts (usually zero).
     """
+    from ..verify import verify as verify_model
+
     loaded = load(model, sets)
     with progress_bar("population sizes", max_n - 1, enabled=not as_json) as update:
         result = verify_model(loaded, max_n, progress=update, max_states=max_states)
