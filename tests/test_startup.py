@@ -85,3 +85,15 @@ def test_consensus_kernels_are_the_ones_outcome_names():
 
     assert crn.outcome.consensus_index is crn.consensus.consensus_index
     assert crn.outcome.mean_field_consensus_index is crn.consensus.mean_field_consensus_index
+
+
+def test_a_short_ssa_run_needs_neither_scipy_stats_nor_sparse():
+    code = ("import contextlib, io, sys\nfrom crn.cli import main\n"
+            "with contextlib.redirect_stdout(io.StringIO()):\n"
+            f"    assert main(['ssa', {str(MODEL)!r}, '--set', 'n=200', '--runs', '2', "
+            "'--engine', 'direct', '--workers', '1', '--seed', '1']) == 0\n"
+            "print(sorted(m for m in sys.modules if m.startswith('scipy.')), file=sys.stderr)\n"
+            "assert 'scipy.stats' not in sys.modules and 'scipy.sparse' not in sys.modules\n"
+            "assert 'sympy' not in sys.modules and 'matplotlib' not in sys.modules")
+    loaded = loaded_after(code)
+    assert "numba" in loaded  # the run did happen in compiled code
