@@ -10,6 +10,8 @@ from __future__ import annotations
 import numba
 import numpy as np
 
+from .network import IGNORED
+
 __all__ = ["consensus_index", "mean_field_consensus_index"]
 
 
@@ -20,7 +22,8 @@ def consensus_index(species_label, x):
     Parameters
     ----------
     species_label : ndarray of int64, shape (n_species,)
-        Label index of each species, -1 for none.
+        Label index of each species, -1 for none, ``IGNORED`` (-2) for a species
+        that takes no part.
     x : ndarray, shape (n_species,)
         Counts.
     """
@@ -28,6 +31,8 @@ def consensus_index(species_label, x):
     for s in range(x.shape[0]):
         if x[s] > 0:
             label = species_label[s]
+            if label == IGNORED:
+                continue
             if label < 0:
                 return -1
             if found < 0:
@@ -71,7 +76,7 @@ def mean_field_consensus_index(species_label, n_labels, y, molecules_per_unit):
     # would turn exactly one molecule into 0.999... by cancellation.
     others = 0.0
     for s in range(y.shape[0]):
-        if species_label[s] != best:
+        if species_label[s] != best and species_label[s] != IGNORED:
             others += max(y[s], 0.0)
     if others * molecules_per_unit < 1.0:
         return best

@@ -256,14 +256,40 @@ def run_demo(out, *, quick: bool = False, seed: int = 20261201, workers: int = 2
          "practice.")
     elapsed = time.perf_counter() - started
     echo(f"\nFigures and tables in {out}/ (ode_vs_stochastic.png, regime_map.png, "
-         f"feasibility.png, regime_map.csv, feasibility.csv, summary.json); {elapsed:.0f} s.")
+         f"feasibility.png, regime_map.csv, feasibility.csv, summary.json, report.html); "
+         f"{elapsed:.0f} s.")
     summary = {"seed": seed, "settings": "quick" if quick else "full", "risk": risk,
                "gap_fraction": fraction, "deadline_seconds": deadline_s,
                "rate_per_molar_second": rate, "compare": compare,
                "regimes": {"cells": rmap.table(), "exponent": b.to_dict()},
                "feasibility": rows, "chosen": chosen, "elapsed_seconds": elapsed}
+    summary["report"] = str(_write_report(out, model, rmap, chosen, summary, seeds[0]))
     write_atomic(out / "summary.json", json.dumps(to_jsonable(summary), indent=2) + "\n")
     return summary
+
+
+def _write_report(out: Path, model, rmap, chosen, summary, seed) -> Path:
+    """``out/report.html``: the demo's page, reusing its regime map and copies answer."""
+    from .report import ReportSettings, collect_report, render_report
+
+    copies = None
+    if chosen is not None:
+        copies = {"n": {"estimate": chosen["copies"], "low": chosen["copies_low"],
+                        "high": chosen["copies_high"]},
+                  "gap": gap_for_fraction(chosen["copies"], summary["gap_fraction"]),
+                  "risk": summary["risk"], "deadline_seconds": summary["deadline_seconds"],
+                  "concentration_molar": chosen["concentration_molar"],
+                  "volume_liters": chosen["volume_liters"],
+                  "seconds": (None if chosen["median_hours"] is None
+                              else chosen["median_hours"] * 3600),
+                  "median_time": None, "method": chosen["method"]}
+    data = collect_report(model, model_text=MODEL.read_text(encoding="utf-8"),
+                          model_file=MODEL.name,
+                          settings=ReportSettings(runs=100, seed=int(seed.generate_state(1)[0])),
+                          saved={"regimes": rmap, **({"copies": copies} if copies else {})})
+    path = out / "report.html"
+    write_atomic(path, render_report(data, command_line="make demo"))
+    return path
 
 
 def _n(value):

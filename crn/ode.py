@@ -337,7 +337,7 @@ def _consensus_gap(net: Network, scale: float):
     """
     labels = np.asarray(net.species_label)
     labelled = np.flatnonzero(labels >= 0)
-    unlabelled = np.flatnonzero(labels < 0)
+    unlabelled = np.flatnonzero(labels == -1)  # IGNORED species (-2) take no part
     label_of = labels[labelled]
     n_labels = len(net.labels)
 

@@ -3,7 +3,10 @@
 A configuration is in consensus on label L when every molecule present reports
 L (a molecule that reports nothing breaks consensus). The mean field reaches
 consensus when the molecules not reporting the leading label add up to fewer
-than one.
+than one. Species marked :data:`~crn.network.IGNORED` (fuel, gates,
+intermediates and waste of a DNA implementation) take no part: they neither
+report a label nor break consensus. A formal species held inside an
+intermediate therefore counts toward no label until it is released again.
 """
 
 from __future__ import annotations

@@ -227,7 +227,7 @@ def _ignore_sigint():
 def simulate(net: Network, *, runs: int = 1, until: float | None = None, times=None,
              engine: str = "auto", rng=None, workers: int | None = None,
              cluster: str | None = None, stop_at_consensus: bool = False,
-             progress: Callable[[int, int], None] | None = None) -> Ensemble:
+             progress: Callable[[int, int], None] | None = None, reduce=None) -> Ensemble:
     """Run an ensemble of exact stochastic simulations.
 
     Parameters
@@ -253,6 +253,11 @@ def simulate(net: Network, *, runs: int = 1, until: float | None = None, times=N
     stop_at_consensus : bool, default False
     progress : callable(done, total), optional
         Called as runs finish.
+    reduce : object with ``add(index, counts)``, optional
+        Receives each run's counts at ``times`` as it finishes (for instance a
+        :class:`crn.time_course.TimeCourseAccumulator`); the ensemble then keeps
+        only each run's final counts (``times`` and ``counts`` hold the last
+        sample), so memory does not grow with runs x samples.
 
     Returns
     -------
@@ -293,7 +298,7 @@ def simulate(net: Network, *, runs: int = 1, until: float | None = None, times=N
     root = _root(rng)
     children = root.spawn(int(runs))
     workers = (os.cpu_count() or 1) if workers is None else int(workers)
-    done: dict[int, Trajectory] = {}
+    done: dict[int, Trajectory] = {} if reduce is None else _Reducing(reduce)
     report = progress or (lambda d, t: None)
     task = (net, name, until, times, bool(stop_at_consensus))
     try:
@@ -316,7 +321,24 @@ def simulate(net: Network, *, runs: int = 1, until: float | None = None, times=N
     return _collect(done, name, root, until, net, times, runs)
 
 
+class _Reducing(dict):
+    """Run index -> trajectory that hands each run's counts to a reducer and keeps the last."""
+
+    def __init__(self, reducer):
+        super().__init__()
+        self.reducer = reducer
+
+    def __setitem__(self, index, trajectory):
+        import dataclasses
+
+        self.reducer.add(index, trajectory.counts)
+        super().__setitem__(index, dataclasses.replace(
+            trajectory, times=trajectory.times[-1:], counts=trajectory.counts[-1:]))
+
+
 def _collect(done, name, root, until, net, times, runs) -> Ensemble:
+    if isinstance(done, _Reducing):
+        times = times[-1:]
     order = sorted(done)
     return Ensemble.from_trajectories([done[i] for i in order], engine=name,
                                       seed_entropy=int(root.entropy), until=until,

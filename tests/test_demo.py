@@ -60,3 +60,14 @@ def test_demo_numbers_are_consistent_with_units_and_exact_analysis(demo):
     # too low a concentration gives too short a deadline: no droplet size decides
     slow = [r for r in summary["feasibility"] if r["concentration_molar"] == 1e-9]
     assert slow and slow[0]["copies"] is None
+
+
+def test_demo_writes_the_report_page(demo):
+    """out/report.html carries the demo's answer, its regime map and the wet-lab caution."""
+    out, summary, _ = demo
+    html = (out / "report.html").read_text(encoding="utf-8")
+    assert summary["report"] == str(out / "report.html")
+    assert f"n = {summary['chosen']['copies']:,}</strong>" in html
+    assert "taken from a saved sweep" in html  # the demo's own map, not a second sweep
+    assert html.count('<td class="flag-') == len(summary["regimes"]["cells"])
+    assert html.count("predictions of a mathematical model") >= 2  # header and the answer

@@ -45,7 +45,7 @@ def disagreement(labels, ode_label) -> tuple[float, float, float]:
 @seed_option
 @json_option
 @click.option("--plot", "plot_path", type=OUTPUT_FILE, default=None,
-              help="Write the figure (ODE over the stochastic median and 5-95% band).")
+              help="Write the figure (ODE over the stochastic mean and 5-95% band).")
 def compare(model, sets, runs, until, engine, workers, cluster, seed, as_json, plot_path):
     """Put MODEL's mean-field ODE next to its exact stochastic runs: each label's
     probability (95% Wilson interval) beside the ODE's label, consensus-time quantiles

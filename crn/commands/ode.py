@@ -6,7 +6,17 @@ import math
 
 import click
 
-from .options import OUTPUT_FILE, emit_json, json_option, load, model_argument, set_option
+from .options import (
+    OUTPUT_FILE,
+    emit_json,
+    every_option,
+    force_option,
+    json_option,
+    load,
+    model_argument,
+    sample_times_option_value,
+    set_option,
+)
 
 __all__ = ["mean_field_json", "ode"]
 
@@ -90,8 +100,13 @@ def _format_eigenvalues(values) -> str:
               help="Integrator of scipy's solve_ivp (BDF or Radau for stiff networks).")
 @click.option("--fixed-points/--no-fixed-points", "with_fixed_points", default=True,
               show_default=True, help="Find the fixed points on the conserved simplex.")
+@every_option
+@click.option("--counts", "in_counts", is_flag=True,
+              help="With --every: the time course in molecule counts (to overlay `crn ssa "
+                   "--every`) instead of fractions or concentrations.")
+@force_option
 def ode(model, sets, until, at, plot_file, csv_file, as_json, equations, latex, method,
-        with_fixed_points):
+        with_fixed_points, every, in_counts, force):
     """Solve the mean-field ODE of MODEL: fractions of the population against parallel
     time for a protocol (n -> infinity), concentrations for a network. Reports the
     consensus (the agents not reporting the leading label make fewer than one
@@ -107,23 +122,51 @@ def ode(model, sets, until, at, plot_file, csv_file, as_json, equations, latex, 
     if times is not None and until is not None and times[-1] > until:
         raise click.BadParameter(f"time {times[-1]:g} is beyond --until {until:g}",
                                  param_hint="--at")
+    if every is not None:
+        if times is not None:
+            raise click.BadParameter("give either --at or --every, not both",
+                                     param_hint="--every")
+        from ..ode import default_horizon
+
+        times = sample_times_option_value(every, default_horizon(net) if until is None
+                                          else until, force)
+        until = float(times[-1])
+    elif in_counts:
+        raise click.BadParameter("--counts applies to the time course of --every",
+                                 param_hint="--counts")
     result = solve_mean_field(net, until=until, times=times, method=method,
                               stop_at_consensus=times is None)
+    course = None
+    if every is not None:
+        from ..time_course import TimeCourse
+
+        course = TimeCourse.from_mean_field(result, counts=in_counts)
     points = None
     if with_fixed_points:
         from ..fixed_points import find_fixed_points
 
         points = find_fixed_points(net)
-    if csv_file:
+    if csv_file and course is not None:
+        from ..io.time_course import write_time_course_csv
+
+        write_time_course_csv(csv_file, course)
+    elif csv_file:
         from ..io.ode_files import write_mean_field_csv
 
         write_mean_field_csv(csv_file, result)
     if plot_file:
         _plot(result, loaded.name, plot_file)
     if as_json:
-        emit_json(mean_field_json(loaded, result, points))
+        obj = mean_field_json(loaded, result, points)
+        if course is not None:
+            obj["time_course"] = course.to_json()
+        emit_json(obj)
         return
-    click.echo(_text(loaded, result, points))
+    text = _text(loaded, result, points)
+    if course is not None:
+        text += (f"\ntime course: {course.times.size} samples every {every:g} up to "
+                 f"{course.times[-1]:.6g}, in {course.units} (--json or --csv to see it)")
+    click.echo(text)
 
 
 def _print_equations(net, latex: bool, as_json: bool) -> None:

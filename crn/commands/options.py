@@ -8,7 +8,10 @@ import sys
 import click
 
 __all__ = ["model_argument", "set_option", "seed_option", "json_option", "load", "emit_json",
-           "progress_bar", "to_jsonable", "OUTPUT_FILE"]
+           "progress_bar", "to_jsonable", "OUTPUT_FILE", "dna_options", "dna_parameters",
+           "dna_errors", "build_implementation", "DNA_OPTION_NAMES", "DEFAULT_DNA_RATE",
+           "DEFAULT_DNA_CONCENTRATION", "every_option", "force_option",
+           "sample_times_option_value"]
 
 
 def model_argument(func):
@@ -198,3 +201,266 @@ class OutputFile(click.ParamType):
 
 
 OUTPUT_FILE = OutputFile()
+
+
+#: Defaults of ``--rate`` and ``--concentration`` for a DNA implementation: formal rate 1
+#: built at 1e5 /M/s, signals at 10 nM in total (common practice for strand-displacement
+#: circuits: signals at nM to tens of nM, gates in excess, displacement rates of
+#: 1e5-1e6 /M/s; Soloveichik, Seelig & Winfree, PNAS 107:5393, 2010, from memory).
+DEFAULT_DNA_RATE = "1e5/M/s"
+DEFAULT_DNA_CONCENTRATION = "10nM"
+#: DnaParameters field -> the command-line option that sets it.
+DNA_OPTION_NAMES = {"rate": "--rate", "concentration": "--concentration", "fuel": "--fuel",
+                    "max_rate": "--max-rate", "toehold": "--toehold", "leak": "--leak"}
+
+
+def dna_options(func=None, *, scale: bool = True):
+    """Add the DNA-implementation parameter options to a click command.
+
+    ``--fuel``, ``--max-rate``, ``--toehold`` and ``--leak`` (passed as ``fuel``,
+    ``max_rate``, ``toehold``, ``leak``), and with ``scale`` also ``--rate`` and
+    ``--concentration`` (``rate``, ``concentration``; leave them out for a command
+    that has its own). Values stay text: :func:`dna_parameters` parses them.
+
+    Parameters
+    ----------
+    func : callable, optional
+        The command function; without it, returns the decorator.
+    scale : bool, default True
+        Whether to add ``--rate`` and ``--concentration``.
+
+    Returns
+    -------
+    callable
+    """
+    def decorate(f):
+        options = [
+            click.option("--fuel", default=None, metavar="C",
+                         help="Initial concentration of each fuel and gate species, e.g. 1uM "
+                              "(default 100 times --concentration)."),
+            click.option("--max-rate", "max_rate", default=None, metavar="K",
+                         help="Fastest strand-displacement rate constant, e.g. 1e6/M/s "
+                              "(default from --toehold)."),
+            click.option("--toehold", type=click.IntRange(0, 30), default=None, metavar="NT",
+                         help="Toehold length in nucleotides, instead of --max-rate "
+                              "(default 7: about 6e6 /M/s, Zhang & Winfree 2009)."),
+            click.option("--leak", default=None, metavar="K",
+                         help="Leak rate constant of the fuel-fuel reaction that releases an "
+                              "output without its input, e.g. 10/M/s (default 0)."),
+        ]
+        if scale:
+            options += [
+                click.option("--rate", default=None, metavar="K",
+                             help="Rate constant one unit of formal rate stands for "
+                                  f"(default {DEFAULT_DNA_RATE})."),
+                click.option("--concentration", default=None, metavar="C",
+                             help="Total signal concentration the population stands for "
+                                  f"(default {DEFAULT_DNA_CONCENTRATION})."),
+            ]
+        for option in reversed(options):
+            f = option(f)
+        return f
+
+    return decorate if func is None else decorate(func)
+
+
+def _bad(option: str, message: str):
+    return click.BadParameter(message, param_hint=f"'{option}'")
+
+
+def _leak(text: str) -> float:
+    from ..errors import CRNError
+    from ..units import parse_rate_constant
+
+    try:
+        return parse_rate_constant(text)
+    except CRNError as err:
+        # 0 (bare or with a rate unit) turns the leak off; anything else keeps the error
+        number, _, unit = text.strip().partition("/")
+        try:
+            zero = float(number) == 0.0
+        except ValueError:
+            zero = False
+        if zero and (not unit or _is_rate_unit("/" + unit)):
+            return 0.0
+        if number.strip().startswith("-"):
+            raise _bad("--leak", f"the leak rate constant must be >= 0, got {text!r}") from None
+        raise _bad("--leak", str(err)) from None
+
+
+def _is_rate_unit(unit: str) -> bool:
+    from ..errors import CRNError
+    from ..units import parse_rate_constant
+
+    try:
+        parse_rate_constant("1" + unit)
+    except CRNError:
+        return False
+    return True
+
+
+def dna_parameters(*, rate=None, concentration=None, fuel=None, max_rate=None, toehold=None,
+                   leak=None):
+    """Turn the DNA options into :class:`crn.dna.DnaParameters`.
+
+    Parameters
+    ----------
+    rate, max_rate, leak : str, float or None
+        Rate constants as text with a unit (``1e6/M/s``) or already in /M/s;
+        ``leak`` may be 0.
+    concentration, fuel : str, float or None
+        Concentrations as text with a unit (``10nM``) or already in M.
+    toehold : int or None
+
+    Returns
+    -------
+    DnaParameters
+
+    Raises
+    ------
+    click.BadParameter
+        Naming the option, for a unit that is not a rate or concentration or an
+        impossible value.
+    """
+    from ..dna import DnaParameterError, DnaParameters
+    from ..errors import CRNError
+    from ..units import parse_concentration, parse_rate_constant
+
+    def read(value, option, parse, default=None):
+        if value is None:
+            value = default
+        if value is None or not isinstance(value, str):
+            return value
+        try:
+            return parse(value)
+        except CRNError as err:
+            raise _bad(option, str(err)) from None
+
+    values = dict(
+        rate=read(rate, "--rate", parse_rate_constant, DEFAULT_DNA_RATE),
+        concentration=read(concentration, "--concentration", parse_concentration,
+                           DEFAULT_DNA_CONCENTRATION),
+        fuel=read(fuel, "--fuel", parse_concentration),
+        max_rate=read(max_rate, "--max-rate", parse_rate_constant),
+        toehold=toehold,
+        leak=0.0 if leak is None else (_leak(leak) if isinstance(leak, str) else leak),
+    )
+    try:
+        return DnaParameters(**values)
+    except DnaParameterError as err:
+        raise _bad(DNA_OPTION_NAMES.get(err.field, err.field), str(err)) from None
+
+
+def dna_errors():
+    """Context manager: a DnaParameterError raised inside becomes a usage error naming the option.
+
+    Use it around :func:`crn.dna.implement`, whose impossible-rate errors name the
+    parameter field.
+    """
+    from contextlib import contextmanager
+
+    @contextmanager
+    def guard():
+        from ..dna import DnaParameterError
+
+        try:
+            yield
+        except DnaParameterError as err:
+            raise _bad(DNA_OPTION_NAMES.get(err.field, err.field), str(err)) from None
+
+    return guard()
+
+
+def build_implementation(formal, scheme: str, params, option: str = "--scheme"):
+    """:func:`crn.dna.implement` with command-line errors.
+
+    An impossible parameter becomes a usage error naming its option; a formal
+    reaction the scheme cannot build becomes a one-line error starting with
+    ``OPTION SCHEME:`` (``--scheme ssw:`` here, ``--implement ssw:`` elsewhere).
+
+    Parameters
+    ----------
+    formal : Network
+    scheme : str
+    params : DnaParameters
+    option : str, default "--scheme"
+        The option that chose the scheme, named in the error.
+
+    Returns
+    -------
+    Implementation
+    """
+    from ..dna import DnaParameterError, implement
+    from ..errors import CRNError
+
+    with dna_errors():
+        try:
+            return implement(formal, scheme, params)
+        except DnaParameterError:
+            raise
+        except CRNError as err:
+            raise CRNError(f"{option} {scheme}: {err}") from None
+
+
+def every_option(func):
+    """Add ``--every DT`` (sample interval of a time course, default None) to a click command.
+
+    Parameters
+    ----------
+    func : callable
+        The command function to decorate.
+
+    Returns
+    -------
+    callable
+        ``func`` with the option, passed to it as ``every`` (float or None).
+    """
+    return click.option("--every", type=float, default=None, metavar="DT",
+                        help="Record a time course every DT time units up to --until and "
+                             "report it (mean, sd, 5% and 95% quantiles per species).")(func)
+
+
+def force_option(func):
+    """Add the ``--force`` flag (go ahead past a size limit) to a click command.
+
+    Parameters
+    ----------
+    func : callable
+        The command function to decorate.
+
+    Returns
+    -------
+    callable
+        ``func`` with the flag, passed to it as ``force`` (bool).
+    """
+    return click.option("--force", is_flag=True,
+                        help="Go ahead even past a size limit (more than 1,000,000 sample "
+                             "times, say).")(func)
+
+
+def sample_times_option_value(every: float, until: float, force: bool):
+    """The sample times of ``--every`` up to ``until``, or a one-line ``--every`` error.
+
+    Parameters
+    ----------
+    every : float
+    until : float
+    force : bool
+
+    Returns
+    -------
+    ndarray of float64
+
+    Raises
+    ------
+    click.BadParameter
+        For an interval that is not positive, longer than the horizon, or
+        makes more sample times than :data:`crn.time_course.MAX_SAMPLES`
+        without ``--force``.
+    """
+    from ..time_course import sample_times
+
+    try:
+        return sample_times(every, until, force=force)
+    except ValueError as err:
+        raise click.BadParameter(str(err), param_hint="--every") from err

@@ -760,7 +760,7 @@ def _kernel(rng, n_states, w, det, code, out_ptr, out_c, out_d, out_p, nn_ptr, n
             bad_touched = 0
             if label >= 0:
                 for s in range(n_states):
-                    bad[s] = 1 if species_label[s] != label else 0
+                    bad[s] = 1 if species_label[s] != label and species_label[s] != -2 else 0
                     bad_touched += bad[s] * touched[s]
             # -- random matching: by state pairs, or agent by agent when the state pairs
             # to visit outnumber the interactions (a hypergeometric draw costs

@@ -192,9 +192,9 @@ def _kernel(rs, rc, c, ch_ptr, ch_sp, ch_d, dep_ptr, dep_idx, species_label, n_l
     unlabeled = 0
     for s in range(n_species):
         if x[s] > 0:
-            if species_label[s] < 0:
+            if species_label[s] == -1:
                 unlabeled += 1
-            else:
+            elif species_label[s] >= 0:  # IGNORED species (-2) take no part
                 present[species_label[s]] += 1
     label = _label_now(present, unlabeled, n_labels)
     first_label = label
@@ -254,9 +254,9 @@ def _kernel(rs, rc, c, ch_ptr, ch_sp, ch_d, dep_ptr, dep_idx, species_label, n_l
             x[s] = before + ch_d[i]
             if (before > 0) != (x[s] > 0):
                 step = 1 if x[s] > 0 else -1
-                if species_label[s] < 0:
+                if species_label[s] == -1:
                     unlabeled += step
-                else:
+                elif species_label[s] >= 0:
                     present[species_label[s]] += step
         for i in range(dep_ptr[r], dep_ptr[r + 1]):
             j = dep_idx[i]

@@ -1,4 +1,4 @@
-"""Figure of the mean field against the stochastic ensemble: ODE curve over median and band."""
+"""Figure of the mean field against the stochastic ensemble: ODE curve over the mean and a band."""
 
 from __future__ import annotations
 
@@ -25,7 +25,7 @@ def ensemble_fractions(ensemble) -> np.ndarray:
 
 
 def plot_compare(ode, ensemble, *, ax=None, title: str | None = None, disagreement=None):
-    """Plot the ODE's share of each species over the ensemble's median and 5-95% band.
+    """Plot the ODE's share of each species over the ensemble's mean and 5-95% band.
 
     Parameters
     ----------
@@ -47,7 +47,8 @@ def plot_compare(ode, ensemble, *, ax=None, title: str | None = None, disagreeme
     if ax is None:
         _, ax = plt.subplots(figsize=(9, 5), layout="constrained")
     shares = ensemble_fractions(ensemble)
-    q05, median, q95 = np.quantile(shares, [0.05, 0.5, 0.95], axis=0)
+    q05, q95 = np.quantile(shares, [0.05, 0.95], axis=0)
+    mean = shares.mean(axis=0)
     from matplotlib.lines import Line2D
     from matplotlib.patches import Patch
 
@@ -57,11 +58,11 @@ def plot_compare(ode, ensemble, *, ax=None, title: str | None = None, disagreeme
     for i, name in enumerate(ensemble.species):
         color = colors[i % len(colors)]
         ax.fill_between(ensemble.times, q05[:, i], q95[:, i], color=color, alpha=0.18, lw=0)
-        ax.plot(ensemble.times, median[:, i], color=color, ls="--", lw=1.3)
+        ax.plot(ensemble.times, mean[:, i], color=color, ls="--", lw=1.3)
         ax.plot(ode.times, ode_shares[name], color=color, lw=2.2)
         handles.append(Line2D([], [], color=color, lw=2.2, label=name))
     handles += [Line2D([], [], color="0.2", lw=2.2, label="ODE"),
-                Line2D([], [], color="0.2", lw=1.3, ls="--", label="stochastic median"),
+                Line2D([], [], color="0.2", lw=1.3, ls="--", label="stochastic mean"),
                 Patch(color="0.2", alpha=0.18, label="stochastic 5-95%")]
     if ode.consensus.label is not None and ode.consensus.time is not None:
         ax.axvline(ode.consensus.time, color="0.3", ls=":", lw=1)

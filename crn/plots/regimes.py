@@ -4,6 +4,8 @@ from __future__ import annotations
 
 import math
 
+from .style import PALETTE, SEQUENTIAL_MAP
+
 __all__ = ["plot_regime_map", "plot_feasibility"]
 
 _FLAG_STYLE = {
@@ -44,26 +46,27 @@ def plot_regime_map(regime_map, *, ax=None, title: str | None = None):
     ns = np.array([c.n for c in cells], dtype=float)
     gaps = np.array([c.gap for c in cells], dtype=float)
     p = np.array([max(c.p_wrong, floor) for c in cells])
-    art = ax.scatter(ns, gaps, c=p, s=420, marker="s", cmap="RdYlGn_r",
+    art = ax.scatter(ns, gaps, c=p, s=420, marker="s", cmap=SEQUENTIAL_MAP,
                      norm=LogNorm(vmin=floor, vmax=1.0), edgecolors="0.4", linewidths=0.5)
     for flag, (marker, label) in _FLAG_STYLE.items():
         chosen = [i for i, c in enumerate(cells) if c.flag == flag]
         if chosen:
-            ax.scatter(ns[chosen], gaps[chosen], marker=marker, s=50, c="k", label=label)
+            ax.scatter(ns[chosen], gaps[chosen], marker=marker, s=50, c="white", edgecolors="k",
+                       linewidths=0.8, label=label)
     timed = [i for i, c in enumerate(cells) if c.time_flag in ("slower", "faster")]
     if timed:
         ax.scatter(ns[timed], gaps[timed], marker="o", s=260, facecolors="none",
-                   edgecolors="tab:blue", linewidths=1.8,
+                   edgecolors=PALETTE[1], linewidths=1.8,
                    label=f"time flag (SSA median vs ODE off by > {regime_map.time_factor:g}x)")
     boundary = regime_map.boundary
     if boundary.critical_gaps:
         cn = [n for n, _ in boundary.critical_gaps]
         cg = [g for _, g in boundary.critical_gaps]
-        ax.scatter(cn, cg, marker="D", s=40, c="tab:purple", zorder=5,
+        ax.scatter(cn, cg, marker="D", s=40, c=PALETTE[4], zorder=5,
                    label=f"critical gap (P(disagree) = {risk:g})")
     if boundary.exponent is not None:
         grid = np.geomspace(ns.min(), ns.max(), 50)
-        ax.plot(grid, boundary.prefactor * grid ** boundary.exponent, "--", c="tab:purple",
+        ax.plot(grid, boundary.prefactor * grid ** boundary.exponent, "--", c=PALETTE[4],
                 label=f"fit: gap ~ n^{boundary.exponent:.2f} "
                       f"[{boundary.low:.2f}, {boundary.high:.2f}]")
     ax.set_xscale("log")
