@@ -223,8 +223,13 @@ def _scipy_tables(net):
                                    "cancel_spread.toml", "droplet_assay.toml", "epidemic.toml",
                                    "exact_majority.toml", "undecided_state.toml", "voter.toml",
                                    "exact_majority_records.py"])
-def test_compiled_tables_equal_the_sparse_products(model):
+@pytest.mark.parametrize("compiled", [False, True])
+def test_compiled_tables_equal_the_sparse_products(model, compiled, monkeypatch):
+    import crn.engines.direct as direct_module
     from crn.engines.direct import _changes
+
+    # small networks take the kernels' Python versions; force either
+    monkeypatch.setattr(direct_module, "_PYTHON_TABLES_UP_TO", -1 if compiled else 10**9)
 
     net = load_model(Path(__file__).resolve().parent.parent / "models" / model).network
     dep_ptr, dep_idx = dependency_graph(net)

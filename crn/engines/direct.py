@@ -24,6 +24,9 @@ __all__ = ["run_direct", "dependency_graph"]
 _STATUS = ("horizon", "silent", "consensus")
 _EXACT_SUM_BELOW = 64  # reactions: below this the total propensity is re-summed at every event
 _REFRESH_EVERY = 1024  # events between exact re-sums of the total otherwise
+# Up to this many reactions the tables are built by the kernels' plain Python versions:
+# quicker than loading compiled code for them, which a short command would wait for.
+_PYTHON_TABLES_UP_TO = 64
 
 
 def dependency_graph(net: Network) -> tuple[np.ndarray, np.ndarray]:
@@ -47,16 +50,21 @@ def dependency_graph(net: Network) -> tuple[np.ndarray, np.ndarray]:
     Cao, Li, Petzold, J. Chem. Phys. 121:4059, 2004.
     """
     ch_ptr, ch_sp, _ = _changes(net)
-    return _dependencies(ch_ptr, ch_sp, np.ascontiguousarray(net.reactant_species),
-                         np.ascontiguousarray(net.reactant_counts), net.n_species)
+    args = (ch_ptr, ch_sp, np.ascontiguousarray(net.reactant_species),
+            np.ascontiguousarray(net.reactant_counts), net.n_species)
+    if net.n_reactions <= _PYTHON_TABLES_UP_TO:
+        return _dependencies.py_func(*args)
+    return _dependencies(*args)
 
 
 def _changes(net: Network) -> tuple[np.ndarray, np.ndarray, np.ndarray]:
     """Net change of each reaction, CSR by reaction: species in increasing order, change."""
-    return _net_changes(np.ascontiguousarray(net.reactant_species),
-                        np.ascontiguousarray(net.reactant_counts),
-                        np.ascontiguousarray(net.product_species),
-                        np.ascontiguousarray(net.product_counts), net.n_species)
+    args = (np.ascontiguousarray(net.reactant_species), np.ascontiguousarray(net.reactant_counts),
+            np.ascontiguousarray(net.product_species), np.ascontiguousarray(net.product_counts),
+            net.n_species)
+    if net.n_reactions <= _PYTHON_TABLES_UP_TO:
+        return _net_changes.py_func(*args)
+    return _net_changes(*args)
 
 
 # Both tables are built in compiled code rather than with scipy.sparse, whose import
