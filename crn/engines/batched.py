@@ -15,6 +15,13 @@ replacement, so the run is simulated in bulk:
    splitting), then the interaction that collides with an agent of the run,
    with the right law of which agents collide.
 
+With many states (from 16) and a run short enough to match agent by agent, the
+2 l agents of the run are drawn at once instead (one multivariate
+hypergeometric draw) and a uniformly random ordered half of them, chosen by a
+partial shuffle, are the responders: the same law with one draw per state
+fewer. While no consensus can arise inside a batch, each interaction is then
+applied at once from a packed table entry for its ordered state pair.
+
 Only state pairs that can change anything are visited: for an initiator state
 the responders that give a null interaction with it are drawn as one group,
 and the group is split only into the states that a later initiator state
