@@ -16,6 +16,7 @@ from dataclasses import dataclass, field
 
 import numpy as np
 
+from .engines import ENGINES
 from .engines.base import Trajectory
 from .errors import CRNError
 from .network import Network
@@ -25,11 +26,6 @@ from .stats import time_summary
 __all__ = ["Ensemble", "SimulationInterrupted", "simulate", "ENGINES", "choose_engine",
            "default_horizon", "run_chunk", "probe_scheduler", "AUTO_BATCHED_FROM"]
 
-ENGINES = {
-    "direct": ("crn.engines.direct", "run_direct"),
-    "batched": ("crn.engines.batched", "run_batched"),
-    "reference": ("crn.reference", "run_reference"),
-}
 AUTO_BATCHED_FROM = 100_000
 """Agents from which ``engine="auto"`` runs a protocol with the batched engine."""
 

@@ -58,10 +58,13 @@ def _chi_square(observed, probabilities):
     return stats.chisquare(obs, exp).pvalue
 
 
-@pytest.fixture(params=["cells", "agents"])
+@pytest.fixture(params=["cells", "agents", "joint"])
 def pairing(request, monkeypatch):
-    """Force one of the two ways of matching initiators to responders in a batch."""
+    """Force one of the three ways of drawing and matching initiators and responders in a
+    batch (``joint``: all 2 l agents in one draw, as for protocols with many states)."""
     monkeypatch.setattr(batched_module, "_AGENT_FACTOR", 0.0 if request.param == "cells" else 1e18)
+    monkeypatch.setattr(batched_module, "_JOINT_FROM_STATES",
+                        0 if request.param == "joint" else 10**9)
     return request.param
 
 

@@ -1,6 +1,7 @@
 """The direct-method SSA against closed forms and an exact master-equation solution."""
 
 import math
+from pathlib import Path
 
 import numpy as np
 import pytest
@@ -208,3 +209,37 @@ def test_many_reactions_use_the_incremental_total():
     assert chi_square_pvalue(x, lambda j: stats.binom.pmf(j, x0, p), x0) > ALPHA
     done = run_direct(net, until=1e3, times=[1e3], rng=1)
     assert done.status == "silent" and done.events == k * x0 and done.counts.sum() == 0
+
+
+def _scipy_tables(net):
+    """The dependency graph and change lists as sparse products (how they were first built)."""
+    import scipy.sparse as sp
+
+    changed = (net.stoichiometry != 0).astype(np.int64)
+    uses = (net.reactant_matrix != 0).astype(np.int64)
+    dep = sp.csr_matrix(changed.T @ uses)
+    dep.sort_indices()
+    st = sp.csc_matrix(net.stoichiometry)
+    st.sort_indices()
+    return (dep.indptr, dep.indices, st.indptr, st.indices, np.rint(st.data))
+
+
+@pytest.mark.parametrize("model", ["approximate_majority.toml", "birth_death.toml",
+                                   "cancel_spread.toml", "droplet_assay.toml", "epidemic.toml",
+                                   "exact_majority.toml", "undecided_state.toml", "voter.toml",
+                                   "exact_majority_records.py"])
+@pytest.mark.parametrize("compiled", [False, True])
+def test_compiled_tables_equal_the_sparse_products(model, compiled, monkeypatch):
+    import crn.engines.direct as direct_module
+    from crn.engines.direct import _changes
+
+    # small networks take the kernels' Python versions; force either
+    monkeypatch.setattr(direct_module, "_PYTHON_TABLES_UP_TO", -1 if compiled else 10**9)
+
+    net = load_model(Path(__file__).resolve().parent.parent / "models" / model).network
+    dep_ptr, dep_idx = dependency_graph(net)
+    ch_ptr, ch_sp, ch_d = _changes(net)
+    ref = _scipy_tables(net)
+    for ours, theirs in zip((dep_ptr, dep_idx, ch_ptr, ch_sp, ch_d), ref, strict=True):
+        assert ours.dtype == np.int64
+        assert np.array_equal(ours, np.asarray(theirs, dtype=np.int64))

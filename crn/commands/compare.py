@@ -3,7 +3,6 @@
 from __future__ import annotations
 
 import click
-import numpy as np
 
 from .options import (
     FIGURE_FILE,
@@ -62,6 +61,8 @@ def compare(model, sets, runs, until, engine, workers, cluster, seed, as_json, p
     """Put MODEL's mean-field ODE next to its exact stochastic runs: each label's
     probability (95% Wilson interval) beside the ODE's label, consensus-time quantiles
     beside the ODE's time, and how often a run disagrees with the ODE."""
+    import numpy as np
+
     from ..fixed_points import find_fixed_points
     from ..ode import solve_mean_field
     from ..simulate import default_horizon

@@ -4,9 +4,7 @@ from __future__ import annotations
 
 import click
 
-from ..copies import physical_outputs, smallest_n
 from ..errors import CRNError
-from ..loading import LOADINGS
 from ..units import (
     WET_LAB_CAUTION,
     concentration_for,
@@ -23,6 +21,9 @@ from .options import emit_json, json_option, model_argument, seed_notice, seed_o
 from .regimes import cell_networks
 
 __all__ = ["copies", "parse_deadline"]
+
+#: :data:`crn.loading.LOADINGS`, repeated here so that start-up imports no numpy (tested).
+LOADINGS = ("fixed", "poisson")
 
 
 def parse_deadline(text: str | None):
@@ -75,6 +76,8 @@ def copies(model, sets, gap_fraction, gap, risk, deadline, concentration, volume
     risk at the reported n lies below --risk (per population a 95% interval, simultaneous over
     the sequential looks, Clopper-Pearson with Bonferroni), and one lattice step below it does
     not. With physical options: the concentration or volume and the time in seconds and hours."""
+    from ..copies import physical_outputs, smallest_n
+
     if (gap_fraction is None) == (gap is None):
         raise CRNError("give exactly one of --gap-fraction and --gap")
     if concentration is not None and volume is not None:

@@ -4,8 +4,6 @@ from __future__ import annotations
 
 import click
 
-from ..exact import exact_outcomes, transient_outcomes
-from ..outcome import NO_CONSENSUS
 from .options import emit_json, json_option, load, model_argument, progress_bar, set_option
 
 __all__ = ["exact"]
@@ -28,6 +26,9 @@ def _counts(net, x) -> str:
 def exact(model, sets, until, max_states, as_json):
     """Exact outcome probabilities of MODEL from its initial counts, by solving the
     continuous-time Markov chain over every reachable configuration."""
+    from ..exact import exact_outcomes, transient_outcomes
+    from ..outcome import NO_CONSENSUS
+
     net = load(model, sets).network
     with progress_bar("configurations", None, enabled=not as_json) as update:
         result = exact_outcomes(net, max_states=max_states, progress=update)

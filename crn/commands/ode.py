@@ -5,9 +5,7 @@ from __future__ import annotations
 import math
 
 import click
-import numpy as np
 
-from ..ode import METHODS, solve_mean_field
 from .options import (
     FIGURE_FILE,
     OUTPUT_FILE,
@@ -25,6 +23,10 @@ from .options import (
 
 __all__ = ["mean_field_json", "ode"]
 
+#: The integrators of scipy's ``solve_ivp`` offered by ``--method``; the same as
+#: :data:`crn.ode.METHODS` (kept here so that ``crn --help`` needs no scipy).
+METHODS = ("LSODA", "BDF", "Radau", "RK45", "DOP853")
+
 
 def _parse_times(text: str | None):
     if text is None:
@@ -37,6 +39,8 @@ def _parse_times(text: str | None):
     if not times or any(not math.isfinite(t) or t < 0 for t in times):
         raise click.BadParameter(f"times must be finite and >= 0, got {text!r}",
                                  param_hint="--at")
+    import numpy as np
+
     return np.unique(np.asarray(times, dtype=np.float64))
 
 
@@ -133,6 +137,8 @@ def ode(model, sets, until, at, plot_file, csv_file, as_json, equations, latex, 
     time for a protocol (n -> infinity), concentrations for a network. Reports the
     consensus (the agents not reporting the leading label make fewer than one
     molecule) and the fixed points with their stability."""
+    from ..ode import solve_mean_field
+
     loaded = load(model, sets)
     net = loaded.network
     seconds = seconds_per_time(net, rate, concentration)

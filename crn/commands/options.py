@@ -7,10 +7,6 @@ import sys
 
 import click
 
-from ..io.jsonable import to_jsonable
-from ..io.models import load_model
-from ..model import parse_overrides
-
 __all__ = ["model_argument", "set_option", "seed_option", "json_option", "load", "emit_json",
            "progress_bar", "to_jsonable", "seed_notice", "lab_time_options", "seconds_per_time",
            "OUTPUT_FILE", "FIGURE_FILE", "FIGURE_FORMATS", "CLUSTER_ADDRESS", "dna_options",
@@ -194,7 +190,17 @@ def load(model: str, sets):
     ModelError
         When the file is missing, unreadable or invalid, or an override is malformed.
     """
+    from ..io.models import load_model
+    from ..model import parse_overrides
+
     return load_model(model, parse_overrides(sets))
+
+
+def to_jsonable(value):
+    """:func:`crn.io.jsonable.to_jsonable`, imported on first use (it needs numpy)."""
+    from ..io.jsonable import to_jsonable as convert
+
+    return convert(value)
 
 
 def emit_json(obj) -> None:

@@ -7,17 +7,13 @@ import json
 import os
 import signal
 from pathlib import Path
+from typing import TYPE_CHECKING
 
 import click
-import numpy as np
 
 from ..errors import CRNError
 from ..io.atomic import save_figure, write_atomic
 from ..io.regime_tables import table_csv
-from ..io.sweep_store import SweepStore
-from ..model import parse_overrides
-from ..probes import InitialSplit, ModelParameters
-from ..regimes import RegimeCell, RegimeMap, plan_cells, regime_map
 from .options import (
     CLUSTER_ADDRESS,
     FIGURE_FILE,
@@ -32,6 +28,9 @@ from .options import (
     set_option,
     to_jsonable,
 )
+
+if TYPE_CHECKING:
+    from ..regimes import RegimeMap
 
 __all__ = ["regimes", "parse_int_list", "parse_float_list", "cell_networks"]
 
@@ -64,6 +63,9 @@ def parse_float_list(text: str, what: str) -> list[float]:
 
 def cell_networks(model_path: str, sets):
     """The per-cell network builder: model parameters n and gap when the TOML model has both."""
+    from ..model import parse_overrides
+    from ..probes import InitialSplit, ModelParameters
+
     model = load(model_path, sets)
     path = Path(model_path)
     if path.suffix != ".py" and {"n", "gap"} <= set(model.parameters):
@@ -134,6 +136,11 @@ def regimes(model, sets, n_list, gap_list, fraction_list, risk, until, runs_max,
     probability that a stochastic run disagrees with it (95% interval, simultaneous over the
     sequential looks (Clopper-Pearson, Bonferroni)), the flag, the times;
     and the fitted growth of the critical gap with n."""
+    import numpy as np
+
+    from ..io.sweep_store import SweepStore
+    from ..regimes import RegimeCell, plan_cells, regime_map
+
     if (gap_list is None) == (fraction_list is None):
         raise CRNError("give exactly one of --gap and --gap-fraction")
     if workers and cluster:

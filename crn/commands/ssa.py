@@ -2,10 +2,11 @@
 
 from __future__ import annotations
 
+from typing import TYPE_CHECKING
+
 import click
 
-from ..simulate import ENGINES, Ensemble, SimulationInterrupted, simulate
-from ..stats import wilson_interval
+from ..engines import ENGINES
 from .options import (
     CLUSTER_ADDRESS,
     FIGURE_FILE,
@@ -22,6 +23,9 @@ from .options import (
     seed_option,
     set_option,
 )
+
+if TYPE_CHECKING:
+    from ..simulate import Ensemble
 
 __all__ = ["ssa", "ensemble_options", "run_ensemble", "ensemble_summary", "format_ensemble",
            "horizon_text", "format_horizon"]
@@ -58,6 +62,8 @@ def run_ensemble(net, *, runs, until, engine, seed, workers, cluster, as_json, t
         With ``reduce`` (see :func:`crn.simulate.simulate`) every run's counts go to it.
     """
     import numpy as np
+
+    from ..simulate import SimulationInterrupted, simulate
 
     root = np.random.SeedSequence(seed)
     if seed is None:
@@ -101,6 +107,8 @@ def _number(x) -> str:
 def format_ensemble(ensemble: Ensemble, correct=None) -> list[str]:
     """Table lines: each label's runs and probability with its 95% Wilson interval, then the
     consensus-time quantiles."""
+    from ..stats import wilson_interval
+
     if ensemble.runs == 0:
         return ["no run finished"]
     lines = [f"{'label':<10} {'runs':>7} {'probability':>12}   95% interval"]

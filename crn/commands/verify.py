@@ -4,7 +4,6 @@ from __future__ import annotations
 
 import click
 
-from ..verify import verify as verify_model
 from .options import emit_json, json_option, load, model_argument, progress_bar, set_option
 
 __all__ = ["verify", "EXIT_COUNTEREXAMPLE"]
@@ -43,6 +42,8 @@ def verify(model, sets, max_n, max_states, as_json):
     Exit status: 0 when every case is correct, 1 on a counterexample (so scripts
     can rely on it), 2 on bad input.
     """
+    from ..verify import verify as verify_model
+
     loaded = load(model, sets)
     with progress_bar("population sizes", max_n - 1, enabled=not as_json) as update:
         result = verify_model(loaded, max_n, progress=update, max_states=max_states)

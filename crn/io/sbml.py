@@ -27,7 +27,6 @@ from __future__ import annotations
 import math
 import re
 import xml.etree.ElementTree as ET
-from xml.sax.saxutils import quoteattr
 
 from ..errors import ModelError
 from ..network import Network, Reaction
@@ -66,6 +65,8 @@ def _model_id(name: str) -> str:
 
 
 def _annotation(tag: str, attributes: dict[str, str], text: str | None = None) -> str:
+    from xml.sax.saxutils import quoteattr  # imports urllib: only when writing SBML
+
     attrs = "".join(f" {k}={quoteattr(v)}" for k, v in attributes.items())
     body = "" if text is None else f"<{_PREFIX}:about>{_escape(text)}</{_PREFIX}:about>"
     return (f"<annotation><{_PREFIX}:{tag} xmlns:{_PREFIX}=\"{NAMESPACE}\"{attrs}>{body}"
