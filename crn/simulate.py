@@ -323,15 +323,7 @@ def simulate(net: Network, *, runs: int = 1, until: float | None = None, times=N
         if cluster is not None:
             _on_cluster(cluster, task, children, done, report)
         elif workers == 1 or runs == 1:
-            for i, child in enumerate(children):
-                try:
-                    done[i] = run_chunk(*task, [child])[0]
-                except SystemError as err:
-                    # Ctrl-C inside a numba kernel surfaces as a SystemError caused by it
-                    if isinstance(err.__cause__, KeyboardInterrupt):
-                        raise KeyboardInterrupt from err
-                    raise
-                report(len(done), runs)
+            _in_thread(task, children, done, report)
         else:
             _on_pool(workers, task, children, done, report)
     except KeyboardInterrupt as err:
@@ -353,6 +345,50 @@ def _collect(done, name, root, until, net, times, runs) -> Ensemble:
 def _chunks(n_runs: int, workers: int) -> list[range]:
     size = max(1, min(8, n_runs // (32 * workers)))
     return [range(i, min(i + size, n_runs)) for i in range(0, n_runs, size)]
+
+
+def _in_thread(task, children, done, report):
+    """Run in turn on a helper thread while this thread waits, so that Ctrl-C and SIGTERM
+    (handled in the main thread only) stop the ensemble at once even during a long run.
+
+    The engines' kernels release the GIL; on an interruption the run under way
+    is abandoned (its thread stops after it) and the finished runs are kept.
+    """
+    import queue
+    import threading
+
+    stop = threading.Event()
+    finished: queue.SimpleQueue = queue.SimpleQueue()
+    failure = []
+
+    def work():
+        try:
+            for i, child in enumerate(children):
+                if stop.is_set():
+                    return
+                finished.put((i, run_chunk(*task, [child])[0]))
+        except BaseException as err:  # handed to the waiting thread
+            failure.append(err)
+        finally:
+            finished.put(None)
+
+    thread = threading.Thread(target=work, name="crn-runs", daemon=True)
+    thread.start()
+    try:
+        while True:
+            try:
+                item = finished.get(timeout=0.05)
+            except queue.Empty:
+                continue
+            if item is None:
+                break
+            done[item[0]] = item[1]
+            report(len(done), len(children))
+    except BaseException:
+        stop.set()
+        raise
+    if failure:
+        raise failure[0]
 
 
 POOL_RESTARTS = 3

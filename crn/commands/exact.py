@@ -6,7 +6,15 @@ import click
 
 from ..exact import exact_outcomes, transient_outcomes
 from ..outcome import NO_CONSENSUS
-from .options import emit_json, json_option, load, model_argument, progress_bar, set_option
+from .options import (
+    emit_json,
+    json_option,
+    load,
+    model_argument,
+    progress_bar,
+    set_option,
+    stop_interrupted,
+)
 
 __all__ = ["exact"]
 
@@ -29,12 +37,34 @@ def exact(model, sets, until, max_states, as_json):
     """Exact outcome probabilities of MODEL from its initial counts, by solving the
     continuous-time Markov chain over every reachable configuration."""
     net = load(model, sets).network
-    with progress_bar("configurations", None, enabled=not as_json) as update:
-        result = exact_outcomes(net, max_states=max_states, progress=update)
+    seen = [0]
+    try:
+        with progress_bar("configurations", None, enabled=not as_json) as bar:
+            result = exact_outcomes(net, max_states=max_states, progress=_counting(bar, seen))
+    except KeyboardInterrupt:
+        stop_interrupted(f"after enumerating {seen[0]:,} configurations; no result")
     transient = None
     if until is not None:
-        with progress_bar("projection", None, enabled=not as_json) as update:
-            transient = transient_outcomes(net, until, max_states=max_states, progress=update)
+        try:
+            with progress_bar("projection", None, enabled=not as_json) as update:
+                transient = transient_outcomes(net, until, max_states=max_states,
+                                               progress=update)
+        except KeyboardInterrupt:
+            _print(net, result, None, until, as_json)
+            stop_interrupted("during the projection to --until; the eventual probabilities "
+                             "above are complete")
+    _print(net, result, transient, until, as_json)
+
+
+def _counting(bar, seen):
+    def update(done, total=None):
+        seen[0] = done
+        bar(done, total)
+
+    return update
+
+
+def _print(net, result, transient, until, as_json):
     if as_json:
         obj = {
             "model": net.name,

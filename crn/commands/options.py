@@ -12,7 +12,7 @@ from ..io.models import load_model
 from ..model import parse_overrides
 
 __all__ = ["model_argument", "set_option", "seed_option", "json_option", "load", "emit_json",
-           "progress_bar", "to_jsonable", "OUTPUT_FILE"]
+           "progress_bar", "to_jsonable", "OUTPUT_FILE", "stop_interrupted"]
 
 
 def model_argument(func):
@@ -192,3 +192,17 @@ class OutputFile(click.ParamType):
 
 
 OUTPUT_FILE = OutputFile()
+
+
+def stop_interrupted(finished: str):
+    """After Ctrl-C or SIGTERM: say what was finished on standard error and exit 130 or 143.
+
+    Parameters
+    ----------
+    finished : str
+        What the command had finished, e.g. ``"after n = 2..7 (no counterexample so far)"``.
+    """
+    from .. import interrupts
+
+    click.echo(f"crn: {interrupts.reason()} {finished}", err=True)
+    click.get_current_context().exit(interrupts.exit_status())

@@ -47,7 +47,13 @@ def run_ensemble(net, *, runs, until, engine, seed, workers, cluster, as_json, t
     Returns
     -------
     (Ensemble, bool)
-        The ensemble (the finished runs after Ctrl-C) and whether it was interrupted.
+        The ensemble (the finished runs after Ctrl-C or SIGTERM) and whether it
+        was interrupted.
+
+    Raises
+    ------
+    WorkerError
+        When worker processes kept dying; ``partial`` holds the finished runs.
     """
     import numpy as np
 
@@ -106,9 +112,11 @@ def format_ensemble(ensemble: Ensemble, correct=None) -> list[str]:
 
 
 def _finish_interrupted(ensemble: Ensemble):
-    click.echo(f"crn: interrupted after {ensemble.runs} of {ensemble.requested} runs",
+    from .. import interrupts
+
+    click.echo(f"crn: {interrupts.reason()} after {ensemble.runs} of {ensemble.requested} runs",
                err=True)
-    click.get_current_context().exit(130)
+    click.get_current_context().exit(interrupts.exit_status())
 
 
 @click.command("ssa")
@@ -118,22 +126,30 @@ def _finish_interrupted(ensemble: Ensemble):
 @seed_option
 @json_option
 @click.option("--csv", "csv_path", type=OUTPUT_FILE, default=None,
-              help="Also write one row per run to this CSV file.")
+              help="Also write one row per run to this CSV file (after an interruption, the "
+                   "finished runs under a '# partial' first line).")
 def ssa(model, sets, runs, until, engine, workers, cluster, seed, as_json, csv_path):
     """Run MODEL's exact stochastic dynamics RUNS times and report who won and when.
 
     Each run has its own random stream from --seed, so the numbers do not depend
     on --workers or --cluster. Ctrl-C stops and reports the runs finished.
     """
+    from ..errors import WorkerError
     from ..io.runs import write_runs_csv
     from ..outcome import correct_label
 
     loaded = load(model, sets)
     net = loaded.network
-    ensemble, interrupted = run_ensemble(net, runs=runs, until=until, engine=engine, seed=seed,
-                                         workers=workers, cluster=cluster, as_json=as_json)
+    try:
+        ensemble, interrupted = run_ensemble(net, runs=runs, until=until, engine=engine,
+                                             seed=seed, workers=workers, cluster=cluster,
+                                             as_json=as_json)
+    except WorkerError as err:
+        if csv_path is not None and err.partial is not None and err.partial.runs:
+            write_runs_csv(err.partial, csv_path, note="worker processes died")
+        raise
     if csv_path is not None and ensemble.runs:
-        write_runs_csv(ensemble, csv_path)
+        write_runs_csv(ensemble, csv_path, note=None if not interrupted else "interrupted")
     if as_json:
         emit_json(ensemble_summary(ensemble, loaded.name))
     else:

@@ -5,7 +5,15 @@ from __future__ import annotations
 import click
 
 from ..verify import verify as verify_model
-from .options import emit_json, json_option, load, model_argument, progress_bar, set_option
+from .options import (
+    emit_json,
+    json_option,
+    load,
+    model_argument,
+    progress_bar,
+    set_option,
+    stop_interrupted,
+)
 
 __all__ = ["verify"]
 
@@ -38,8 +46,17 @@ def verify(model, sets, max_n, max_states, as_json):
     Non-input states keep the model's initial counts (usually zero).
     """
     loaded = load(model, sets)
-    with progress_bar("population sizes", max_n - 1, enabled=not as_json) as update:
-        result = verify_model(loaded, max_n, progress=update, max_states=max_states)
+    checked = [0]
+    try:
+        with progress_bar("population sizes", max_n - 1, enabled=not as_json) as bar:
+            def update(done, total):
+                checked[0] = done
+                bar(done, total)
+
+            result = verify_model(loaded, max_n, progress=update, max_states=max_states)
+    except KeyboardInterrupt:
+        stop_interrupted(f"after n = 2..{checked[0] + 1} of 2..{max_n} (no counterexample "
+                         "among them)" if checked[0] else "before n = 2 was checked")
     if as_json:
         emit_json({"checked": result.checked, "correct": result.correct,
                    "counterexample": result.counterexample, "ties": result.ties,

@@ -495,7 +495,7 @@ def _pair_agents(rng, n_states, ell, ini, res, rows, w, det, out_ptr, out_p, lab
     return groups, bad_seen, broken
 
 
-@numba.njit(cache=True)
+@numba.njit(cache=True, nogil=True)  # nogil: Ctrl-C is seen during a run
 def _kernel(rng, n_states, w, det, out_ptr, out_c, out_d, out_p, nn_ptr, nn_q, rows, res_ptr,
             res_q, species_label, x0, times, until, stop_at_consensus, discrete, threshold,
             agent_factor):
