@@ -7,6 +7,7 @@ where errors become a one-line message and exit status 2.
 
 from __future__ import annotations
 
+import contextlib
 import sys
 
 import click
@@ -50,7 +51,17 @@ def main(argv=None) -> int:
 
     with warnings.catch_warnings(), interrupts.handling():
         warnings.showwarning = _show_warning
-        return _run(argv)
+        code = _run(argv)
+    if argv is None and interrupts.received() is not None:
+        # the real command line after Ctrl-C/SIGTERM: results are saved and streams flushed
+        # below, so skip the interpreter's slow teardown (numba, dask) to stop at once
+        import os
+
+        for stream in (sys.stdout, sys.stderr):
+            with contextlib.suppress(Exception):
+                stream.flush()
+        os._exit(code)
+    return code
 
 
 def _show_warning(message, category, filename, lineno, file=None, line=None):

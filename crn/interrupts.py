@@ -15,7 +15,7 @@ import contextlib
 import os
 import signal
 
-__all__ = ["handling", "exit_status", "received", "reason"]
+__all__ = ["handling", "exit_status", "received", "reason", "call_interruptibly"]
 
 _received: int | None = None
 
@@ -62,3 +62,36 @@ def exit_status() -> int:
 def reason() -> str:
     """``"terminated"`` after SIGTERM, else ``"interrupted"``."""
     return "terminated" if _received == signal.SIGTERM else "interrupted"
+
+
+def call_interruptibly(func, *args, **kwargs):
+    """``func(*args, **kwargs)`` on a helper thread while this thread waits for it.
+
+    Signals are handled in the main thread only, and only between Python
+    steps; a long compiled computation (one that releases the GIL, as the
+    configuration enumeration does) would otherwise delay Ctrl-C until it
+    returns. Here the waiting thread raises KeyboardInterrupt at once; the
+    helper thread is abandoned (a daemon: it ends with the process).
+
+    Returns
+    -------
+    object
+        What ``func`` returned; its exception is raised here.
+    """
+    import threading
+
+    outcome = {}
+
+    def work():
+        try:
+            outcome["value"] = func(*args, **kwargs)
+        except BaseException as err:  # handed to the waiting thread
+            outcome["error"] = err
+
+    thread = threading.Thread(target=work, name="crn-work", daemon=True)
+    thread.start()
+    while thread.is_alive():
+        thread.join(0.05)
+    if "error" in outcome:
+        raise outcome["error"]
+    return outcome["value"]

@@ -71,3 +71,14 @@ def stop(process: subprocess.Popen, signum: int, timeout: float = 30.0):
     elapsed = time.monotonic() - sent
     out, err = process.communicate()
     return process.returncode, elapsed, out, err
+
+
+def cpu_seconds(pid: int) -> float:
+    """User + system CPU time of ``pid`` so far (0 when it is gone)."""
+    import os
+
+    try:
+        fields = Path(f"/proc/{pid}/stat").read_text().rsplit(")", 1)[1].split()
+    except OSError:
+        return 0.0
+    return (int(fields[11]) + int(fields[12])) / os.sysconf("SC_CLK_TCK")

@@ -5,6 +5,7 @@ from __future__ import annotations
 import click
 
 from ..exact import exact_outcomes, transient_outcomes
+from ..interrupts import call_interruptibly
 from ..outcome import NO_CONSENSUS
 from .options import (
     emit_json,
@@ -40,15 +41,16 @@ def exact(model, sets, until, max_states, as_json):
     seen = [0]
     try:
         with progress_bar("configurations", None, enabled=not as_json) as bar:
-            result = exact_outcomes(net, max_states=max_states, progress=_counting(bar, seen))
+            result = call_interruptibly(exact_outcomes, net, max_states=max_states,
+                                        progress=_counting(bar, seen))
     except KeyboardInterrupt:
         stop_interrupted(f"after enumerating {seen[0]:,} configurations; no result")
     transient = None
     if until is not None:
         try:
             with progress_bar("projection", None, enabled=not as_json) as update:
-                transient = transient_outcomes(net, until, max_states=max_states,
-                                               progress=update)
+                transient = call_interruptibly(transient_outcomes, net, until,
+                                               max_states=max_states, progress=update)
         except KeyboardInterrupt:
             _print(net, result, None, until, as_json)
             stop_interrupted("during the projection to --until; the eventual probabilities "

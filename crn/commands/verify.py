@@ -4,6 +4,7 @@ from __future__ import annotations
 
 import click
 
+from ..interrupts import call_interruptibly
 from ..verify import verify as verify_model
 from .options import (
     emit_json,
@@ -53,7 +54,8 @@ def verify(model, sets, max_n, max_states, as_json):
                 checked[0] = done
                 bar(done, total)
 
-            result = verify_model(loaded, max_n, progress=update, max_states=max_states)
+            result = call_interruptibly(verify_model, loaded, max_n, progress=update,
+                                        max_states=max_states)
     except KeyboardInterrupt:
         stop_interrupted(f"after n = 2..{checked[0] + 1} of 2..{max_n} (no counterexample "
                          "among them)" if checked[0] else "before n = 2 was checked")
