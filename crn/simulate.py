@@ -469,6 +469,7 @@ def _probe(address: str) -> None:
 def _on_cluster(address, task, children, done, report):
     try:
         from distributed import Client, as_completed
+        from distributed.scheduler import KilledWorker
     except ImportError as err:  # pragma: no cover - dask is a dependency
         raise CRNError("--cluster needs dask.distributed") from err
     _probe(address)
@@ -487,8 +488,16 @@ def _on_cluster(address, task, children, done, report):
             chunk_of[future.key] = chunk
             futures.append(future)
         with client.as_current():
+            # a chunk whose worker dies is rescheduled by the scheduler on another worker
+            # (same child streams, same numbers); one that kills workers repeatedly fails
             for future in as_completed(futures):
-                for i, trajectory in zip(chunk_of[future.key], future.result(), strict=True):
+                try:
+                    result = future.result()
+                except KilledWorker as err:
+                    raise WorkerError(f"cluster workers died running the same runs again and "
+                                      f"again ({err}); {len(done)} of {len(children)} runs "
+                                      "finished") from err
+                for i, trajectory in zip(chunk_of[future.key], result, strict=True):
                     done[i] = trajectory
                 report(len(done), len(children))
     finally:
