@@ -57,6 +57,9 @@ def main(argv=None) -> int:
         # below, so skip the interpreter's slow teardown (numba, dask) to stop at once
         import os
 
+        if "multiprocessing" in sys.modules:  # release the pools' semaphores quietly
+            with contextlib.suppress(Exception):
+                sys.modules["multiprocessing"].util._exit_function()
         for stream in (sys.stdout, sys.stderr):
             with contextlib.suppress(Exception):
                 stream.flush()

@@ -7,11 +7,11 @@ import stat
 
 import pytest
 from click.testing import CliRunner
+from proc_tools import start
 
 import crn.io.atomic as atomic
 from crn.cli import cli
 from crn.io.atomic import TEMP_MARK, atomic_path, write_atomic
-from proc_tools import start
 
 AM = "models/approximate_majority.toml"
 SMALL = ["--set", "n=60", "--set", "gap=4"]

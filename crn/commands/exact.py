@@ -9,6 +9,8 @@ from ..interrupts import call_interruptibly
 from ..outcome import NO_CONSENSUS
 from .options import (
     emit_json,
+    guard,
+    guard_options,
     json_option,
     load,
     model_argument,
@@ -33,11 +35,15 @@ def _counts(net, x) -> str:
 @click.option("--max-states", type=click.IntRange(min=1), default=None, metavar="N",
               help="Refuse (or, with --until, project onto) more configurations than N "
                    "(default 10,000,000).")
+@guard_options
 @json_option
-def exact(model, sets, until, max_states, as_json):
+def exact(model, sets, until, max_states, max_memory, force, as_json):
     """Exact outcome probabilities of MODEL from its initial counts, by solving the
     continuous-time Markov chain over every reachable configuration."""
+    from ..guards import exact_estimate
+
     net = load(model, sets).network
+    guard(exact_estimate(net), max_memory, force)
     seen = [0]
     try:
         with progress_bar("configurations", None, enabled=not as_json) as bar:

@@ -12,7 +12,8 @@ from ..io.models import load_model
 from ..model import parse_overrides
 
 __all__ = ["model_argument", "set_option", "seed_option", "json_option", "load", "emit_json",
-           "progress_bar", "to_jsonable", "OUTPUT_FILE", "stop_interrupted"]
+           "progress_bar", "to_jsonable", "OUTPUT_FILE", "stop_interrupted", "guard_options",
+           "guard"]
 
 
 def model_argument(func):
@@ -147,10 +148,16 @@ def progress_bar(description: str, total: int | None, enabled: bool = True):
             yield lambda done, new_total=None: None
             return
         from rich.console import Console
-        from rich.progress import BarColumn, MofNCompleteColumn, Progress, TimeElapsedColumn
+        from rich.progress import (
+            BarColumn,
+            MofNCompleteColumn,
+            Progress,
+            TimeElapsedColumn,
+            TimeRemainingColumn,
+        )
 
         with Progress("[progress.description]{task.description}", BarColumn(),
-                      MofNCompleteColumn(), TimeElapsedColumn(),
+                      MofNCompleteColumn(), TimeElapsedColumn(), TimeRemainingColumn(),
                       console=Console(stderr=True), transient=True) as progress:
             task = progress.add_task(description, total=total)
 
@@ -206,3 +213,60 @@ def stop_interrupted(finished: str):
 
     click.echo(f"crn: {interrupts.reason()} {finished}", err=True)
     click.get_current_context().exit(interrupts.exit_status())
+
+
+class MemorySize(click.ParamType):
+    """A size in bytes: ``4G``, ``512MiB``, ``2.5GB``."""
+
+    name = "size"
+
+    def convert(self, value, param, ctx):
+        from ..errors import CRNError
+        from ..guards import parse_memory
+
+        try:
+            return parse_memory(value)
+        except CRNError as err:
+            self.fail(str(err).removeprefix("--max-memory: "), param, ctx)
+
+
+def guard_options(func):
+    """Add ``--max-memory SIZE`` and ``--force`` (see :mod:`crn.guards`) to a click command.
+
+    Parameters
+    ----------
+    func : callable
+        The command function to decorate.
+
+    Returns
+    -------
+    callable
+        ``func`` with the options, passed as ``max_memory`` (int bytes or None) and
+        ``force`` (bool).
+    """
+    func = click.option("--force", is_flag=True,
+                        help="Run even when the estimated memory or time exceeds the "
+                             "limits.")(func)
+    return click.option("--max-memory", type=MemorySize(), default=None, metavar="SIZE",
+                        help="Refuse work estimated to need more memory (e.g. 4G; default "
+                             "half the machine's RAM).")(func)
+
+
+def guard(estimate, max_memory, force, *, announce_from: float = 10.0) -> None:
+    """Refuse ``estimate`` beyond the limits (exit 2); print it when it is long.
+
+    Parameters
+    ----------
+    estimate : crn.guards.Estimate
+    max_memory : int or None
+        ``--max-memory`` in bytes (None: half the RAM).
+    force : bool
+        ``--force``: never refuse.
+    announce_from : float, default 10
+        Print the estimate on standard error from this many seconds.
+    """
+    from ..guards import enforce
+
+    enforce(estimate, max_memory=max_memory, force=force)
+    if estimate.seconds >= announce_from:
+        click.echo(f"crn: estimated work for {estimate.what}: {estimate.describe()}", err=True)

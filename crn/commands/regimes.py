@@ -21,6 +21,8 @@ from ..regimes import RegimeCell, RegimeMap, plan_cells, regime_map
 from .options import (
     OUTPUT_FILE,
     emit_json,
+    guard,
+    guard_options,
     json_option,
     load,
     model_argument,
@@ -120,10 +122,12 @@ def _fmt(value, spec=".3g"):
               help="Processes computing cells in parallel (default 1).")
 @click.option("--cluster", default=None, metavar="ADDR",
               help="Dask scheduler address for the stochastic runs.")
+@guard_options
 @seed_option
 @json_option
 def regimes(model, sets, n_list, gap_list, fraction_list, risk, until, runs_max, time_factor,
-            method, plot_file, csv_file, out_dir, resume, workers, cluster, seed, as_json):
+            method, plot_file, csv_file, out_dir, resume, workers, cluster, max_memory, force,
+            seed, as_json):
     """Sweep MODEL over populations n and gaps: for each cell, the ODE's decision, the
     probability that a stochastic run disagrees with it (95% interval, simultaneous over the
     sequential looks (Clopper-Pearson, Bonferroni)), the flag, the times;
@@ -142,6 +146,12 @@ def regimes(model, sets, n_list, gap_list, fraction_list, risk, until, runs_max,
     model_obj, networks = cell_networks(model, sets)
     for n, g in skipped:
         click.echo(f"crn: skipping n={n}, gap={g}: (n + gap) / 2 is not whole", err=True)
+    from ..guards import regime_map_estimate
+    from ..regimes import DEFAULT_EXACT_MAX
+
+    guard(regime_map_estimate(networks, cells, runs_max=runs_max, until=until, method=method,
+                              exact_max=DEFAULT_EXACT_MAX, workers=workers or 1),
+          max_memory, force)
 
     entropy = np.random.SeedSequence(seed).entropy
     done, store, new_cells = {}, None, []

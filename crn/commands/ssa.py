@@ -9,6 +9,8 @@ from ..stats import wilson_interval
 from .options import (
     OUTPUT_FILE,
     emit_json,
+    guard,
+    guard_options,
     json_option,
     load,
     model_argument,
@@ -37,12 +39,16 @@ def ensemble_options(func):
     ]
     for option in reversed(options):
         func = option(func)
-    return func
+    return guard_options(func)
 
 
 def run_ensemble(net, *, runs, until, engine, seed, workers, cluster, as_json, times=None,
-                 description="stochastic runs"):
+                 description="stochastic runs", max_memory=None, force=False):
     """Run :func:`crn.simulate.simulate` under a progress bar; report the seed and Ctrl-C.
+
+    First the work is estimated from the engine's cost model
+    (:func:`crn.guards.ensemble_estimate`): printed when long, refused (exit 2)
+    beyond the limits unless ``force``.
 
     Returns
     -------
@@ -55,8 +61,17 @@ def run_ensemble(net, *, runs, until, engine, seed, workers, cluster, as_json, t
     WorkerError
         When worker processes kept dying; ``partial`` holds the finished runs.
     """
+    import os
+
     import numpy as np
 
+    from ..guards import ensemble_estimate
+    from ..simulate import choose_engine, default_horizon
+
+    horizon = default_horizon(net) if until is None else float(until)
+    guard(ensemble_estimate(net, runs=runs, until=horizon, engine=choose_engine(net, engine),
+                            workers=workers or os.cpu_count() or 1,
+                            n_times=101 if times is None else len(times)), max_memory, force)
     root = np.random.SeedSequence(seed)
     if seed is None:
         click.echo(f"seed entropy {root.entropy} (pass --seed {root.entropy} to repeat)",
@@ -128,11 +143,13 @@ def _finish_interrupted(ensemble: Ensemble):
 @click.option("--csv", "csv_path", type=OUTPUT_FILE, default=None,
               help="Also write one row per run to this CSV file (after an interruption, the "
                    "finished runs under a '# partial' first line).")
-def ssa(model, sets, runs, until, engine, workers, cluster, seed, as_json, csv_path):
+def ssa(model, sets, runs, until, engine, workers, cluster, max_memory, force, seed, as_json,
+        csv_path):
     """Run MODEL's exact stochastic dynamics RUNS times and report who won and when.
 
     Each run has its own random stream from --seed, so the numbers do not depend
-    on --workers or --cluster. Ctrl-C stops and reports the runs finished.
+    on --workers or --cluster. Ctrl-C stops and reports the runs finished. The
+    work is estimated first and refused beyond a day (or --max-memory) unless --force.
     """
     from ..errors import WorkerError
     from ..io.runs import write_runs_csv
@@ -143,7 +160,8 @@ def ssa(model, sets, runs, until, engine, workers, cluster, seed, as_json, csv_p
     try:
         ensemble, interrupted = run_ensemble(net, runs=runs, until=until, engine=engine,
                                              seed=seed, workers=workers, cluster=cluster,
-                                             as_json=as_json)
+                                             as_json=as_json, max_memory=max_memory,
+                                             force=force)
     except WorkerError as err:
         if csv_path is not None and err.partial is not None and err.partial.runs:
             write_runs_csv(err.partial, csv_path, note="worker processes died")

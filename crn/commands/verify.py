@@ -8,6 +8,8 @@ from ..interrupts import call_interruptibly
 from ..verify import verify as verify_model
 from .options import (
     emit_json,
+    guard,
+    guard_options,
     json_option,
     load,
     model_argument,
@@ -36,8 +38,9 @@ def _step(step: dict) -> str:
               help="Check every population size from 2 to N.")
 @click.option("--max-states", type=click.IntRange(min=1), default=None, metavar="N",
               help="Refuse a case with more reachable configurations than N.")
+@guard_options
 @json_option
-def verify(model, sets, max_n, max_states, as_json):
+def verify(model, sets, max_n, max_states, max_memory, force, as_json):
     """Check that MODEL stably computes its majority question for every n from 2 to
     --max-n and every split of the n agents between the two input states.
 
@@ -46,7 +49,11 @@ def verify(model, sets, max_n, max_states, as_json):
     the shortest sequence of interactions leading into a wrong component.
     Non-input states keep the model's initial counts (usually zero).
     """
+    from ..guards import verify_estimate
+
     loaded = load(model, sets)
+    if loaded.network.inputs is not None:
+        guard(verify_estimate(loaded.network, max_n), max_memory, force)
     checked = [0]
     try:
         with progress_bar("population sizes", max_n - 1, enabled=not as_json) as bar:
