@@ -91,6 +91,9 @@ def _run(argv) -> int:
         else:
             click.echo(f"crn: {_one_line(err.format_message())}", err=True)
         return EXIT_BAD_INPUT
+    except RecursionError:
+        click.echo("crn: the input is nested too deeply to read", err=True)
+        return EXIT_BAD_INPUT
     except WorkerError as err:
         click.echo(f"crn: {_one_line(str(err))}", err=True)
         return EXIT_FAILED

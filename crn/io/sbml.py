@@ -316,6 +316,11 @@ def _to_sympy(node, symbols):
     raise _NotMassAction(f"the operator {libsbml.formulaToL3String(node)!r}")
 
 
+_MAX_STOICHIOMETRY = 1000
+"""Larger stoichiometries are refused: mass-action laws of that order are not chemistry, and
+expanding them symbolically would not finish."""
+
+
 def _q(x):
     """A float as the exact sympy rational it stands for."""
     import sympy
@@ -423,10 +428,10 @@ def network_from_sbml(text: str, *, source: str = "<sbml>") -> Network:
         else:
             amount = 0.0
         amount = _exact(amount, attrs.get("initial"))
-        rounded = round(amount)
-        if not math.isfinite(amount) or amount < 0 or abs(amount - rounded) > 1e-9 * max(
+        if not math.isfinite(amount) or amount < 0 or abs(amount - round(amount)) > 1e-9 * max(
                 1.0, abs(amount)):
             raise refuse(f"initial amount of {sid} is {amount!r}, not a whole number >= 0", sid)
+        rounded = round(amount)
         species.append(sid)
         initial[sid] = int(rounded)
         if "label" in attrs:
@@ -453,6 +458,9 @@ def network_from_sbml(text: str, *, source: str = "<sbml>") -> Network:
                 if not float(m).is_integer() or m < 0:
                     raise refuse(f"reaction {rid}: stoichiometry {m} of {ref.getSpecies()} is "
                                  "not a whole number", rid)
+                if m > _MAX_STOICHIOMETRY:
+                    raise refuse(f"reaction {rid}: stoichiometry {m:g} of {ref.getSpecies()} "
+                                 f"is above {_MAX_STOICHIOMETRY}", rid)
                 if m:
                     side[ref.getSpecies()] = side.get(ref.getSpecies(), 0) + int(m)
             sides.append(side)
