@@ -301,6 +301,10 @@ def _to_sympy(node, symbols):
             raise _NotMassAction(f"the symbol {name!r}")
         return symbols[name]
     args = [_to_sympy(child, symbols) for child in children]
+    binary = (libsbml.AST_DIVIDE, libsbml.AST_POWER, libsbml.AST_FUNCTION_POWER)
+    if (kind in binary and len(args) != 2) or (kind == libsbml.AST_MINUS
+                                               and len(args) not in (1, 2)):
+        raise _NotMassAction("an operator with missing or extra operands")
     if kind == libsbml.AST_PLUS:
         return sympy.Add(*args)
     if kind == libsbml.AST_TIMES:
@@ -312,6 +316,8 @@ def _to_sympy(node, symbols):
     if kind in (libsbml.AST_POWER, libsbml.AST_FUNCTION_POWER):
         if not args[1].is_Integer:
             raise _NotMassAction("a power that is not a whole number")
+        if abs(args[1]) > _MAX_STOICHIOMETRY:
+            raise _NotMassAction(f"a power above {_MAX_STOICHIOMETRY}")
         return args[0] ** args[1]
     raise _NotMassAction(f"the operator {libsbml.formulaToL3String(node)!r}")
 
@@ -325,6 +331,8 @@ def _q(x):
     """A float as the exact sympy rational it stands for."""
     import sympy
 
+    if not math.isfinite(float(x)):
+        return sympy.nan  # makes the law's rate constant non-real: refused as not mass action
     return sympy.Rational(*float(x).as_integer_ratio())
 
 
@@ -473,6 +481,12 @@ def network_from_sbml(text: str, *, source: str = "<sbml>") -> Network:
             local[p.getId()] = _q(p.getValue())
         try:
             rate = _rate_constant(law.getMath(), sides[0], local, volume)
+        except (TypeError, ValueError, ZeroDivisionError, OverflowError) as err:
+            # a law sympy cannot reduce to a real constant (k / 0, ...): not mass action
+            err = _NotMassAction(f"no real rate constant: {type(err).__name__}")
+            formula = libsbml.formulaToL3String(law.getMath())
+            raise refuse(f"reaction {rid}: kinetic law {formula!r} is not mass action "
+                         f"({err}); only mass-action laws are imported", rid) from None
         except _NotMassAction as err:
             formula = libsbml.formulaToL3String(law.getMath())
             raise refuse(f"reaction {rid}: kinetic law {formula!r} is not mass action "
