@@ -5,7 +5,7 @@ BIN := $(VENV)/bin
 STAMP := $(VENV)/.installed
 TEST_STAMP := $(VENV)/.installed-test
 
-.PHONY: demo test lint bench clean
+.PHONY: demo test test-slow lint bench clean browser
 
 $(BIN)/python:
 	$(PYTHON) -m venv $(VENV)
@@ -22,8 +22,19 @@ $(TEST_STAMP): pyproject.toml | $(BIN)/python
 demo: $(STAMP)
 	$(BIN)/python -m crn.demo --out out
 
-test: $(TEST_STAMP)
+# The report's browser test drives Debian's chromium; installed here when missing (as root).
+browser:
+	@command -v chromium >/dev/null 2>&1 || { \
+	  if [ "$$(id -u)" = 0 ] && command -v apt-get >/dev/null 2>&1; then \
+	    apt-get update -qq && DEBIAN_FRONTEND=noninteractive apt-get install -y -qq chromium >/dev/null; \
+	  else echo "make: no chromium and not root: the report's browser test will be skipped"; fi; }
+
+test: $(TEST_STAMP) browser
 	$(BIN)/python -m pytest -q
+
+# the long statistical runs (marked slow; a faster test of the same code is in `make test`)
+test-slow: $(TEST_STAMP)
+	$(BIN)/python -m pytest -q -m slow
 
 lint: $(TEST_STAMP)
 	$(BIN)/ruff check crn tests benchmarks

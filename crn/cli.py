@@ -12,6 +12,7 @@ import sys
 
 import click
 
+from . import __version__
 from .errors import CRNError, WorkerError
 
 __all__ = ["cli", "main"]
@@ -22,7 +23,7 @@ _PACKAGE_DIR = __file__.rsplit("/", 1)[0]
 
 
 @click.group(context_settings={"help_option_names": ["-h", "--help"]})
-@click.version_option(package_name="crn")
+@click.version_option(version=__version__, prog_name="crn")
 def cli():
     """Population protocols as chemical reaction networks: mean field, exact
     stochastic dynamics and exact small-population analysis side by side."""

@@ -10,15 +10,18 @@ from __future__ import annotations
 from collections.abc import Mapping, Sequence
 from dataclasses import dataclass, field
 from functools import cached_property
+from typing import TYPE_CHECKING
 
 import numpy as np
-import scipy.sparse as sp
+
+if TYPE_CHECKING:
+    import scipy.sparse as sp
 
 from .errors import ModelError
 from .protocol import is_identifier
 
-__all__ = ["MAX_COUNT", "MAX_MULTIPLICITY", "NO_CONSENSUS", "Reaction", "Network", "propensities",
-           "deterministic_rates", "format_side"]
+__all__ = ["MAX_COUNT", "MAX_MULTIPLICITY", "NO_CONSENSUS", "IGNORED", "Reaction", "Network",
+           "propensities", "deterministic_rates", "format_side"]
 
 
 #: Largest molecule count (and population) a network may hold: the range of the batched
@@ -29,6 +32,10 @@ _MAX_POWER = MAX_COUNT.bit_length() - 1
 MAX_MULTIPLICITY = 1000
 #: The label that stands for "no consensus" in every tally; no species may report it.
 NO_CONSENSUS = "none"
+#: Value of ``Network.species_label`` for a species the consensus rule ignores (fuel,
+#: gates, intermediates and waste of a DNA implementation): it neither reports a label
+#: nor breaks consensus. -1 stays "reports nothing", which breaks consensus.
+IGNORED = -2
 
 
 @dataclass(frozen=True)
@@ -104,7 +111,9 @@ class Network:
     labels : tuple of str
         The distinct output labels.
     species_label : ndarray of int64, shape (n_species,)
-        Index into ``labels`` of the label each species reports, -1 for none.
+        Index into ``labels`` of the label each species reports, -1 for none
+        (the species breaks consensus while present), :data:`IGNORED` (-2) for a
+        species the consensus rule ignores.
     inputs : tuple of (int, int) or None
         Species indices of the two input states the question compares.
     from_protocol : bool
@@ -141,6 +150,7 @@ class Network:
         majority: tuple[str, str] | None = None,
         from_protocol: bool = False,
         about: str = "",
+        ignore: Sequence[str] = (),
     ) -> Network:
         """Build a network from named reactions.
 
@@ -158,6 +168,10 @@ class Network:
             The two input species.
         from_protocol : bool, default False
         about : str
+        ignore : sequence of str, default ()
+            Species the consensus rule ignores: they neither report a label nor
+            break consensus (the non-signal species of a DNA implementation).
+            A species cannot both report a label and be ignored.
 
         Raises
         ------
@@ -214,6 +228,13 @@ class Network:
                 raise ModelError(f"label {label!r} of {s} is reserved for runs without consensus",
                                  field=f"output.{s}")
             species_label[index[s]] = label_index[label]
+        for s in ignore:
+            if s not in index:
+                raise ModelError(f"ignored species {s!r} is not a species", field="ignore")
+            if species_label[index[s]] >= 0:
+                raise ModelError(f"species {s} reports a label and cannot be ignored",
+                                 field="ignore")
+            species_label[index[s]] = IGNORED
         inputs = None
         if majority is not None:
             if len(majority) != 2 or not all(isinstance(s, str) for s in majority):
@@ -338,6 +359,12 @@ class Network:
         return {s: self.labels[k] for s, k in pairs if k >= 0}
 
     @property
+    def ignored(self) -> tuple[str, ...]:
+        """Names of the species the consensus rule ignores (see :data:`IGNORED`)."""
+        pairs = zip(self.species, self.species_label, strict=True)
+        return tuple(s for s, k in pairs if k == IGNORED)
+
+    @property
     def majority(self) -> tuple[str, str] | None:
         """Names of the two input species, or None."""
         if self.inputs is None:
@@ -401,6 +428,8 @@ def _replace(net: Network, **changes) -> Network:
 
 
 def _side_matrix(species, counts, n_species):
+    import scipy.sparse as sp
+
     rows, cols = np.nonzero(species >= 0)
     data = counts[rows, cols]
     return sp.csr_matrix(

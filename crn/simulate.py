@@ -17,6 +17,7 @@ from dataclasses import dataclass, field
 
 import numpy as np
 
+from .engines import ENGINES
 from .engines.base import Trajectory
 from .errors import CRNError, WorkerError
 from .network import Network
@@ -24,13 +25,8 @@ from .outcome import NO_CONSENSUS, tally
 from .stats import time_summary
 
 __all__ = ["Ensemble", "SimulationInterrupted", "simulate", "ENGINES", "choose_engine",
-           "default_horizon", "run_chunk", "AUTO_BATCHED_FROM"]
+           "default_horizon", "run_chunk", "probe_scheduler", "AUTO_BATCHED_FROM"]
 
-ENGINES = {
-    "direct": ("crn.engines.direct", "run_direct"),
-    "batched": ("crn.engines.batched", "run_batched"),
-    "reference": ("crn.reference", "run_reference"),
-}
 AUTO_BATCHED_FROM = 100_000
 """Agents from which ``engine="auto"`` runs a protocol with the batched engine."""
 
@@ -71,6 +67,9 @@ class Ensemble:
         Which child stream each run used (0..requested-1; all of them unless interrupted).
     requested : int
         Runs asked for.
+    outcome_labels : tuple of str
+        Every label a run can decide on (the network's output labels), so that
+        :meth:`outcomes` lists the labels no run reached, with 0.
     """
 
     runs: int
@@ -89,6 +88,7 @@ class Ensemble:
     species: tuple
     run_index: np.ndarray = field(default=None)
     requested: int = 0
+    outcome_labels: tuple = ()
 
     @property
     def complete(self) -> bool:
@@ -96,8 +96,12 @@ class Ensemble:
         return self.runs == self.requested
 
     def outcomes(self) -> dict[str, int]:
-        """First-consensus label -> number of runs, with ``"none"`` for no consensus."""
-        out = tally(self.labels)
+        """First-consensus label -> number of runs, with ``"none"`` for no consensus.
+
+        Every label of :attr:`outcome_labels` and ``"none"`` appear, with 0 when no run got it.
+        """
+        out = dict.fromkeys(self.outcome_labels, 0)
+        out.update(tally(self.labels))
         out.setdefault(NO_CONSENSUS, 0)
         return out
 
@@ -107,7 +111,8 @@ class Ensemble:
 
     @classmethod
     def from_trajectories(cls, trajectories, *, engine, seed_entropy, until, species,
-                          times, run_index=None, requested=None) -> Ensemble:
+                          times, run_index=None, requested=None, outcome_labels=()
+                          ) -> Ensemble:
         """Collect runs (in run order) into an ensemble."""
         trajectories = list(trajectories)
         r = len(trajectories)
@@ -129,6 +134,7 @@ class Ensemble:
             run_index=np.arange(r, dtype=np.int64) if run_index is None
             else np.asarray(run_index, dtype=np.int64),
             requested=r if requested is None else int(requested),
+            outcome_labels=tuple(outcome_labels),
         )
 
 
@@ -245,7 +251,7 @@ def _root(rng) -> np.random.SeedSequence:
 def simulate(net: Network, *, runs: int = 1, until: float | None = None, times=None,
              engine: str = "auto", rng=None, workers: int | None = None,
              cluster: str | None = None, stop_at_consensus: bool = False,
-             progress: Callable[[int, int], None] | None = None) -> Ensemble:
+             progress: Callable[[int, int], None] | None = None, reduce=None) -> Ensemble:
     """Run an ensemble of exact stochastic simulations.
 
     Parameters
@@ -271,6 +277,11 @@ def simulate(net: Network, *, runs: int = 1, until: float | None = None, times=N
     stop_at_consensus : bool, default False
     progress : callable(done, total), optional
         Called as runs finish.
+    reduce : object with ``add(index, counts)``, optional
+        Receives each run's counts at ``times`` as it finishes (for instance a
+        :class:`crn.time_course.TimeCourseAccumulator`); the ensemble then keeps
+        only each run's final counts (``times`` and ``counts`` hold the last
+        sample), so memory does not grow with runs x samples.
 
     Returns
     -------
@@ -316,7 +327,7 @@ def simulate(net: Network, *, runs: int = 1, until: float | None = None, times=N
     root = _root(rng)
     children = root.spawn(int(runs))
     workers = (os.cpu_count() or 1) if workers is None else int(workers)
-    done: dict[int, Trajectory] = {}
+    done: dict[int, Trajectory] = {} if reduce is None else _Reducing(reduce)
     report = progress or (lambda d, t: None)
     task = (net, name, until, times, bool(stop_at_consensus))
     try:
@@ -334,12 +345,29 @@ def simulate(net: Network, *, runs: int = 1, until: float | None = None, times=N
     return _collect(done, name, root, until, net, times, runs)
 
 
+class _Reducing(dict):
+    """Run index -> trajectory that hands each run's counts to a reducer and keeps the last."""
+
+    def __init__(self, reducer):
+        super().__init__()
+        self.reducer = reducer
+
+    def __setitem__(self, index, trajectory):
+        import dataclasses
+
+        self.reducer.add(index, trajectory.counts)
+        super().__setitem__(index, dataclasses.replace(
+            trajectory, times=trajectory.times[-1:], counts=trajectory.counts[-1:]))
+
+
 def _collect(done, name, root, until, net, times, runs) -> Ensemble:
+    if isinstance(done, _Reducing):
+        times = times[-1:]
     order = sorted(done)
     return Ensemble.from_trajectories([done[i] for i in order], engine=name,
                                       seed_entropy=int(root.entropy), until=until,
                                       species=net.species, times=times, run_index=order,
-                                      requested=runs)
+                                      requested=runs, outcome_labels=net.labels)
 
 
 def _chunks(n_runs: int, workers: int) -> list[range]:
@@ -452,16 +480,33 @@ def _pool_pass(workers, task, children, chunks, done, report):
                 raise broken
 
 
-def _probe(address: str) -> None:
-    """Fail fast on a refused TCP address instead of waiting out Dask's connect retries."""
+def probe_scheduler(address: str) -> None:
+    """Fail fast on a malformed or refused TCP address instead of waiting out Dask's retries.
+
+    Parameters
+    ----------
+    address : str
+        ``tcp://HOST:PORT``, ``tls://HOST:PORT`` or ``HOST:PORT``; other schemes pass unchecked.
+
+    Raises
+    ------
+    CRNError
+        When a TCP or TLS address has no host or port, or nothing listens there.
+    """
     import socket
     from urllib.parse import urlsplit
 
     parts = urlsplit(address if "://" in address else f"tcp://{address}")
-    if parts.scheme not in ("tcp", "tls") or parts.port is None:
+    if parts.scheme not in ("tcp", "tls"):
         return
     try:
-        socket.create_connection((parts.hostname, parts.port), timeout=5).close()
+        port = parts.port
+    except ValueError:
+        port = None
+    if not parts.hostname or port is None:
+        raise CRNError(f"{address!r} is not a scheduler address; expected tcp://HOST:PORT")
+    try:
+        socket.create_connection((parts.hostname, port), timeout=5).close()
     except OSError as err:
         raise CRNError(f"cannot reach the Dask scheduler at {address}: {err}") from err
 
@@ -472,7 +517,7 @@ def _on_cluster(address, task, children, done, report):
         from distributed.scheduler import KilledWorker
     except ImportError as err:  # pragma: no cover - dask is a dependency
         raise CRNError("--cluster needs dask.distributed") from err
-    _probe(address)
+    probe_scheduler(address)
     try:
         client = Client(address, timeout="10s", set_as_default=False)
     except (OSError, TimeoutError) as err:

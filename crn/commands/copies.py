@@ -4,10 +4,10 @@ from __future__ import annotations
 
 import click
 
-from ..copies import physical_outputs, smallest_n
 from ..errors import CRNError
 from ..units import (
-    AVOGADRO,
+    WET_LAB_CAUTION,
+    concentration_for,
     format_concentration,
     format_time,
     format_volume,
@@ -15,11 +15,15 @@ from ..units import (
     parse_rate_constant,
     parse_time,
     parse_volume,
+    to_parallel_time,
 )
-from .options import emit_json, json_option, model_argument, seed_option, set_option
+from .options import emit_json, json_option, model_argument, seed_notice, seed_option, set_option
 from .regimes import cell_networks
 
 __all__ = ["copies", "parse_deadline"]
+
+#: :data:`crn.loading.LOADINGS`, repeated here so that start-up imports no numpy (tested).
+LOADINGS = ("fixed", "poisson")
 
 
 def parse_deadline(text: str | None):
@@ -39,7 +43,7 @@ def parse_deadline(text: str | None):
 @model_argument
 @set_option
 @click.option("--gap-fraction", type=float, default=None, metavar="F",
-              help="Gap as a fraction of the population (e.g. 0.05).")
+              help="Gap as a fraction of the population, in (0, 1) (e.g. 0.05).")
 @click.option("--gap", type=click.IntRange(min=0), default=None, metavar="G",
               help="A fixed gap in molecules.")
 @click.option("--risk", type=click.FloatRange(0, 1, min_open=True, max_open=True), default=0.01,
@@ -58,16 +62,22 @@ def parse_deadline(text: str | None):
 @click.option("--runs-max", type=click.IntRange(min=1), default=4000, show_default=True,
               help="Most stochastic runs per probed population.")
 @click.option("--method", type=click.Choice(["auto", "exact", "stochastic"]), default="auto",
-              show_default=True)
-@seed_option
+              show_default=True, help="Exact analysis, stochastic runs, or exact when small.")
+@click.option("--loading", type=click.Choice(list(LOADINGS)), default="fixed", show_default=True,
+              help="fixed: every droplet holds exactly n, split by the gap. poisson: n and the "
+                   "gap are means, each input's count in a droplet is Poisson; the risk is "
+                   "integrated over the loading and split into loading and kinetics.")
+@seed_option(workers=False)
 @json_option
 def copies(model, sets, gap_fraction, gap, risk, deadline, concentration, volume, rate, n_max,
-           runs_max, method, seed, as_json):
+           runs_max, method, loading, seed, as_json):
     """Smallest number of agents (molecules) of MODEL that reach the correct consensus by the
-    deadline with probability at least 1 - risk, with an interval for sampling error (per
-    population a 95% interval, simultaneous over the sequential looks (Clopper-Pearson,
-    Bonferroni)); and
-    with physical options the concentration or volume and the time in seconds and hours."""
+    deadline with probability at least 1 - risk, on the safe side: the 95% upper bound of the
+    risk at the reported n lies below --risk (per population a 95% interval, simultaneous over
+    the sequential looks, Clopper-Pearson with Bonferroni), and one lattice step below it does
+    not. With physical options: the concentration or volume and the time in seconds and hours."""
+    from ..copies import physical_outputs, smallest_n
+
     if (gap_fraction is None) == (gap is None):
         raise CRNError("give exactly one of --gap-fraction and --gap")
     if concentration is not None and volume is not None:
@@ -81,16 +91,17 @@ def copies(model, sets, gap_fraction, gap, risk, deadline, concentration, volume
             raise CRNError("a deadline in physical time needs --rate and --concentration or "
                            "--volume (to convert it into parallel time)")
         if conc is not None:
-            parallel_deadline = deadline_seconds * k * conc
+            parallel_deadline = to_parallel_time(deadline_seconds, k, conc)
         else:
             # a fixed volume: the concentration, and so the time unit, grows with n
             def parallel_deadline(n, _s=deadline_seconds, _k=k, _v=vol):
-                return _s * _k * n / (_v * AVOGADRO)
+                return to_parallel_time(_s, _k, concentration_for(n, _v))
     model_obj, networks = cell_networks(model, sets)
     try:
         result = smallest_n(networks, gap_fraction=gap_fraction, gap=gap, risk=risk,
                             deadline=parallel_deadline, n_max=n_max, method=method,
-                            runs_max=runs_max, rng=seed, workers=1)
+                            runs_max=runs_max, rng=seed, workers=1, loading=loading,
+                            scale_deadline=deadline_seconds is not None)
     except KeyboardInterrupt:
         from .options import stop_interrupted
 
@@ -120,25 +131,69 @@ def copies(model, sets, gap_fraction, gap, risk, deadline, concentration, volume
             "seconds": phys["seconds"],
             "hours": phys["hours"],
             "method": result.method,
+            "loading": result.loading,
+            "bracket": {"passes": result.estimate, "fails": result.below},
+            "p_wrong": _p_wrong(result.at_estimate),
+            "p_wrong_below": _p_wrong(result.at_below),
+            "risk_parts": _risk_parts(result.at_estimate),
             "seed": result.seed_entropy,
             "probes": [p.__dict__ for p in result.probes],
+            "caution": WET_LAB_CAUTION,
         })
         return
     if seed is None:
-        click.echo(f"crn: seed {result.seed_entropy}", err=True)
+        seed_notice(result.seed_entropy)
     click.echo(_text(model_obj.name, result, phys, bounds, deadline_seconds))
+
+
+def _p_wrong(probe) -> dict | None:
+    """P(no correct decision by the deadline) at a probe, with its 95% interval."""
+    if probe is None:
+        return None
+    p, low, high = probe.p_wrong
+    return {"estimate": p, "low": low, "high": high, "runs": probe.trials,
+            "method": probe.method}
+
+
+def _risk_parts(probe) -> dict | None:
+    """Poisson loading: the risk from reversed or tied loadings and from the kinetics."""
+    if probe is None or probe.loading != "poisson":
+        return None
+    return {"loading": probe.wrong_loading, "kinetics": probe.wrong_kinetics,
+            "reversal": probe.reversal}
+
+
+def _interval(probe) -> str:
+    p, low, high = probe.p_wrong
+    if probe.method == "exact":
+        return f"P(wrong) = {p:.3g} (exact)"
+    return f"P(wrong) = {p:.3g} (95% interval {low:.3g} .. {high:.3g}, {probe.trials:,} runs)"
 
 
 def _text(name, result, phys, bounds, deadline_seconds) -> str:
     target = f"P(correct consensus{'' if result.deadline is None else ' by the deadline'})"
-    lines = [f"{name}: smallest population with {target} >= {1 - result.risk:g}"]
+    mean = " (mean per droplet, Poisson loading)" if result.loading == "poisson" else ""
+    lines = [f"{name}: smallest population{mean} with {target} >= {1 - result.risk:g}"]
     if result.estimate is None:
         lines.append("  no population up to --n-max meets the risk"
                      + (" (the deadline may be too short)" if result.deadline else ""))
+        lines.append(f"  {WET_LAB_CAUTION}")
         return "\n".join(lines)
-    lines.append(f"  n = {result.estimate:,} (gap {result.gap_estimate:,}); 95% range allowing "
-                 f"for sampling error: {_n(result.low)} .. {_n(result.high)} "
-                 f"[{result.method}]")
+    at, below = result.at_estimate, result.at_below
+    sure = "" if at.method == "exact" else " with 95% confidence"
+    lines.append(f"  n = {result.estimate:,} (gap {result.gap_estimate:,}): {_interval(at)}, "
+                 f"below the risk {result.risk:g}{sure} [{result.method}]")
+    if below is not None:
+        lines.append(f"  one step below, n = {below.n:,}: {_interval(below)}, not surely below "
+                     f"the risk")
+    if result.low is not None and result.low < result.estimate:
+        lines.append(f"  allowing for sampling error the smallest n could be as low as "
+                     f"{result.low:,}")
+    if at.loading == "poisson":
+        about = "" if at.method == "exact" else "about "
+        lines.append(f"  P(wrong) by cause: {about}{at.wrong_loading:.3g} from droplets whose "
+                     f"counts reversed or tied the gap (P = {at.reversal:.3g}), "
+                     f"{about}{at.wrong_kinetics:.3g} from the kinetics")
     if result.deadline is not None:
         lines.append(f"  deadline: {result.deadline:.4g} parallel time"
                      + (f" ({format_time(deadline_seconds)})" if deadline_seconds else ""))
@@ -150,10 +205,5 @@ def _text(name, result, phys, bounds, deadline_seconds) -> str:
     if phys["seconds"] is not None:
         lines.append(f"  consensus in about {format_time(phys['seconds'])} "
                      f"({phys['seconds']:.4g} s)")
-    lines.append("  wet-lab numbers are model predictions: validate them with your lab's own "
-                 "controls and follow its safety practice")
+    lines.append(f"  {WET_LAB_CAUTION}")
     return "\n".join(lines)
-
-
-def _n(value):
-    return "none up to --n-max" if value is None else f"{value:,}"

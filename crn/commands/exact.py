@@ -4,9 +4,6 @@ from __future__ import annotations
 
 import click
 
-from ..exact import exact_outcomes, transient_outcomes
-from ..interrupts import call_interruptibly
-from ..outcome import NO_CONSENSUS
 from .options import (
     emit_json,
     guard,
@@ -40,7 +37,9 @@ def _counts(net, x) -> str:
 def exact(model, sets, until, max_states, max_memory, force, as_json):
     """Exact outcome probabilities of MODEL from its initial counts, by solving the
     continuous-time Markov chain over every reachable configuration."""
+    from ..exact import exact_outcomes, transient_outcomes
     from ..guards import exact_estimate
+    from ..interrupts import call_interruptibly
 
     net = load(model, sets).network
     guard(exact_estimate(net), max_memory, force)
@@ -73,6 +72,8 @@ def _counting(bar, seen):
 
 
 def _print(net, result, transient, until, as_json):
+    from ..outcome import NO_CONSENSUS
+
     if as_json:
         obj = {
             "model": net.name,

@@ -5,12 +5,27 @@ from __future__ import annotations
 import math
 
 import click
-import numpy as np
 
-from ..ode import METHODS, solve_mean_field
-from .options import OUTPUT_FILE, emit_json, json_option, load, model_argument, set_option
+from .options import (
+    FIGURE_FILE,
+    OUTPUT_FILE,
+    emit_json,
+    every_option,
+    force_option,
+    json_option,
+    lab_time_options,
+    load,
+    model_argument,
+    sample_times_option_value,
+    seconds_per_time,
+    set_option,
+)
 
 __all__ = ["mean_field_json", "ode"]
+
+#: The integrators of scipy's ``solve_ivp`` offered by ``--method``; the same as
+#: :data:`crn.ode.METHODS` (kept here so that ``crn --help`` needs no scipy).
+METHODS = ("LSODA", "BDF", "Radau", "RK45", "DOP853")
 
 
 def _parse_times(text: str | None):
@@ -24,6 +39,8 @@ def _parse_times(text: str | None):
     if not times or any(not math.isfinite(t) or t < 0 for t in times):
         raise click.BadParameter(f"times must be finite and >= 0, got {text!r}",
                                  param_hint="--at")
+    import numpy as np
+
     return np.unique(np.asarray(times, dtype=np.float64))
 
 
@@ -38,6 +55,13 @@ def _eigenvalue(z: complex, tol: float = 1e-7):
         "re": _number(z.real), "im": _number(z.imag)}
 
 
+def _free(point, species) -> list[str]:
+    """Species left free along a continuum of fixed points (the others follow from them)."""
+    if point.exact is not None:
+        return [s for s in species if point.exact[s] == s]
+    return [s for s, v in zip(species, point.point, strict=True) if not math.isfinite(v)]
+
+
 def _fixed_point_dict(point, species) -> dict:
     return {
         "point": {s: _number(v) for s, v in zip(species, point.point, strict=True)},
@@ -48,6 +72,7 @@ def _fixed_point_dict(point, species) -> dict:
         "consensus": point.consensus,
         "tie": point.tie,
         "exact": point.exact,
+        "free": _free(point, species),
     }
 
 
@@ -57,13 +82,26 @@ def _format_point(point, species) -> str:
     return ", ".join(f"{s}={v:.6g}" for s, v in zip(species, point.point, strict=True))
 
 
+def _format_continuum(point, species) -> str:
+    free = _free(point, species)
+    fixed = [s for s in species if s not in free]
+    if point.exact is not None:
+        where = ", ".join(f"{s}={point.exact[s]}" for s in fixed)
+    else:
+        where = ", ".join(f"{s}={v:.6g}" for s, v in zip(species, point.point, strict=True)
+                          if s in fixed)
+    what = "a continuum of fixed points, one for every value of " + " and ".join(free)
+    return (f"{where + ': ' if where else ''}{what}; not isolated, so the eigenvalues say "
+            "nothing about stability")
+
+
 def _format_eigenvalues(values) -> str:
     parts = []
     for z in values:
         z = complex(z)
         parts.append(f"{z.real:.6g}" if abs(z.imag) <= 1e-12 * max(1, abs(z))
                      else f"{z.real:.6g}{z.imag:+.6g}i")
-    return ", ".join(parts) if parts else "-"
+    return ", ".join(parts) if parts else "none (the conserved class is this one point)"
 
 
 @click.command("ode")
@@ -74,8 +112,9 @@ def _format_eigenvalues(values) -> str:
                                 "consensus, capped at a multiple of the natural time scale.")
 @click.option("--at", "at", default=None, metavar="t1,t2,...",
               help="Report the solution at these times (the solve then runs past consensus).")
-@click.option("--plot", "plot_file", type=OUTPUT_FILE, default=None,
-              metavar="FILE", help="Save a figure of the fractions against time (png, pdf, svg).")
+@click.option("--plot", "plot_file", type=FIGURE_FILE, default=None,
+              metavar="FILE", help="Save a figure of the fractions against time (png, pdf, "
+                                   "svg, ...).")
 @click.option("--csv", "csv_file", type=OUTPUT_FILE, default=None,
               metavar="FILE", help="Write the trajectory as CSV (time, then one column per "
                                    "species).")
@@ -86,14 +125,23 @@ def _format_eigenvalues(values) -> str:
               help="Integrator of scipy's solve_ivp (BDF or Radau for stiff networks).")
 @click.option("--fixed-points/--no-fixed-points", "with_fixed_points", default=True,
               show_default=True, help="Find the fixed points on the conserved simplex.")
+@every_option
+@click.option("--counts", "in_counts", is_flag=True,
+              help="With --every: the time course in molecule counts (to overlay `crn ssa "
+                   "--every`) instead of fractions or concentrations.")
+@force_option
+@lab_time_options
 def ode(model, sets, until, at, plot_file, csv_file, as_json, equations, latex, method,
-        with_fixed_points):
+        with_fixed_points, every, in_counts, force, rate, concentration):
     """Solve the mean-field ODE of MODEL: fractions of the population against parallel
     time for a protocol (n -> infinity), concentrations for a network. Reports the
     consensus (the agents not reporting the leading label make fewer than one
     molecule) and the fixed points with their stability."""
+    from ..ode import solve_mean_field
+
     loaded = load(model, sets)
     net = loaded.network
+    seconds = seconds_per_time(net, rate, concentration)
     if equations or latex:
         _print_equations(net, latex, as_json)
         return
@@ -101,23 +149,51 @@ def ode(model, sets, until, at, plot_file, csv_file, as_json, equations, latex, 
     if times is not None and until is not None and times[-1] > until:
         raise click.BadParameter(f"time {times[-1]:g} is beyond --until {until:g}",
                                  param_hint="--at")
+    if every is not None:
+        if times is not None:
+            raise click.BadParameter("give either --at or --every, not both",
+                                     param_hint="--every")
+        from ..ode import default_horizon
+
+        times = sample_times_option_value(every, default_horizon(net) if until is None
+                                          else until, force)
+        until = float(times[-1])
+    elif in_counts:
+        raise click.BadParameter("--counts applies to the time course of --every",
+                                 param_hint="--counts")
     result = solve_mean_field(net, until=until, times=times, method=method,
                               stop_at_consensus=times is None)
+    course = None
+    if every is not None:
+        from ..time_course import TimeCourse
+
+        course = TimeCourse.from_mean_field(result, counts=in_counts)
     points = None
     if with_fixed_points:
         from ..fixed_points import find_fixed_points
 
         points = find_fixed_points(net)
-    if csv_file:
+    if csv_file and course is not None:
+        from ..io.time_course import write_time_course_csv
+
+        write_time_course_csv(csv_file, course)
+    elif csv_file:
         from ..io.ode_files import write_mean_field_csv
 
         write_mean_field_csv(csv_file, result)
     if plot_file:
-        _plot(result, loaded.name, plot_file)
+        _plot(result, loaded.name, plot_file, seconds)
     if as_json:
-        emit_json(mean_field_json(loaded, result, points))
+        obj = mean_field_json(loaded, result, points)
+        if course is not None:
+            obj["time_course"] = course.to_json()
+        emit_json(obj)
         return
-    click.echo(_text(loaded, result, points))
+    text = _text(loaded, result, points, requested=at is not None)
+    if course is not None:
+        text += (f"\ntime course: {course.times.size} samples every {every:g} up to "
+                 f"{course.times[-1]:.6g}, in {course.units} (--json or --csv to see it)")
+    click.echo(text)
 
 
 def _print_equations(net, latex: bool, as_json: bool) -> None:
@@ -136,7 +212,7 @@ def _print_equations(net, latex: bool, as_json: bool) -> None:
     click.echo(format_equations(net, latex=latex), nl=False)
 
 
-def _plot(result, name: str, path) -> None:
+def _plot(result, name: str, path, seconds=None) -> None:
     import matplotlib
 
     matplotlib.use("Agg")
@@ -145,7 +221,7 @@ def _plot(result, name: str, path) -> None:
     from ..io.atomic import save_figure
     from ..plots.ode import plot_mean_field
 
-    ax = plot_mean_field(result, title=f"Mean-field ODE of {name}")
+    ax = plot_mean_field(result, title=f"{name}\nmean-field ODE", seconds_per_time=seconds)
     try:
         save_figure(path, ax.figure)
     finally:
@@ -153,7 +229,7 @@ def _plot(result, name: str, path) -> None:
 
 
 def mean_field_json(model, result, fixed_points, *, consensus=None) -> dict:
-    """The ``crn ode --json`` object (DESIGN.md CLI contract) of a mean-field solve.
+    """The ``crn ode --json`` object (docs/design.md CLI contract) of a mean-field solve.
 
     Parameters
     ----------
@@ -204,7 +280,7 @@ def mean_field_json(model, result, fixed_points, *, consensus=None) -> dict:
     return obj
 
 
-def _text(loaded, result, points) -> str:
+def _text(loaded, result, points, requested: bool = False) -> str:
     net = loaded.network
     unit = (f"fractions of n = {result.molecules_per_unit:g} agents, parallel time"
             if result.units == "fraction"
@@ -218,16 +294,34 @@ def _text(loaded, result, points) -> str:
     if result.status < 0:
         lines.append(f"solver       failed: {result.message}")
     width = max(len(s) for s in net.species) if net.n_species else 0
-    t_end = result.times[-1] if result.times.size else 0.0
-    lines.append(f"at t = {t_end:.6g}:")
-    for s, v in result.final.items():
-        lines.append(f"  {s:<{width}}  {v:.6g}")
+    if requested:
+        lines.extend(_table(result, net.species))
+    else:
+        t_end = result.times[-1] if result.times.size else 0.0
+        lines.append(f"at t = {t_end:.6g}:")
+        for s, v in result.final.items():
+            lines.append(f"  {s:<{width}}  {v:.6g}")
     if points is not None:
         lines.append("fixed points on the conserved simplex:" if net.from_protocol
                      else "fixed points (with the initial state's conserved totals):")
         for p in points:
             tag = (f" (consensus {p.consensus})" if p.consensus else "") + (" (tie)" if p.tie
                                                                              else "")
+            if p.classification == "non-isolated":
+                lines.append(f"  {_format_continuum(p, net.species)}")
+                continue
             lines.append(f"  {_format_point(p, net.species)}: {p.classification}{tag}; "
                          f"eigenvalues {_format_eigenvalues(p.eigenvalues)}")
     return "\n".join(lines)
+
+
+def _table(result, species) -> list[str]:
+    """One row per requested time, one column per species."""
+    widths = [max(len(s), 11) for s in species]
+    lines = ["at the requested times:",
+             "  " + " ".join([f"{'t':>11}", *(f"{s:>{w}}" for s, w in zip(species, widths,
+                                                                           strict=True))])]
+    for t, row in zip(result.times, result.values, strict=True):
+        lines.append("  " + " ".join([f"{t:>11.6g}", *(f"{v:>{w}.6g}" for v, w in
+                                                        zip(row, widths, strict=True))]))
+    return lines

@@ -7,18 +7,16 @@ import json
 import os
 import signal
 from pathlib import Path
+from typing import TYPE_CHECKING
 
 import click
-import numpy as np
 
 from ..errors import CRNError
 from ..io.atomic import save_figure, write_atomic
 from ..io.regime_tables import table_csv
-from ..io.sweep_store import SweepStore
-from ..model import parse_overrides
-from ..probes import InitialSplit, ModelParameters
-from ..regimes import RegimeCell, RegimeMap, plan_cells, regime_map
 from .options import (
+    CLUSTER_ADDRESS,
+    FIGURE_FILE,
     OUTPUT_FILE,
     emit_json,
     guard,
@@ -27,10 +25,14 @@ from .options import (
     load,
     model_argument,
     progress_bar,
+    seed_notice,
     seed_option,
     set_option,
     to_jsonable,
 )
+
+if TYPE_CHECKING:
+    from ..regimes import RegimeMap
 
 __all__ = ["regimes", "parse_int_list", "parse_float_list", "cell_networks"]
 
@@ -63,6 +65,9 @@ def parse_float_list(text: str, what: str) -> list[float]:
 
 def cell_networks(model_path: str, sets):
     """The per-cell network builder: model parameters n and gap when the TOML model has both."""
+    from ..model import parse_overrides
+    from ..probes import InitialSplit, ModelParameters
+
     model = load(model_path, sets)
     path = Path(model_path)
     if path.suffix != ".py" and {"n", "gap"} <= set(model.parameters):
@@ -80,9 +85,11 @@ def result_json(model_name: str, result: RegimeMap) -> dict:
         "seed": result.seed_entropy,
         "cells": result.table(),
         "exponent": {k: v for k, v in result.boundary.to_dict().items()
-                     if k in ("estimate", "low", "high")},
+                     if k in ("estimate", "low", "high", "interval", "grid_low", "grid_high",
+                              "bracketed", "note")},
         "boundary": result.boundary.to_dict(),
         "skipped": [{"n": n, "gap": g} for n, g in result.skipped],
+        "merged": list(result.merged),
     }
 
 
@@ -99,7 +106,8 @@ def _fmt(value, spec=".3g"):
               help="Absolute gaps, comma-separated; cells whose gap differs from n in parity "
                    "are skipped.")
 @click.option("--gap-fraction", "fraction_list", default=None, metavar="LIST",
-              help="Gaps as fractions of n, rounded to the nearest gap of n's parity.")
+              help="Gaps as fractions of n, each in (0, 1), rounded to the nearest gap of n's "
+                   "parity.")
 @click.option("--risk", type=click.FloatRange(0, 1, min_open=True, max_open=True), default=0.01,
               show_default=True, help="Acceptable probability of disagreeing with the ODE.")
 @click.option("--until", type=click.FloatRange(min=0, min_open=True), default=None, metavar="T",
@@ -110,8 +118,8 @@ def _fmt(value, spec=".3g"):
               show_default=True, help="Flag times when SSA median and ODE differ by more.")
 @click.option("--method", type=click.Choice(["auto", "exact", "stochastic"]), default="auto",
               show_default=True, help="Exact analysis, stochastic runs, or exact when small.")
-@click.option("--plot", "plot_file", type=OUTPUT_FILE, default=None,
-              help="Write the heatmap figure (png, pdf, svg).")
+@click.option("--plot", "plot_file", type=FIGURE_FILE, default=None,
+              help="Write the heatmap figure (png, pdf, svg, ...).")
 @click.option("--csv", "csv_file", type=OUTPUT_FILE, default=None,
               help="Write the table as CSV.")
 @click.option("--out", "out_dir", type=click.Path(file_okay=False), default=None,
@@ -120,7 +128,7 @@ def _fmt(value, spec=".3g"):
 @click.option("--resume", is_flag=True, help="Continue the sweep whose results are in --out.")
 @click.option("--workers", type=click.IntRange(min=1), default=None,
               help="Processes computing cells in parallel (default 1).")
-@click.option("--cluster", default=None, metavar="ADDR",
+@click.option("--cluster", type=CLUSTER_ADDRESS, default=None, metavar="ADDRESS",
               help="Dask scheduler address for the stochastic runs.")
 @guard_options
 @seed_option
@@ -132,6 +140,11 @@ def regimes(model, sets, n_list, gap_list, fraction_list, risk, until, runs_max,
     probability that a stochastic run disagrees with it (95% interval, simultaneous over the
     sequential looks (Clopper-Pearson, Bonferroni)), the flag, the times;
     and the fitted growth of the critical gap with n."""
+    import numpy as np
+
+    from ..io.sweep_store import SweepStore
+    from ..regimes import RegimeCell, plan_cells, regime_map
+
     if (gap_list is None) == (fraction_list is None):
         raise CRNError("give exactly one of --gap and --gap-fraction")
     if workers and cluster:
@@ -177,7 +190,7 @@ def regimes(model, sets, n_list, gap_list, fraction_list, risk, until, runs_max,
         if kill_after is not None and len(store.finished) >= int(kill_after):
             os.kill(os.getpid(), signal.SIGKILL)
     if seed is None and not as_json:
-        click.echo(f"crn: seed {entropy}", err=True)
+        seed_notice(entropy)
 
     try:
         with progress_bar("cells", len(cells), enabled=not as_json) as update:
@@ -245,11 +258,11 @@ def _text(name, result: RegimeMap) -> str:
             f"{c.n:>10} {c.gap:>8} {c.ode_label or '-':>5} {_fmt(c.ode_time):>8} "
             f"{c.p_wrong:>12.4g} [{c.low:8.3g}, {c.high:8.3g}] {c.runs:>6} {c.flag:>10} "
             f"{_fmt(c.ssa_median_time):>8} {c.time_flag:>7} {c.method}")
+    for m in result.merged:
+        lines.append(f"merged: at n={m['n']} the gap fractions "
+                     + ", ".join(f"{f:g}" for f in m["gap_fractions"])
+                     + f" all round to gap {m['gap']} (one cell)")
     b = result.boundary
-    if b.exponent is None:
-        lines.append("boundary: too few n with a crossing inside the gap range to fit")
-    else:
-        lines.append(f"boundary: critical gap ~ n^{b.exponent:.3f} (95% interval "
-                     f"[{b.low:.3f}, {b.high:.3f}]) over "
-                     + ", ".join(f"n={n}: {g:.3g}" for n, g in b.critical_gaps))
+    where = ", ".join(f"n={n}: {g:.3g}" for n, g in b.critical_gaps)
+    lines.append(f"boundary: {b.describe(3)}" + (f"; critical gaps {where}" if where else ""))
     return "\n".join(lines)

@@ -4,8 +4,6 @@ from __future__ import annotations
 
 import click
 
-from ..interrupts import call_interruptibly
-from ..verify import verify as verify_model
 from .options import (
     emit_json,
     guard,
@@ -18,7 +16,10 @@ from .options import (
     stop_interrupted,
 )
 
-__all__ = ["verify"]
+__all__ = ["verify", "EXIT_COUNTEREXAMPLE"]
+
+#: Exit status of ``crn verify`` when the protocol is refuted.
+EXIT_COUNTEREXAMPLE = 1
 
 
 def _counts(counts: dict) -> str:
@@ -48,8 +49,13 @@ def verify(model, sets, max_n, max_states, max_memory, force, as_json):
     must be in consensus on the correct label; the first failure is shown as
     the shortest sequence of interactions leading into a wrong component.
     Non-input states keep the model's initial counts (usually zero).
+
+    Exit status: 0 when every case is correct, 1 on a counterexample (so scripts
+    can rely on it), 2 on bad input.
     """
     from ..guards import verify_estimate
+    from ..interrupts import call_interruptibly
+    from ..verify import verify as verify_model
 
     loaded = load(model, sets)
     if loaded.network.inputs is not None:
@@ -70,6 +76,7 @@ def verify(model, sets, max_n, max_states, max_memory, force, as_json):
         emit_json({"checked": result.checked, "correct": result.correct,
                    "counterexample": result.counterexample, "ties": result.ties,
                    "max_n": result.max_n})
+        _exit_status(result)
         return
     name = loaded.network.name
     lines = []
@@ -91,3 +98,9 @@ def verify(model, sets, max_n, max_states, max_memory, force, as_json):
         lines.append(f"{len(result.ties)} tie split(s) not judged (the model has no 'tie' "
                      f"label); their bottom components output: {', '.join(outputs)}")
     click.echo("\n".join(lines))
+    _exit_status(result)
+
+
+def _exit_status(result) -> None:
+    if not result.correct:
+        click.get_current_context().exit(EXIT_COUNTEREXAMPLE)

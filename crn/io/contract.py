@@ -1,10 +1,10 @@
-"""The JSON contract object of a network (DESIGN.md, ``crn translate --json``) and its reader.
+"""The JSON contract object of a network (docs/design.md, ``crn translate --json``) and its reader.
 
 The object holds at least ``species``, ``initial``, ``volume`` and
 ``reactions`` (each ``{reactants: {name: mult}, products: {name: mult},
 rate}``); it also carries ``name``, ``about``, ``output``, ``majority`` and
 ``from_protocol`` so that :func:`network_from_dict` rebuilds the identical
-network.
+network, and ``ignore`` (species the consensus rule ignores) when there are any.
 """
 
 from __future__ import annotations
@@ -39,9 +39,11 @@ def network_to_dict(net: Network) -> dict:
         (name -> count), ``volume``, ``reactions`` (list of
         ``{"reactants": {name: mult}, "products": {name: mult}, "rate": k}``),
         ``output`` (name -> label), ``majority`` (two names or None) and
-        ``from_protocol``. Only plain Python values: ``json.dumps`` takes it.
+        ``from_protocol``; ``ignore`` (list of the species the consensus rule
+        ignores) only when there are any. Only plain Python values: ``json.dumps``
+        takes it.
     """
-    return {
+    out = {
         "name": net.name,
         "about": net.about,
         "species": list(net.species),
@@ -56,6 +58,9 @@ def network_to_dict(net: Network) -> dict:
         "majority": None if net.majority is None else list(net.majority),
         "from_protocol": bool(net.from_protocol),
     }
+    if net.ignored:
+        out["ignore"] = list(net.ignored)
+    return out
 
 
 def network_to_json(net: Network, indent: int | None = 2) -> str:
@@ -152,6 +157,9 @@ def network_from_dict(data: Mapping, *, source: str = "<json>") -> Network:
     from_protocol = data.get("from_protocol", False)
     if not isinstance(from_protocol, bool):
         raise _fail("from_protocol must be true or false", "from_protocol", source)
+    ignore = data.get("ignore", [])
+    if not isinstance(ignore, list) or not all(isinstance(s, str) for s in ignore):
+        raise _fail("ignore must be a list of species names", "ignore", source)
     name = data.get("name", "network")
     about = data.get("about", "")
     if not isinstance(name, str) or not isinstance(about, str):
@@ -160,7 +168,7 @@ def network_from_dict(data: Mapping, *, source: str = "<json>") -> Network:
         return Network.from_reactions(
             name, species, reactions, volume=volume, initial=dict(initial), output=dict(output),
             majority=None if majority is None else tuple(majority), from_protocol=from_protocol,
-            about=about)
+            about=about, ignore=ignore)
     except ModelError as err:
         raise err.located(file=source) from err
 

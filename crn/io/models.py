@@ -30,7 +30,7 @@ def load_model(path, overrides=None) -> Model:
     Parameters
     ----------
     path : str or Path
-        A ``.toml`` model (DESIGN.md format, never runs code), a network
+        A ``.toml`` model (docs/design.md format, never runs code), a network
         exported as ``.json`` (the contract object) or SBML (``.xml``,
         ``.sbml``), or a ``.py`` model. A Python model file is ordinary
         trusted Python: it is run, so load only files you trust. It defines

@@ -4,16 +4,22 @@ Export writes one compartment whose size is the network's volume, species
 with initial amounts (``hasOnlySubstanceUnits="true"``, so a species symbol in
 a law is a molecule count), one global constant parameter per rate constant,
 and kinetic laws equal to this project's stochastic propensity
-``k * prod_s x_s (x_s - 1) ... (x_s - r_s + 1) / V^(order - 1)``. Output
+``k * prod_s x_s (x_s - 1) ... (x_s - r_s + 1) / V^(order - 1)`` (the whole
+numbers in it are constant parameters of j items and the power is repeated
+division, so no number in a law carries a unit annotation). Output
 labels, the majority question, the protocol flag and the exact values of
 numbers (libsbml writes 15 significant digits) travel in annotations, so an
 export read back gives the identical network.
 
-Import accepts mass-action models: every kinetic law must equal
-``k * prod_s x_s (x_s - 1) ... / V^(order - 1)`` (the form written here) or
-the plain ``k * prod_s x_s^r_s / V^(order - 1)``, both read as rate constant
-k, with species in amounts or concentrations. Any other law is refused with
-the reaction's id.
+Import accepts mass-action networks as modelling tools write them (SBML
+Level 2 Version 1 to Level 3 Version 2): compartments without a size when every
+law is in amounts, several compartments of one size, boundary and constant
+species held fixed, global and local parameters, initial assignments that are
+numbers, stoichiometry attributes of every level. Every kinetic law must equal,
+after symbolic simplification, ``c * prod_s x_s (x_s - 1) ...`` (the form
+written here) or ``c * prod_s x_s^r_s`` over amounts, read as rate constant
+``c * V^(order - 1)``. Anything else (rules, events, other laws) is refused in
+one line naming the element.
 """
 
 from __future__ import annotations
@@ -21,7 +27,6 @@ from __future__ import annotations
 import math
 import re
 import xml.etree.ElementTree as ET
-from xml.sax.saxutils import quoteattr
 
 from ..errors import ModelError
 from ..network import Network, Reaction
@@ -60,6 +65,8 @@ def _model_id(name: str) -> str:
 
 
 def _annotation(tag: str, attributes: dict[str, str], text: str | None = None) -> str:
+    from xml.sax.saxutils import quoteattr  # imports urllib: only when writing SBML
+
     attrs = "".join(f" {k}={quoteattr(v)}" for k, v in attributes.items())
     body = "" if text is None else f"<{_PREFIX}:about>{_escape(text)}</{_PREFIX}:about>"
     return (f"<annotation><{_PREFIX}:{tag} xmlns:{_PREFIX}=\"{NAMESPACE}\"{attrs}>{body}"
@@ -70,20 +77,23 @@ def _escape(text: str) -> str:
     return text.replace("&", "&amp;").replace("<", "&lt;").replace(">", "&gt;")
 
 
-def _law(rate_id: str, reactants: dict[str, int], compartment: str) -> str:
+def _law(rate_id: str, reactants: dict[str, int], compartment: str,
+         counts: dict[int, str]) -> str:
+    """The propensity as an infix formula; ``counts[j]`` names a constant of j items.
+
+    Whole numbers in the law are such named constants and the volume power is
+    written as repeated division, so no number in the law carries a unit
+    annotation (``1 item``), which readers that rewrite laws as text do not parse.
+    """
     factors = [rate_id]
     for s, m in reactants.items():
         factors.append(s)
-        factors.extend(f"({s} - {j} item)" for j in range(1, m))
+        factors.extend(f"({s} - {counts[j]})" for j in range(1, m))
     order = sum(reactants.values())
     formula = " * ".join(factors)
     if order == 0:
         return f"{formula} * {compartment}"
-    if order == 2:
-        return f"{formula} / {compartment}"
-    if order > 2:
-        return f"{formula} / {compartment}^({order - 1} dimensionless)"
-    return formula
+    return formula + f" / {compartment}" * (order - 1)
 
 
 def _rate_unit(model, order: int, known: dict[int, str], taken: set[str]) -> str:
@@ -103,19 +113,35 @@ def _rate_unit(model, order: int, known: dict[int, str], taken: set[str]) -> str
     return known[order]
 
 
-def _law_ast(rate_id: str, reactants: dict[str, int], compartment: str, prefix: str):
+def _law_ast(rate_id: str, reactants: dict[str, int], compartment: str, prefix: str,
+             counts: dict[int, str]):
     """The kinetic law as a libsbml AST. The formula is parsed with placeholder names that
     are then renamed, so that ids the formula parser reads as constants (``pi``, ``time``,
     ``avogadro``, ``true``, ...) stay plain names."""
     names = {rate_id: f"{prefix}k", compartment: f"{prefix}v"}
     names.update({s: f"{prefix}{j}" for j, s in enumerate(reactants)})
+    names.update({name: f"{prefix}c{j}" for j, name in counts.items()})
     formula = _law(names[rate_id], {names[s]: m for s, m in reactants.items()},
-                   names[compartment])
+                   names[compartment], {j: names[name] for j, name in counts.items()})
     math_ast = _libsbml().parseL3Formula(formula)
     if math_ast is not None:
         for real, placeholder in names.items():
             math_ast.renameSIdRefs(placeholder, real)
     return math_ast
+
+
+def _count_constants(model, reactions, taken: set[str]) -> dict[int, str]:
+    """Global constants 1, 2, ... items (as many as the largest multiplicity needs)."""
+    top = max((m for r in reactions for m in r.reactants.values()), default=1)
+    counts = {}
+    for j in range(1, top):
+        param = model.createParameter()
+        counts[j] = _unique(f"items_{j}", taken)
+        _check(param.setId(counts[j]), f"parameter {counts[j]}")
+        param.setValue(float(j))
+        param.setConstant(True)
+        _check(param.setUnits("item"), f"the units of {counts[j]}")
+    return counts
 
 
 def network_to_sbml(net: Network) -> str:
@@ -187,7 +213,9 @@ def network_to_sbml(net: Network) -> str:
     prefix = "q_"
     while any(name.startswith(prefix) for name in taken):
         prefix = "q" + prefix
-    for i, reaction in enumerate(net.reactions(), start=1):
+    reactions = list(net.reactions())
+    counts = _count_constants(model, reactions, taken)
+    for i, reaction in enumerate(reactions, start=1):
         rate_id = _unique(f"k{i}", taken)
         param = model.createParameter()
         _check(param.setId(rate_id), f"parameter {rate_id}")
@@ -208,7 +236,7 @@ def network_to_sbml(net: Network) -> str:
                 ref.setStoichiometry(float(m))
                 ref.setConstant(True)
         law = rx.createKineticLaw()
-        math_ast = _law_ast(rate_id, dict(reaction.reactants), compartment_id, prefix)
+        math_ast = _law_ast(rate_id, dict(reaction.reactants), compartment_id, prefix, counts)
         if math_ast is None:
             raise ModelError(f"cannot write the kinetic law of reaction {i}")
         _check(law.setMath(math_ast), f"the kinetic law of reaction {i}")
@@ -279,6 +307,17 @@ class _NotMassAction(Exception):
     pass
 
 
+class _NeedsSize(Exception):
+    """A law or value needs the size of a compartment that has none (message names it)."""
+
+
+class _Missing:
+    """Stands for a compartment size that is not given; using it in a law is an error."""
+
+    def __init__(self, message: str):
+        self.message = message
+
+
 def _to_sympy(node, symbols):
     """Convert a libsbml AST into a sympy expression over the given symbols (numbers exact)."""
     import sympy
@@ -295,11 +334,16 @@ def _to_sympy(node, symbols):
         return _q(value)
     if kind == libsbml.AST_RATIONAL:
         return sympy.Rational(node.getNumerator(), node.getDenominator())
+    if kind == libsbml.AST_NAME_TIME:
+        raise _NotMassAction("the time symbol (a time-dependent law)")
     if kind == libsbml.AST_NAME:
         name = node.getName()
         if name not in symbols:
             raise _NotMassAction(f"the symbol {name!r}")
-        return symbols[name]
+        value = symbols[name]
+        if isinstance(value, _Missing):
+            raise _NeedsSize(value.message)
+        return value
     args = [_to_sympy(child, symbols) for child in children]
     binary = (libsbml.AST_DIVIDE, libsbml.AST_POWER, libsbml.AST_FUNCTION_POWER)
     if (kind in binary and len(args) != 2) or (kind == libsbml.AST_MINUS
@@ -343,24 +387,164 @@ def _falling(x, m):
     return out
 
 
-def _rate_constant(law, reactants, symbols, volume):
-    """Rate constant k of a mass-action law in amounts, or raise _NotMassAction."""
+def _rate_constant(expr, reactants, volume):
+    """Rate constant k of a mass-action law (a sympy expression over amounts), or raise.
+
+    The law must equal ``c * prod_s x_s (x_s - 1) ... (x_s - r_s + 1)`` (the propensity
+    convention of docs/design.md: ``2 A`` counts a (a - 1), no 1/2) or ``c * prod_s x_s^r_s`` (the
+    deterministic form, read with the same constant) for a number c >= 0, in any
+    algebraically equivalent form; then ``k = c * volume^(order - 1)``.
+    """
     import sympy
 
-    expr = _to_sympy(law, symbols)
     order = sum(reactants.values())
     scale = _q(volume) ** (order - 1)
+    extra = set()
     for form in (_falling, lambda x, m: x**m):
         product = sympy.Integer(1)
         for s, m in reactants.items():
             product *= form(sympy.Symbol(s), m)
-        ratio = sympy.cancel(expr / product)
+        ratio = sympy.cancel(sympy.together(expr / product))
         if not ratio.free_symbols:
             k = ratio * scale
             if not k.is_real or k < 0:
                 raise _NotMassAction(f"a negative rate constant {float(k):g}")
             return float(k)
+        extra |= {str(x) for x in ratio.free_symbols if str(x) not in reactants}
+    if extra:
+        raise _NotMassAction(f"it depends on {', '.join(sorted(extra))}, which is not a "
+                             "reactant nor held fixed")
     raise _NotMassAction("a law that is not k * prod falling factorials / V^(order - 1)")
+
+
+def _refuse_beyond_mass_action(model, refuse) -> None:
+    """One line naming the first rule, event, constraint, function or assignment."""
+    libsbml = _libsbml()
+    for k in range(model.getNumRules()):
+        rule = model.getRule(k)
+        kind = {libsbml.SBML_ASSIGNMENT_RULE: "assignment rule",
+                libsbml.SBML_RATE_RULE: "rate rule",
+                libsbml.SBML_ALGEBRAIC_RULE: "algebraic rule"}.get(rule.getTypeCode(), "rule")
+        what = rule.getVariable() if rule.isSetVariable() else f"number {k + 1}"
+        raise refuse(f"{kind} for {what}: rules are not mass action; only plain mass-action "
+                     "networks are imported", what)
+    for k in range(model.getNumEvents()):
+        event = model.getEvent(k)
+        what = event.getId() or f"number {k + 1}"
+        raise refuse(f"event {what}: events are not mass action; only plain mass-action "
+                     "networks are imported", what)
+    for what, count, name in (
+            ("constraint", model.getNumConstraints(), lambda k: f"number {k + 1}"),
+            ("function definition", model.getNumFunctionDefinitions(),
+             lambda k: model.getFunctionDefinition(k).getId())):
+        if count:
+            raise refuse(f"{what} {name(0)}: the model has {count} of them; only plain "
+                         "mass-action networks with numbers are imported", name(0))
+    if model.isSetConversionFactor():
+        raise refuse(f"conversion factor {model.getConversionFactor()} of the model: not "
+                     "supported", model.getConversionFactor())
+
+
+def _initial_values(model, symbols, refuse) -> dict:
+    """Parameter values and initial assignments, as exact numbers (symbol -> sympy number).
+
+    Initial assignments may use numbers, parameters, compartment sizes and one
+    another (in any order); one whose value needs a species, the time or an
+    unknown symbol, or that assigns a compartment, is refused by name.
+    """
+    known = dict(symbols)
+    for k in range(model.getNumParameters()):
+        p = model.getParameter(k)
+        if p.isSetValue():
+            known[p.getId()] = _q(p.getValue())
+    pending = {}
+    for k in range(model.getNumInitialAssignments()):
+        assignment = model.getInitialAssignment(k)
+        symbol = assignment.getSymbol()
+        if model.getCompartment(symbol) is not None:
+            raise refuse(f"initial assignment to compartment {symbol}: compartment sizes must "
+                         "be numbers", symbol)
+        if assignment.getMath() is None:
+            raise refuse(f"initial assignment to {symbol} has no math", symbol)
+        pending[symbol] = assignment.getMath()
+    species = {model.getSpecies(k).getId() for k in range(model.getNumSpecies())}
+    while pending:
+        done = {}
+        for symbol, node in pending.items():
+            try:
+                value = _to_sympy(node, {s: v for s, v in known.items() if s not in pending})
+            except (_NotMassAction, _NeedsSize):
+                continue
+            if value.free_symbols or not value.is_real:
+                continue
+            done[symbol] = value
+        if not done:
+            symbol = next(iter(pending))
+            formula = _libsbml().formulaToL3String(pending[symbol])
+            raise refuse(f"initial assignment to {symbol}: {formula!r} is not a number built "
+                         "from numbers, parameters and compartment sizes", symbol)
+        known.update(done)
+        for symbol in done:
+            del pending[symbol]
+    out = {}
+    for k in range(model.getNumParameters()):
+        pid = model.getParameter(k).getId()
+        if pid not in known:
+            raise refuse(f"parameter {pid} has no value", pid)
+        out[pid] = known[pid]
+    out.update({s: v for s, v in known.items() if s in species})
+    return out
+
+
+def _compartments(model, refuse, annotated_volume):
+    """Compartment id -> size (None when not given) and the network volume.
+
+    Every compartment with a size must have the same size (that is the volume);
+    with none, the volume is 1 and laws in amounts are read as propensities.
+    """
+    sizes: dict[str, float | None] = {}
+    for k in range(model.getNumCompartments()):
+        comp = model.getCompartment(k)
+        cid = comp.getId()
+        if comp.isSetConstant() and not comp.getConstant():
+            raise refuse(f"compartment {cid} is not constant; only fixed volumes are "
+                         "supported", cid)
+        if comp.isSetSize():
+            size = comp.getSize()
+            if not math.isfinite(size) or size <= 0:
+                raise refuse(f"compartment {cid} has size {size!r}; it must be positive", cid)
+            sizes[cid] = size
+        else:
+            sizes[cid] = None
+    given = {cid: size for cid, size in sizes.items() if size is not None}
+    if len(set(given.values())) > 1:
+        (a, va), (b, vb) = sorted({v: (c, v) for c, v in given.items()}.values())[:2]
+        raise refuse(f"compartments {a} (size {va:g}) and {b} (size {vb:g}) differ in size; "
+                     "only compartments of one size are supported", b)
+    volume = next(iter(given.values()), 1.0)
+    return sizes, _exact(volume, annotated_volume) if given else volume
+
+
+def _stoichiometry(ref, level: int, rid: str, refuse) -> float:
+    """A species reference's stoichiometry: the attribute (default 1 before Level 3), or a
+    constant stoichiometryMath (Level 2)."""
+    import sympy
+
+    sid = ref.getSpecies()
+    if level == 2 and ref.isSetStoichiometryMath():
+        node = ref.getStoichiometryMath().getMath()
+        try:
+            value = _to_sympy(node, {}) if node is not None else None
+        except (_NotMassAction, _NeedsSize):
+            value = None
+        if value is None or not isinstance(value, sympy.Number):
+            raise refuse(f"reaction {rid}: stoichiometryMath of {sid} is not a number", rid)
+        return float(value)
+    if ref.isSetStoichiometry():
+        return ref.getStoichiometry()
+    if level < 3:
+        return 1.0
+    raise refuse(f"reaction {rid}: the stoichiometry of {sid} is not given", rid)
 
 
 def network_from_sbml(text: str, *, source: str = "<sbml>") -> Network:
@@ -369,24 +553,49 @@ def network_from_sbml(text: str, *, source: str = "<sbml>") -> Network:
     Parameters
     ----------
     text : str
-        The XML document (any SBML level and version libsbml reads).
+        The XML document (SBML Level 2 Version 1 to Level 3 Version 2).
     source : str
         Name used in error messages.
 
     Returns
     -------
     Network
-        With the single compartment's size as volume. Annotations written by
-        :func:`network_to_sbml` restore labels, the question, the protocol
-        flag and exact numbers.
+        With the common size of the compartments as volume (1 when no
+        compartment has a size and every law is in amounts). Boundary and
+        constant species stay in the network at their initial count: as a
+        reactant they are given back as a product, as a product they are left
+        out, and in a law they are read as their fixed value. Annotations
+        written by :func:`network_to_sbml` restore labels, the question, the
+        protocol flag and exact numbers.
 
     Raises
     ------
     ModelError
-        When the document has errors, more than one compartment, rules,
-        events, function definitions, boundary species, non-integer
-        amounts or stoichiometries, or a kinetic law that is not mass action
-        (the message names the reaction id).
+        One line naming the element: a document with errors, rules, events,
+        constraints or function definitions; an initial assignment that is not
+        a number built from parameters and compartment sizes; compartments
+        of different sizes, or a missing size that a concentration or a law
+        needs; a parameter without a value; non-integer amounts or
+        stoichiometries; a kinetic law that is not mass action (the message
+        names the reaction id).
+
+    Notes
+    -----
+    A kinetic law is recognised when it equals, after symbolic simplification
+    (sympy), ``c * prod_s x_s (x_s - 1) ... (x_s - r_s + 1)`` or
+    ``c * prod_s x_s^r_s`` over the reactants' amounts x_s (a species whose
+    ``hasOnlySubstanceUnits`` is false stands for ``x_s / size``), so
+    ``k * X * (X - 1) / 2``, ``k * X / 2 / 0.5`` and ``cell * k * X`` are all
+    read. The rate constant is ``c * volume^(order - 1)`` under this project's
+    propensity convention (docs/design.md): ``k * X * (X - 1) / 2`` for ``2 X`` gives
+    ``k / 2``.
+
+    References
+    ----------
+    Hucka et al., SBML Level 3 Version 2 Core, 2019: section 4.5 (compartments),
+    4.6 (species: hasOnlySubstanceUnits, boundaryCondition, constant), 4.7
+    (parameters), 4.11 (reactions, species references, kinetic laws and local
+    parameters).
     """
     libsbml = _libsbml()
     doc = libsbml.readSBMLFromString(text)
@@ -400,57 +609,67 @@ def network_from_sbml(text: str, *, source: str = "<sbml>") -> Network:
     model = doc.getModel()
     if model is None:
         raise ModelError("the SBML document has no model", file=source)
+    level = doc.getLevel()
 
     def refuse(message, field=None):
         return ModelError(message, file=source, field=field)
 
-    for what, count in (("rules", model.getNumRules()), ("events", model.getNumEvents()),
-                        ("initial assignments", model.getNumInitialAssignments()),
-                        ("function definitions", model.getNumFunctionDefinitions()),
-                        ("constraints", model.getNumConstraints())):
-        if count:
-            raise refuse(f"the model has {what}; only plain mass-action networks are imported")
-    if model.getNumCompartments() != 1:
-        raise refuse(f"the model has {model.getNumCompartments()} compartments; exactly one "
-                     "is supported", "compartments")
-    comp = model.getCompartment(0)
-    if not comp.isSetSize() or not math.isfinite(comp.getSize()) or comp.getSize() <= 0:
-        raise refuse(f"compartment {comp.getId()} needs a positive size", comp.getId())
+    _refuse_beyond_mass_action(model, refuse)
     model_attrs, about = _crn_attributes(model)
-    volume = _exact(comp.getSize(), model_attrs.get("volume"))
+    sizes, volume = _compartments(model, refuse, model_attrs.get("volume"))
 
     import sympy
 
-    symbols: dict[str, object] = {comp.getId(): _q(volume)}
-    species, initial, output = [], {}, {}
+    symbols: dict[str, object] = {
+        cid: _q(size) if size is not None
+        else _Missing(f"compartment {cid} has no size, and a kinetic law uses it")
+        for cid, size in sizes.items()}
+    values = _initial_values(model, {c: v for c, v in symbols.items()
+                                     if not isinstance(v, _Missing)}, refuse)
+    species, initial, output, fixed = [], {}, {}, {}
     for k in range(model.getNumSpecies()):
         sp = model.getSpecies(k)
-        sid = sp.getId()
-        if sp.getBoundaryCondition():
-            raise refuse(f"species {sid} is a boundary species; not supported", sid)
+        sid, cid = sp.getId(), sp.getCompartment()
         attrs, _ = _crn_attributes(sp)
-        if sp.isSetInitialAmount():
+        if sid in values:  # an initial assignment, in the species' own units
+            amount = float(values[sid])
+            if not sp.getHasOnlySubstanceUnits():
+                if sizes.get(cid) is None:
+                    raise refuse(f"compartment {cid} has no size, and the initial assignment "
+                                 f"to species {sid} (a concentration) needs it", cid)
+                amount *= sizes[cid]
+        elif sp.isSetInitialAmount():
             amount = sp.getInitialAmount()
         elif sp.isSetInitialConcentration():
-            amount = sp.getInitialConcentration() * volume
+            if sizes.get(cid) is None:
+                raise refuse(f"compartment {cid} has no size, and the initial concentration "
+                             f"of species {sid} needs it", cid)
+            amount = sp.getInitialConcentration() * sizes[cid]
         else:
             amount = 0.0
         amount = _exact(amount, attrs.get("initial"))
-        if not math.isfinite(amount) or amount < 0 or abs(amount - round(amount)) > 1e-9 * max(
+        rounded = round(amount) if math.isfinite(amount) else -1
+        if not math.isfinite(amount) or amount < 0 or abs(amount - rounded) > 1e-9 * max(
                 1.0, abs(amount)):
             raise refuse(f"initial amount of {sid} is {amount!r}, not a whole number >= 0", sid)
-        rounded = round(amount)
         species.append(sid)
         initial[sid] = int(rounded)
         if "label" in attrs:
             output[sid] = attrs["label"]
         x = sympy.Symbol(sid)
-        symbols[sid] = x if sp.getHasOnlySubstanceUnits() else x / symbols[comp.getId()]
+        if sp.getHasOnlySubstanceUnits():
+            symbols[sid] = x
+        elif sizes.get(cid) is None:
+            symbols[sid] = _Missing(f"compartment {cid} has no size, and species {sid} is a "
+                                    "concentration (hasOnlySubstanceUnits false) in a kinetic "
+                                    "law")
+        else:
+            symbols[sid] = x / _q(sizes[cid])
+        if sp.getBoundaryCondition() or sp.getConstant():
+            fixed[sid] = int(rounded)
     for k in range(model.getNumParameters()):
-        p = model.getParameter(k)
-        if not p.getConstant() or not p.isSetValue():
-            raise refuse(f"parameter {p.getId()} must be constant with a value", p.getId())
-        symbols[p.getId()] = _q(p.getValue())
+        pid = model.getParameter(k).getId()
+        symbols[pid] = values[pid]
 
     reactions = []
     for k in range(model.getNumReactions()):
@@ -462,8 +681,8 @@ def network_from_sbml(text: str, *, source: str = "<sbml>") -> Network:
             side: dict[str, int] = {}
             for j in range(count):
                 ref = get(j)
-                m = ref.getStoichiometry() if ref.isSetStoichiometry() else 1.0
-                if not float(m).is_integer() or m < 0:
+                m = _stoichiometry(ref, level, rid, refuse)
+                if not math.isfinite(m) or not float(m).is_integer() or m < 0:
                     raise refuse(f"reaction {rid}: stoichiometry {m} of {ref.getSpecies()} is "
                                  "not a whole number", rid)
                 if m > _MAX_STOICHIOMETRY:
@@ -472,27 +691,42 @@ def network_from_sbml(text: str, *, source: str = "<sbml>") -> Network:
                 if m:
                     side[ref.getSpecies()] = side.get(ref.getSpecies(), 0) + int(m)
             sides.append(side)
+        reactants, products = sides
         law = rx.getKineticLaw()
         if law is None or law.getMath() is None:
             raise refuse(f"reaction {rid} has no kinetic law", rid)
         local = dict(symbols)
-        for j in range(law.getNumLocalParameters()):
-            p = law.getLocalParameter(j)
+        for name, value in fixed.items():  # held species outside the reactants: numbers
+            if name not in reactants and not isinstance(symbols[name], _Missing):
+                local[name] = symbols[name].subs(sympy.Symbol(name), _q(value))
+        n_local = law.getNumLocalParameters() if level >= 3 else law.getNumParameters()
+        for j in range(n_local):
+            p = law.getLocalParameter(j) if level >= 3 else law.getParameter(j)
+            if not p.isSetValue():
+                raise refuse(f"reaction {rid}: local parameter {p.getId()} has no value", rid)
             local[p.getId()] = _q(p.getValue())
         try:
-            rate = _rate_constant(law.getMath(), sides[0], local, volume)
+            rate = _rate_constant(_to_sympy(law.getMath(), local), reactants, volume)
+        except _NeedsSize as err:
+            raise refuse(f"reaction {rid}: {err}", rid) from None
         except (TypeError, ValueError, ZeroDivisionError, OverflowError) as err:
             # a law sympy cannot reduce to a real constant (k / 0, ...): not mass action
-            err = _NotMassAction(f"no real rate constant: {type(err).__name__}")
             formula = libsbml.formulaToL3String(law.getMath())
             raise refuse(f"reaction {rid}: kinetic law {formula!r} is not mass action "
-                         f"({err}); only mass-action laws are imported", rid) from None
+                         f"(no real rate constant: {type(err).__name__}); only mass-action "
+                         "laws are imported", rid) from None
         except _NotMassAction as err:
             formula = libsbml.formulaToL3String(law.getMath())
+            hint = ("; write a reversible reaction as two irreversible ones"
+                    if rx.getReversible() else "")
             raise refuse(f"reaction {rid}: kinetic law {formula!r} is not mass action "
-                         f"({err}); only mass-action laws are imported", rid) from None
+                         f"({err}); only mass-action laws are imported{hint}", rid) from None
         rate = _exact(rate, _crn_attributes(rx)[0].get("rate"))
-        reactions.append(Reaction(sides[0], sides[1], rate))
+        products = {s: m for s, m in products.items() if s not in fixed}
+        for s, m in reactants.items():
+            if s in fixed:  # held fixed: what the reaction uses is given back
+                products[s] = products.get(s, 0) + m
+        reactions.append(Reaction(reactants, products, rate))
     majority = model_attrs.get("majority")
     try:
         return Network.from_reactions(

@@ -1,4 +1,4 @@
-"""Figure of the mean field against the stochastic ensemble: ODE curve over median and band."""
+"""Figure of the mean field against the stochastic ensemble: ODE curve over the mean and a band."""
 
 from __future__ import annotations
 
@@ -24,8 +24,9 @@ def ensemble_fractions(ensemble) -> np.ndarray:
     return np.divide(counts, total, out=np.zeros_like(counts), where=total > 0)
 
 
-def plot_compare(ode, ensemble, *, ax=None, title: str | None = None, disagreement=None):
-    """Plot the ODE's share of each species over the ensemble's median and 5-95% band.
+def plot_compare(ode, ensemble, *, ax=None, title: str | None = None, disagreement=None,
+                 seconds_per_time: float | None = None):
+    """Plot the ODE's share of each species over the ensemble's mean and 5-95% band.
 
     Parameters
     ----------
@@ -37,6 +38,8 @@ def plot_compare(ode, ensemble, *, ax=None, title: str | None = None, disagreeme
     title : str, optional
     disagreement : (p, low, high), optional
         Probability that a run's label differs from the ODE's, shown in the legend.
+    seconds_per_time : float, optional
+        Seconds in one unit of time; adds a second time axis in minutes.
 
     Returns
     -------
@@ -44,10 +47,13 @@ def plot_compare(ode, ensemble, *, ax=None, title: str | None = None, disagreeme
     """
     import matplotlib.pyplot as plt
 
+    from .time_axis import label_time_axis
+
     if ax is None:
         _, ax = plt.subplots(figsize=(9, 5), layout="constrained")
     shares = ensemble_fractions(ensemble)
-    q05, median, q95 = np.quantile(shares, [0.05, 0.5, 0.95], axis=0)
+    q05, q95 = np.quantile(shares, [0.05, 0.95], axis=0)
+    mean = shares.mean(axis=0)
     from matplotlib.lines import Line2D
     from matplotlib.patches import Patch
 
@@ -57,11 +63,11 @@ def plot_compare(ode, ensemble, *, ax=None, title: str | None = None, disagreeme
     for i, name in enumerate(ensemble.species):
         color = colors[i % len(colors)]
         ax.fill_between(ensemble.times, q05[:, i], q95[:, i], color=color, alpha=0.18, lw=0)
-        ax.plot(ensemble.times, median[:, i], color=color, ls="--", lw=1.3)
+        ax.plot(ensemble.times, mean[:, i], color=color, ls="--", lw=1.3)
         ax.plot(ode.times, ode_shares[name], color=color, lw=2.2)
         handles.append(Line2D([], [], color=color, lw=2.2, label=name))
     handles += [Line2D([], [], color="0.2", lw=2.2, label="ODE"),
-                Line2D([], [], color="0.2", lw=1.3, ls="--", label="stochastic median"),
+                Line2D([], [], color="0.2", lw=1.3, ls="--", label="stochastic mean"),
                 Patch(color="0.2", alpha=0.18, label="stochastic 5-95%")]
     if ode.consensus.label is not None and ode.consensus.time is not None:
         ax.axvline(ode.consensus.time, color="0.3", ls=":", lw=1)
@@ -73,8 +79,7 @@ def plot_compare(ode, ensemble, *, ax=None, title: str | None = None, disagreeme
         handles.append(Line2D([], [], ls="", label=f"P(run's label differs from ODE)\n"
                                                    f"= {p:.3f}, 95% [{low:.3f}, {high:.3f}]"))
     protocol = ode.units == "fraction"
-    ax.set_xlabel("parallel time (interactions per agent)" if protocol
-                  else "time (network time units)")
+    label_time_axis(ax, protocol, seconds_per_time)
     ax.set_ylabel("fraction of the population" if protocol else "fraction of all molecules")
     ax.set_xlim(0, float(ensemble.times[-1]) if ensemble.times.size else 1.0)
     ax.set_ylim(-0.02, 1.02)
