@@ -42,7 +42,7 @@ def exact(model, sets, until, max_states, max_memory, force, as_json):
     from ..interrupts import call_interruptibly
 
     net = load(model, sets).network
-    guard(exact_estimate(net), max_memory, force)
+    guard(exact_estimate(net), max_memory, force, announce=not as_json)
     seen = [0]
     try:
         with progress_bar("configurations", None, enabled=not as_json) as bar:

@@ -665,7 +665,8 @@ def guard_options(func):
                              "half the machine's RAM).")(func)
 
 
-def guard(estimate, max_memory, force, *, announce_from: float = 10.0) -> None:
+def guard(estimate, max_memory, force, *, announce: bool = True,
+          announce_from: float = 10.0) -> None:
     """Refuse ``estimate`` beyond the limits (exit 2); print it when it is long.
 
     Parameters
@@ -675,11 +676,13 @@ def guard(estimate, max_memory, force, *, announce_from: float = 10.0) -> None:
         ``--max-memory`` in bytes (None: half the RAM).
     force : bool
         ``--force``: never refuse.
+    announce : bool, default True
+        Whether to print a long estimate (not with ``--json``).
     announce_from : float, default 10
         Print the estimate on standard error from this many seconds.
     """
     from ..guards import enforce
 
     enforce(estimate, max_memory=max_memory, force=force)
-    if estimate.seconds >= announce_from:
+    if announce and estimate.seconds >= announce_from:
         click.echo(f"crn: estimated work for {estimate.what}: {estimate.describe()}", err=True)

@@ -164,7 +164,7 @@ def regimes(model, sets, n_list, gap_list, fraction_list, risk, until, runs_max,
 
     guard(regime_map_estimate(networks, cells, runs_max=runs_max, until=until, method=method,
                               exact_max=DEFAULT_EXACT_MAX, workers=workers or 1),
-          max_memory, force)
+          max_memory, force, announce=not as_json)
 
     entropy = np.random.SeedSequence(seed).entropy
     done, store, new_cells = {}, None, []

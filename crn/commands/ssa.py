@@ -90,7 +90,7 @@ def run_ensemble(net, *, runs, until, engine, seed, workers, cluster, as_json, t
 
         estimate = replace(estimate, memory=float(reduction_memory(
             len(times), net.n_species, runs)))
-    guard(estimate, max_memory, force)
+    guard(estimate, max_memory, force, announce=not as_json)
 
     root = np.random.SeedSequence(seed)
     if seed is None:

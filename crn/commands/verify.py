@@ -59,7 +59,7 @@ def verify(model, sets, max_n, max_states, max_memory, force, as_json):
 
     loaded = load(model, sets)
     if loaded.network.inputs is not None:
-        guard(verify_estimate(loaded.network, max_n), max_memory, force)
+        guard(verify_estimate(loaded.network, max_n), max_memory, force, announce=not as_json)
     checked = [0]
     try:
         with progress_bar("population sizes", max_n - 1, enabled=not as_json) as bar:

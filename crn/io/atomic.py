@@ -10,7 +10,7 @@ and no temporary file is left in the target folder:
   then given a temporary name and renamed over the target with SIGINT and
   SIGTERM held back, so an interruption lands before or after, never between.
 * Where the file system has no anonymous files, a named temporary file
-  (``.<name>.crn-tmp-<pid>-<random>``) is used and removed on every exit path
+  (``.<name>.crn-tmp-<pid>-<random><suffix>``) is used and removed on every exit path
   the process survives; one left by a killed process is removed by the next
   write to the same folder.
 * New files get mode ``0666 & ~umask`` (0644 under the usual umask 022), as
@@ -32,7 +32,7 @@ __all__ = ["atomic_open", "atomic_path", "write_atomic", "save_figure", "file_mo
            "TEMP_MARK", "PAUSE_HOOK"]
 
 TEMP_MARK = ".crn-tmp-"
-"""Part of every named temporary file's name (``.<target>.crn-tmp-<pid>-<random>``)."""
+"""Part of every named temporary file's name (``.<target>.crn-tmp-<pid>-<random><suffix>``)."""
 
 PAUSE_HOOK = "CRN_TEST_PAUSE_BEFORE_RENAME"
 """Test hook: seconds to sleep after the content is written and before it is renamed into
@@ -89,7 +89,9 @@ def _pause_for_tests() -> None:
 
 
 def _temp_name(path: Path) -> Path:
-    return _folder(path) / f".{path.name}{TEMP_MARK}{os.getpid()}-{secrets.token_hex(4)}"
+    # the target's suffix last, so writers that pick a format by suffix still can
+    return (_folder(path)
+            / f".{path.name}{TEMP_MARK}{os.getpid()}-{secrets.token_hex(4)}{path.suffix}")
 
 
 def _remove_stale(path: Path) -> None:
