@@ -344,7 +344,10 @@ def _write_report(out: Path, model, rmap, chosen, summary, seed) -> Path:
                   "volume_liters": chosen["volume_liters"],
                   "seconds": (None if chosen["median_hours"] is None
                               else chosen["median_hours"] * 3600),
-                  "median_time": None, "method": chosen["method"]}
+                  "median_time": None, "method": chosen["method"],
+                  "p_wrong": {"estimate": chosen["p_wrong"], "low": chosen["p_wrong_low"],
+                              "high": chosen["p_wrong_high"], "runs": chosen["p_wrong_runs"],
+                              "method": chosen["method"]}}
     data = collect_report(model, model_text=MODEL.read_text(encoding="utf-8"),
                           model_file=MODEL.name,
                           settings=ReportSettings(runs=100, seed=int(seed.generate_state(1)[0])),

@@ -111,3 +111,5 @@ def test_demo_writes_the_report_page(demo):
     assert "taken from a saved sweep" in html  # the demo's own map, not a second sweep
     assert html.count('<td class="flag-') == len(summary["regimes"]["cells"])
     assert html.count("predictions of a mathematical model") >= 2  # header and the answer
+    chosen = summary["chosen"]
+    assert f"Probability of a wrong or late decision at this n:\n  {chosen['p_wrong']:.3g}" in html

@@ -123,7 +123,7 @@ def seconds_per_time(net, rate: str | None, concentration: str | None) -> float 
 
     One unit of parallel time lasts ``1 / (k C)`` seconds for a protocol whose
     reactions are built at ``k`` (/M/s) and total concentration ``C`` (M)
-    (DESIGN.md, physical units).
+    (docs/design.md, physical units).
 
     Parameters
     ----------

@@ -278,7 +278,17 @@ def _copies(networks, settings, seed) -> dict:
     return {"n": {"estimate": result.estimate, "low": result.low, "high": result.high},
             "gap": result.gap_estimate, "risk": settings.risk, "deadline": result.deadline,
             "deadline_seconds": settings.deadline_seconds, "median_time": result.median_time,
-            "method": result.method, "seed": result.seed_entropy, **phys}
+            "method": result.method, "seed": result.seed_entropy,
+            "bracket": {"passes": result.estimate, "fails": result.below},
+            "p_wrong": _p_wrong(result.at_estimate), **phys}
+
+
+def _p_wrong(probe) -> dict | None:
+    if probe is None:
+        return None
+    p, low, high = probe.p_wrong
+    return {"estimate": p, "low": low, "high": high, "runs": probe.trials,
+            "method": probe.method}
 
 
 def _as_regime_map(obj):
