@@ -275,6 +275,9 @@ def parse_model(text: str, *, source: str = "<string>", overrides: Mapping | Non
         match = re.search(r"line (\d+)", str(err))
         raise ModelError(f"malformed TOML: {err}", file=source,
                          line=int(match.group(1)) if match else None) from err
+    except RecursionError as err:
+        raise ModelError("malformed TOML: arrays or tables nested too deeply",
+                         file=source) from err
     return _Builder(data, _Locator(text), source).build(dict(overrides or {}))
 
 

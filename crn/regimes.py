@@ -495,11 +495,13 @@ def regime_map(networks: Callable[[int, int], Network], ns: Sequence[int], *,
             progress(count, total)
 
     if workers and workers > 1 and cluster is None and len(todo) > 1:
-        from concurrent.futures import ProcessPoolExecutor, as_completed
+        from concurrent.futures import as_completed
+
+        from .workers import process_pool
 
         # the costliest cells (largest n) first, so no worker idles at the end
         ordered = sorted(todo, key=lambda c: -c[0])
-        with ProcessPoolExecutor(max_workers=int(workers)) as pool:
+        with process_pool(workers, context=None) as pool:
             futures = [pool.submit(_cell_task, (networks, n, g, options)) for n, g in ordered]
             for future in as_completed(futures):
                 finish(future.result())

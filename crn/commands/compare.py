@@ -56,8 +56,8 @@ def disagreement(labels, ode_label) -> tuple[float, float, float]:
               help="Write the figure (ODE over the stochastic mean and 5-95% band; png, pdf, "
                    "svg, ...).")
 @lab_time_options
-def compare(model, sets, runs, until, engine, workers, cluster, seed, as_json, plot_path, rate,
-            concentration):
+def compare(model, sets, runs, until, engine, workers, cluster, max_memory, force, seed, as_json,
+            plot_path, rate, concentration):
     """Put MODEL's mean-field ODE next to its exact stochastic runs: each label's
     probability (95% Wilson interval) beside the ODE's label, consensus-time quantiles
     beside the ODE's time, and how often a run disagrees with the ODE."""
@@ -79,7 +79,8 @@ def compare(model, sets, runs, until, engine, workers, cluster, seed, as_json, p
     ode = solve_mean_field(net, times=times, until=window, stop_at_consensus=False)
     ensemble, interrupted = run_ensemble(net, runs=runs, until=horizon, engine=engine,
                                          seed=seed, workers=workers, cluster=cluster,
-                                         as_json=as_json, times=times)
+                                         as_json=as_json, times=times,
+                                         max_memory=max_memory, force=force)
     ode_label, ode_time = ode_first.consensus.label, ode_first.consensus.time
     differ = disagreement(ensemble.labels, ode_label)
     if plot_path is not None and ensemble.runs:

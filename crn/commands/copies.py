@@ -97,10 +97,16 @@ def copies(model, sets, gap_fraction, gap, risk, deadline, concentration, volume
             def parallel_deadline(n, _s=deadline_seconds, _k=k, _v=vol):
                 return to_parallel_time(_s, _k, concentration_for(n, _v))
     model_obj, networks = cell_networks(model, sets)
-    result = smallest_n(networks, gap_fraction=gap_fraction, gap=gap, risk=risk,
-                        deadline=parallel_deadline, n_max=n_max, method=method,
-                        runs_max=runs_max, rng=seed, workers=1, loading=loading,
-                        scale_deadline=deadline_seconds is not None)
+    try:
+        result = smallest_n(networks, gap_fraction=gap_fraction, gap=gap, risk=risk,
+                            deadline=parallel_deadline, n_max=n_max, method=method,
+                            runs_max=runs_max, rng=seed, workers=1, loading=loading,
+                            scale_deadline=deadline_seconds is not None)
+    except KeyboardInterrupt:
+        from .options import stop_interrupted
+
+        stop_interrupted("before the search finished; no answer (an unfinished search has no "
+                         "safe n to report)")
     phys = physical_outputs(result.estimate, concentration_molar=conc, volume_liters=vol,
                             rate=k, parallel_time=result.median_time)
     bounds = {}

@@ -12,7 +12,8 @@ __all__ = ["model_argument", "set_option", "seed_option", "json_option", "load",
            "OUTPUT_FILE", "FIGURE_FILE", "FIGURE_FORMATS", "CLUSTER_ADDRESS", "dna_options",
            "dna_parameters", "dna_errors", "build_implementation", "DNA_OPTION_NAMES",
            "DEFAULT_DNA_RATE", "DEFAULT_DNA_CONCENTRATION", "every_option", "force_option",
-           "sample_times_option_value"]
+           "sample_times_option_value",
+           "stop_interrupted", "guard_options", "guard"]
 
 #: Figure formats ``--plot`` accepts (all written by matplotlib's Agg, PDF, SVG and PS backends).
 FIGURE_FORMATS = ("png", "pdf", "svg", "svgz", "eps", "ps", "jpg", "jpeg", "tif", "tiff", "webp")
@@ -582,8 +583,9 @@ def force_option(func):
         ``func`` with the flag, passed to it as ``force`` (bool).
     """
     return click.option("--force", is_flag=True,
-                        help="Go ahead even past a size limit (more than 1,000,000 sample "
-                             "times, say).")(func)
+                        help="Go ahead even past a limit: more estimated memory than "
+                             "--max-memory, more than a day of estimated work, more than "
+                             "1,000,000 sample times.")(func)
 
 
 def sample_times_option_value(every: float, until: float, force: bool):
@@ -612,3 +614,75 @@ def sample_times_option_value(every: float, until: float, force: bool):
         return sample_times(every, until, force=force)
     except ValueError as err:
         raise click.BadParameter(str(err), param_hint="--every") from err
+
+
+def stop_interrupted(finished: str):
+    """After Ctrl-C or SIGTERM: say what was finished on standard error and exit 130 or 143.
+
+    Parameters
+    ----------
+    finished : str
+        What the command had finished, e.g. ``"after n = 2..7 (no counterexample so far)"``.
+    """
+    from .. import interrupts
+
+    click.echo(f"crn: {interrupts.reason()} {finished}", err=True)
+    click.get_current_context().exit(interrupts.exit_status())
+
+
+class MemorySize(click.ParamType):
+    """A size in bytes: ``4G``, ``512MiB``, ``2.5GB``."""
+
+    name = "size"
+
+    def convert(self, value, param, ctx):
+        from ..errors import CRNError
+        from ..guards import parse_memory
+
+        try:
+            return parse_memory(value)
+        except CRNError as err:
+            self.fail(str(err).removeprefix("--max-memory: "), param, ctx)
+
+
+def guard_options(func):
+    """Add ``--max-memory SIZE`` and ``--force`` (see :mod:`crn.guards`) to a click command.
+
+    Parameters
+    ----------
+    func : callable
+        The command function to decorate.
+
+    Returns
+    -------
+    callable
+        ``func`` with the options, passed as ``max_memory`` (int bytes or None) and
+        ``force`` (bool).
+    """
+    func = force_option(func)
+    return click.option("--max-memory", type=MemorySize(), default=None, metavar="SIZE",
+                        help="Refuse work estimated to need more memory (e.g. 4G; default "
+                             "half the machine's RAM).")(func)
+
+
+def guard(estimate, max_memory, force, *, announce: bool = True,
+          announce_from: float = 10.0) -> None:
+    """Refuse ``estimate`` beyond the limits (exit 2); print it when it is long.
+
+    Parameters
+    ----------
+    estimate : crn.guards.Estimate
+    max_memory : int or None
+        ``--max-memory`` in bytes (None: half the RAM).
+    force : bool
+        ``--force``: never refuse.
+    announce : bool, default True
+        Whether to print a long estimate (not with ``--json``).
+    announce_from : float, default 10
+        Print the estimate on standard error from this many seconds.
+    """
+    from ..guards import enforce
+
+    enforce(estimate, max_memory=max_memory, force=force)
+    if announce and estimate.seconds >= announce_from:
+        click.echo(f"crn: estimated work for {estimate.what}: {estimate.describe()}", err=True)

@@ -19,6 +19,8 @@ from .options import (
     FIGURE_FILE,
     OUTPUT_FILE,
     emit_json,
+    guard,
+    guard_options,
     json_option,
     load,
     model_argument,
@@ -128,10 +130,12 @@ def _fmt(value, spec=".3g"):
               help="Processes computing cells in parallel (default 1).")
 @click.option("--cluster", type=CLUSTER_ADDRESS, default=None, metavar="ADDRESS",
               help="Dask scheduler address for the stochastic runs.")
+@guard_options
 @seed_option
 @json_option
 def regimes(model, sets, n_list, gap_list, fraction_list, risk, until, runs_max, time_factor,
-            method, plot_file, csv_file, out_dir, resume, workers, cluster, seed, as_json):
+            method, plot_file, csv_file, out_dir, resume, workers, cluster, max_memory, force,
+            seed, as_json):
     """Sweep MODEL over populations n and gaps: for each cell, the ODE's decision, the
     probability that a stochastic run disagrees with it (95% interval, simultaneous over the
     sequential looks (Clopper-Pearson, Bonferroni)), the flag, the times;
@@ -155,9 +159,15 @@ def regimes(model, sets, n_list, gap_list, fraction_list, risk, until, runs_max,
     model_obj, networks = cell_networks(model, sets)
     for n, g in skipped:
         click.echo(f"crn: skipping n={n}, gap={g}: (n + gap) / 2 is not whole", err=True)
+    from ..guards import regime_map_estimate
+    from ..regimes import DEFAULT_EXACT_MAX
+
+    guard(regime_map_estimate(networks, cells, runs_max=runs_max, until=until, method=method,
+                              exact_max=DEFAULT_EXACT_MAX, workers=workers or 1),
+          max_memory, force, announce=not as_json)
 
     entropy = np.random.SeedSequence(seed).entropy
-    done, on_cell, store = {}, None, None
+    done, store, new_cells = {}, None, []
     if out_dir:
         parameters = {
             "model": Path(model).name,
@@ -170,20 +180,27 @@ def regimes(model, sets, n_list, gap_list, fraction_list, risk, until, runs_max,
                            check_seed=seed is not None)
         entropy = store.seed_entropy
         done = {(c["n"], c["gap"]): RegimeCell.from_dict(c) for c in store.finished}
-        kill_after = os.environ.get(KILL_HOOK)
+    kill_after = os.environ.get(KILL_HOOK)
 
-        def on_cell(cell):
-            store.append(cell.to_dict())
-            if kill_after is not None and len(store.finished) >= int(kill_after):
-                os.kill(os.getpid(), signal.SIGKILL)
+    def on_cell(cell):
+        new_cells.append(cell)
+        if store is None:
+            return
+        store.append(cell.to_dict())
+        if kill_after is not None and len(store.finished) >= int(kill_after):
+            os.kill(os.getpid(), signal.SIGKILL)
     if seed is None and not as_json:
         seed_notice(entropy)
 
-    with progress_bar("cells", len(cells), enabled=not as_json) as update:
-        result = regime_map(networks, ns, gaps=gaps, gap_fractions=fractions, risk=risk,
-                            until=until, runs_max=runs_max, time_factor=time_factor,
-                            method=method, rng=entropy, workers=workers, cluster=cluster,
-                            done=done, on_cell=on_cell, progress=update)
+    try:
+        with progress_bar("cells", len(cells), enabled=not as_json) as update:
+            result = regime_map(networks, ns, gaps=gaps, gap_fractions=fractions, risk=risk,
+                                until=until, runs_max=runs_max, time_factor=time_factor,
+                                method=method, rng=entropy, workers=workers, cluster=cluster,
+                                done=done, on_cell=on_cell, progress=update)
+    except KeyboardInterrupt:
+        _report_interrupted(sorted([*done.values(), *new_cells], key=lambda c: (c.n, c.gap)),
+                            len(cells), out_dir)
     table = table_csv(result.cells)
     payload = result_json(model_obj.name, result)
     if out_dir:
@@ -198,6 +215,22 @@ def regimes(model, sets, n_list, gap_list, fraction_list, risk, until, runs_max,
         emit_json(payload)
         return
     click.echo(_text(model_obj.name, result))
+
+
+def _report_interrupted(finished, total, out_dir):
+    """After Ctrl-C or SIGTERM: the finished cells, where they are kept, and the exit status."""
+    from .. import interrupts
+
+    lines = [f"{c.n:>10} {c.gap:>8} {c.p_wrong:>12.4g} [{c.low:8.3g}, {c.high:8.3g}] "
+             f"{c.flag:>10}" for c in finished]
+    if lines:
+        click.echo("\n".join([f"{'n':>10} {'gap':>8} {'P(disagree)':>12} {'95% interval':>19} "
+                               f"{'flag':>10}", *lines]))
+    kept = (f"kept in {Path(out_dir) / 'regimes.jsonl'}; add --resume to finish the sweep"
+            if out_dir else "not kept (give --out DIR to keep cells across interruptions)")
+    click.echo(f"crn: {interrupts.reason()} after {len(finished)} of {total} cells; "
+               f"finished cells {kept}", err=True)
+    click.get_current_context().exit(interrupts.exit_status())
 
 
 def _save_plot(result, path, name):

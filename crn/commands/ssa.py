@@ -13,7 +13,8 @@ from .options import (
     OUTPUT_FILE,
     emit_json,
     every_option,
-    force_option,
+    guard,
+    guard_options,
     json_option,
     load,
     model_argument,
@@ -48,22 +49,48 @@ def ensemble_options(func):
     ]
     for option in reversed(options):
         func = option(func)
-    return func
+    return guard_options(func)
 
 
 def run_ensemble(net, *, runs, until, engine, seed, workers, cluster, as_json, times=None,
-                 description="stochastic runs", reduce=None):
+                 description="stochastic runs", reduce=None, max_memory=None, force=False):
     """Run :func:`crn.simulate.simulate` under a progress bar; report the seed and Ctrl-C.
+
+    First the work is estimated from the engine's cost model
+    (:func:`crn.guards.ensemble_estimate`): printed when long, refused (exit 2)
+    beyond the limits unless ``force``.
 
     Returns
     -------
     (Ensemble, bool)
-        The ensemble (the finished runs after Ctrl-C) and whether it was interrupted.
-        With ``reduce`` (see :func:`crn.simulate.simulate`) every run's counts go to it.
+        The ensemble (the finished runs after Ctrl-C or SIGTERM) and whether it
+        was interrupted. With ``reduce`` (see :func:`crn.simulate.simulate`)
+        every run's counts go to it.
+
+    Raises
+    ------
+    WorkerError
+        When worker processes kept dying; ``partial`` holds the finished runs.
     """
+    import os
+
     import numpy as np
 
-    from ..simulate import SimulationInterrupted, simulate
+    from ..guards import ensemble_estimate
+    from ..simulate import SimulationInterrupted, choose_engine, default_horizon, simulate
+
+    horizon = default_horizon(net) if until is None else float(until)
+    estimate = ensemble_estimate(net, runs=runs, until=horizon, engine=choose_engine(net, engine),
+                                 workers=workers or os.cpu_count() or 1,
+                                 n_times=101 if times is None else len(times))
+    if reduce is not None:  # the runs' counts are reduced as they come: bounded memory
+        from dataclasses import replace
+
+        from ..time_course import reduction_memory
+
+        estimate = replace(estimate, memory=float(reduction_memory(
+            len(times), net.n_species, runs)))
+    guard(estimate, max_memory, force, announce=not as_json)
 
     root = np.random.SeedSequence(seed)
     if seed is None:
@@ -127,9 +154,11 @@ def format_ensemble(ensemble: Ensemble, correct=None) -> list[str]:
 
 
 def _finish_interrupted(ensemble: Ensemble):
-    click.echo(f"crn: interrupted after {ensemble.runs} of {ensemble.requested} runs",
+    from .. import interrupts
+
+    click.echo(f"crn: {interrupts.reason()} after {ensemble.runs} of {ensemble.requested} runs",
                err=True)
-    click.get_current_context().exit(130)
+    click.get_current_context().exit(interrupts.exit_status())
 
 
 @click.command("ssa")
@@ -140,24 +169,26 @@ def _finish_interrupted(ensemble: Ensemble):
 @json_option
 @click.option("--csv", "csv_path", type=OUTPUT_FILE, default=None,
               help="Also write one row per run to this CSV file (with --every: the time "
-                   "course in long form, one row per time and species).")
+                   "course in long form, one row per time and species; after an "
+                   "interruption the finished runs under a '# partial' first line).")
 @every_option
 @click.option("--plot", "plot_path", type=FIGURE_FILE, default=None, metavar="FILE",
               help="Save a figure of each species' mean count and 5-95% band with the "
                    "mean-field ODE overlaid (png, pdf, svg, ...).")
-@force_option
-def ssa(model, sets, runs, until, engine, workers, cluster, seed, as_json, csv_path, every,
-        plot_path, force):
+def ssa(model, sets, runs, until, engine, workers, cluster, max_memory, force, seed, as_json,
+        csv_path, every, plot_path):
     """Run MODEL's exact stochastic dynamics RUNS times and report who won and when.
 
     Each run has its own random stream from --seed, so the numbers do not depend
     on --workers or --cluster. Ctrl-C stops and reports the runs finished. With
     --every DT the runs go on to --until and the species' counts are summarised
     at 0, DT, 2 DT, ..., --until (a model with no output labels reports the
-    species at the horizon anyway).
+    species at the horizon anyway). The work is estimated first and refused
+    beyond a day (or --max-memory) unless --force.
     """
     import numpy as np
 
+    from ..errors import WorkerError
     from ..io.runs import write_runs_csv
     from ..outcome import correct_label
     from ..simulate import default_horizon
@@ -177,9 +208,16 @@ def ssa(model, sets, runs, until, engine, workers, cluster, seed, as_json, csv_p
         accumulator = TimeCourseAccumulator(times, net.species, runs,
                                             rng=np.random.SeedSequence(seed),
                                             time_units=time_units)
-    ensemble, interrupted = run_ensemble(net, runs=runs, until=until, engine=engine, seed=seed,
-                                         workers=workers, cluster=cluster, as_json=as_json,
-                                         times=times, reduce=accumulator)
+    try:
+        ensemble, interrupted = run_ensemble(net, runs=runs, until=until, engine=engine,
+                                             seed=seed, workers=workers, cluster=cluster,
+                                             as_json=as_json, times=times, reduce=accumulator,
+                                             max_memory=max_memory, force=force)
+    except WorkerError as err:
+        if (csv_path is not None and accumulator is None and err.partial is not None
+                and err.partial.runs):
+            write_runs_csv(err.partial, csv_path, note="worker processes died")
+        raise
     course = None
     if accumulator is not None:
         course = accumulator.result()
@@ -192,7 +230,7 @@ def ssa(model, sets, runs, until, engine, workers, cluster, seed, as_json, csv_p
 
             write_time_course_csv(csv_path, course)
         else:
-            write_runs_csv(ensemble, csv_path)
+            write_runs_csv(ensemble, csv_path, note="interrupted" if interrupted else None)
     if plot_path is not None and course is not None:
         _plot(net, course, loaded.name, plot_path)
     if as_json:

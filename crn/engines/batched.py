@@ -603,7 +603,7 @@ def _pair_sequence(rng, n_states, ini, rows, resp, w, det, code, out_ptr, out_c,
     return groups, bad_seen, broken, applied
 
 
-@numba.njit(cache=True)
+@numba.njit(cache=True, nogil=True)  # nogil: Ctrl-C is seen during a run
 def _kernel(rng, n_states, w, det, code, out_ptr, out_c, out_d, out_p, nn_ptr, nn_q, rows,
             res_ptr, res_q, species_label, x0, times, until, stop_at_consensus, discrete,
             threshold, agent_factor, joint_states):

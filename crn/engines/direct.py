@@ -183,7 +183,7 @@ def _label_now(present, unlabeled, n_labels):
     return found
 
 
-@numba.njit(cache=True)
+@numba.njit(cache=True, nogil=True)  # nogil: Ctrl-C is seen during a run
 def _kernel(rs, rc, c, ch_ptr, ch_sp, ch_d, dep_ptr, dep_idx, species_label, n_labels,
             x0, times, until, stop_at_consensus, rng):
     n_species = x0.shape[0]

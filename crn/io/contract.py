@@ -196,4 +196,7 @@ def network_from_json(text: str, *, source: str = "<json>") -> Network:
         data = json.loads(text)
     except json.JSONDecodeError as err:
         raise ModelError(f"malformed JSON: {err.msg}", file=source, line=err.lineno) from err
+    except RecursionError as err:
+        raise ModelError("malformed JSON: arrays or objects nested too deeply",
+                         file=source) from err
     return network_from_dict(data, source=source)

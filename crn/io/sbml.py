@@ -345,6 +345,10 @@ def _to_sympy(node, symbols):
             raise _NeedsSize(value.message)
         return value
     args = [_to_sympy(child, symbols) for child in children]
+    binary = (libsbml.AST_DIVIDE, libsbml.AST_POWER, libsbml.AST_FUNCTION_POWER)
+    if (kind in binary and len(args) != 2) or (kind == libsbml.AST_MINUS
+                                               and len(args) not in (1, 2)):
+        raise _NotMassAction("an operator with missing or extra operands")
     if kind == libsbml.AST_PLUS:
         return sympy.Add(*args)
     if kind == libsbml.AST_TIMES:
@@ -356,14 +360,23 @@ def _to_sympy(node, symbols):
     if kind in (libsbml.AST_POWER, libsbml.AST_FUNCTION_POWER):
         if not args[1].is_Integer:
             raise _NotMassAction("a power that is not a whole number")
+        if abs(args[1]) > _MAX_STOICHIOMETRY:
+            raise _NotMassAction(f"a power above {_MAX_STOICHIOMETRY}")
         return args[0] ** args[1]
     raise _NotMassAction(f"the operator {libsbml.formulaToL3String(node)!r}")
+
+
+_MAX_STOICHIOMETRY = 1000
+"""Larger stoichiometries are refused: mass-action laws of that order are not chemistry, and
+expanding them symbolically would not finish."""
 
 
 def _q(x):
     """A float as the exact sympy rational it stands for."""
     import sympy
 
+    if not math.isfinite(float(x)):
+        return sympy.nan  # makes the law's rate constant non-real: refused as not mass action
     return sympy.Rational(*float(x).as_integer_ratio())
 
 
@@ -672,6 +685,9 @@ def network_from_sbml(text: str, *, source: str = "<sbml>") -> Network:
                 if not math.isfinite(m) or not float(m).is_integer() or m < 0:
                     raise refuse(f"reaction {rid}: stoichiometry {m} of {ref.getSpecies()} is "
                                  "not a whole number", rid)
+                if m > _MAX_STOICHIOMETRY:
+                    raise refuse(f"reaction {rid}: stoichiometry {m:g} of {ref.getSpecies()} "
+                                 f"is above {_MAX_STOICHIOMETRY}", rid)
                 if m:
                     side[ref.getSpecies()] = side.get(ref.getSpecies(), 0) + int(m)
             sides.append(side)
@@ -693,6 +709,12 @@ def network_from_sbml(text: str, *, source: str = "<sbml>") -> Network:
             rate = _rate_constant(_to_sympy(law.getMath(), local), reactants, volume)
         except _NeedsSize as err:
             raise refuse(f"reaction {rid}: {err}", rid) from None
+        except (TypeError, ValueError, ZeroDivisionError, OverflowError) as err:
+            # a law sympy cannot reduce to a real constant (k / 0, ...): not mass action
+            formula = libsbml.formulaToL3String(law.getMath())
+            raise refuse(f"reaction {rid}: kinetic law {formula!r} is not mass action "
+                         f"(no real rate constant: {type(err).__name__}); only mass-action "
+                         "laws are imported", rid) from None
         except _NotMassAction as err:
             formula = libsbml.formulaToL3String(law.getMath())
             hint = ("; write a reversible reaction as two irreversible ones"
