@@ -5,7 +5,7 @@ BIN := $(VENV)/bin
 STAMP := $(VENV)/.installed
 TEST_STAMP := $(VENV)/.installed-test
 
-.PHONY: demo test lint bench clean browser
+.PHONY: demo test test-slow lint bench clean browser
 
 $(BIN)/python:
 	$(PYTHON) -m venv $(VENV)
@@ -31,6 +31,10 @@ browser:
 
 test: $(TEST_STAMP) browser
 	$(BIN)/python -m pytest -q
+
+# the long statistical runs (marked slow; a faster test of the same code is in `make test`)
+test-slow: $(TEST_STAMP)
+	$(BIN)/python -m pytest -q -m slow
 
 lint: $(TEST_STAMP)
 	$(BIN)/ruff check crn tests benchmarks

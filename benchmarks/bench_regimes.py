@@ -5,6 +5,36 @@ of each run and the ratio (goal: under 5 minutes with 2 workers). Both runs use
 the same seed, so they also check that the worker count does not change a number.
 
     python benchmarks/bench_regimes.py [--runs-max R] [--n LIST]
+
+Where the time goes (profiled cell by cell with cProfile on a shared two-core
+machine carrying six to ten other jobs, so the seconds are inflated; their
+proportions are the point):
+
+* Stochastic runs are nearly all of it, and the largest n dominate. A cell
+  that the mean field gets right needs 800 runs (with no disagreeing run, the
+  upper end of the Bonferroni-corrected interval over the six looks of the
+  1000-run schedule first drops below risk 0.01 at 800 runs), an uncertain cell
+  1000, a misleading one often only 50. One batched run to consensus took
+  12 ms at n = 1e5, 41 ms at n = 1e6 and 130 ms (gap 0.3 n) to 640 ms
+  (gap 0.0003 n, consensus near parallel time 43) at n = 1e7, that is
+  1.5e8, 5e8 and 0.7e9 to 1.8e9 interactions per second. So a cell costs about
+  10 s at n = 1e5, 35 s at n = 1e6 and 100 to 600 s at n = 1e7: the eight
+  n = 1e7 cells are about 80 % of the map, the n = 1e6 cells most of the rest.
+* The direct method's cells (n = 1e3, 1e4; auto switches to the batched engine
+  from 1e5 agents) cost 3 to 15 s each; exact cells (n = 100) under 0.5 s,
+  of which 200 timing runs take a quarter.
+* The mean-field decision takes 0.03 s per cell and the configuration
+  estimate 0.01 to 0.05 s, once each worker has imported scipy (1.6 s, once).
+* Not a cost: the worker pool is started once per sweep, not per cell; a cell
+  ships its (network builder, n, gap), a few hundred bytes; numba kernels load
+  from the on-disk cache once per worker.
+
+Measured here: n = 1e2 .. 1e5 (the 32 smaller cells) took 189 s on one worker.
+The default map stays far above 5 minutes on two workers. The levers left
+change the table, which this map must keep for its seed: fewer runs (a cell a
+monotone neighbour already decides), a different engine for a cell (batched
+below 1e5 agents, exact chains above 1e5 configurations), or a different
+random stream in the three-state batched kernel; each needs its own decision.
 """
 
 from __future__ import annotations

@@ -7,20 +7,23 @@ where errors become a one-line message and exit status 2.
 
 from __future__ import annotations
 
+import contextlib
 import sys
 
 import click
 
-from .errors import CRNError
+from . import __version__
+from .errors import CRNError, WorkerError
 
 __all__ = ["cli", "main"]
 
 EXIT_BAD_INPUT = 2
+EXIT_FAILED = 1
 _PACKAGE_DIR = __file__.rsplit("/", 1)[0]
 
 
 @click.group(context_settings={"help_option_names": ["-h", "--help"]})
-@click.version_option(package_name="crn")
+@click.version_option(version=__version__, prog_name="crn")
 def cli():
     """Population protocols as chemical reaction networks: mean field, exact
     stochastic dynamics and exact small-population analysis side by side."""
@@ -37,12 +40,32 @@ _register()
 
 
 def main(argv=None) -> int:
-    """Entry point of the ``crn`` console script: exit 0, or 2 with a one-line error."""
+    """Entry point of the ``crn`` console script.
+
+    Exit 0; 1 when the work itself failed (lost worker processes); 2 with a
+    one-line error for bad input; 130 after Ctrl-C and 143 after SIGTERM (both
+    stop the command the same way, see :mod:`crn.interrupts`).
+    """
     import warnings
 
-    with warnings.catch_warnings():
+    from . import interrupts
+
+    with warnings.catch_warnings(), interrupts.handling():
         warnings.showwarning = _show_warning
-        return _run(argv)
+        code = _run(argv)
+    if argv is None and interrupts.received() is not None:
+        # the real command line after Ctrl-C/SIGTERM: results are saved and streams flushed
+        # below, so skip the interpreter's slow teardown (numba, dask) to stop at once
+        import os
+
+        if "multiprocessing" in sys.modules:  # release the pools' semaphores quietly
+            with contextlib.suppress(Exception):
+                sys.modules["multiprocessing"].util._exit_function()
+        for stream in (sys.stdout, sys.stderr):
+            with contextlib.suppress(Exception):
+                stream.flush()
+        os._exit(code)
+    return code
 
 
 def _show_warning(message, category, filename, lineno, file=None, line=None):
@@ -56,9 +79,11 @@ def _show_warning(message, category, filename, lineno, file=None, line=None):
 def _run(argv) -> int:
     try:
         code = cli.main(args=argv, prog_name="crn", standalone_mode=False)
-    except click.exceptions.Abort:
-        click.echo("crn: interrupted", err=True)
-        return 130
+    except (click.exceptions.Abort, KeyboardInterrupt):
+        from . import interrupts
+
+        click.echo(f"crn: {interrupts.reason()}", err=True)
+        return interrupts.exit_status()
     except click.exceptions.Exit as done:
         return done.exit_code
     except click.ClickException as err:
@@ -67,6 +92,12 @@ def _run(argv) -> int:
         else:
             click.echo(f"crn: {_one_line(err.format_message())}", err=True)
         return EXIT_BAD_INPUT
+    except RecursionError:
+        click.echo("crn: the input is nested too deeply to read", err=True)
+        return EXIT_BAD_INPUT
+    except WorkerError as err:
+        click.echo(f"crn: {_one_line(str(err))}", err=True)
+        return EXIT_FAILED
     except CRNError as err:
         click.echo(f"crn: {_one_line(str(err))}", err=True)
         return EXIT_BAD_INPUT

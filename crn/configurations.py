@@ -288,7 +288,7 @@ def _find_or_insert(states, count, table):
         slot = (slot + np.uint64(1)) & mask
 
 
-@numba.njit(cache=True)
+@numba.njit(cache=True, nogil=True)  # nogil: Ctrl-C is seen meanwhile
 def _rehash(states, count, size):
     table = np.zeros(size, dtype=np.int64)
     mask = np.uint64(size - 1)
@@ -300,7 +300,7 @@ def _rehash(states, count, size):
     return table
 
 
-@numba.njit(cache=True)
+@numba.njit(cache=True, nogil=True)  # nogil: Ctrl-C is seen meanwhile
 def _expand(states, count, head, stop, table, parent, parent_reaction, outflow,
             reactant_species, reactant_counts, change, rates, volume_power,
             src, dst, edge_rates, n_edges, limit, truncate):

@@ -25,16 +25,23 @@ from .probes import InitialSplit, gap_for_fraction, ode_decision, stochastic_dec
 from .regimes import regime_map
 from .stats import wilson_interval
 from .units import (
-    AVOGADRO,
+    WET_LAB_CAUTION,
     format_concentration,
     format_time,
     format_volume,
     parse_concentration,
     parse_rate_constant,
     parse_time,
+    seconds_per_parallel_time,
+    to_parallel_time,
+    to_seconds,
+    volume_for,
 )
 
-__all__ = ["run_demo", "main", "SETTINGS"]
+__all__ = ["run_demo", "main", "SETTINGS", "REPORT"]
+
+#: The printed report, saved in the output directory too.
+REPORT = "report.txt"
 
 MODEL = Path(__file__).resolve().parent.parent / "models" / "droplet_assay.toml"
 
@@ -45,11 +52,12 @@ SETTINGS = {
                  map_fractions=[0.01, 0.02, 0.05, 0.1, 0.2], map_runs_max=800,
                  gap_fraction=0.05, risk=0.01, deadline="2h", rate="1e6/M/s",
                  concentrations=["1nM", "2nM", "3nM", "5nM", "10nM", "20nM", "50nM", "100nM"],
-                 copies_runs_max=2000, transient_max=10_000),
+                 copies_runs_max=2000, transient_max=10_000, loading="poisson"),
     "quick": dict(compare_n=600, compare_runs=100, map_n=[100, 1000],
                   map_fractions=[0.05, 0.2], map_runs_max=200,
                   gap_fraction=0.2, risk=0.05, deadline="2h", rate="1e6/M/s",
-                  concentrations=["1nM", "10nM"], copies_runs_max=400, transient_max=1_000),
+                  concentrations=["1nM", "10nM"], copies_runs_max=400, transient_max=1_000,
+                  loading="poisson"),
 }
 
 
@@ -74,7 +82,7 @@ def _compare(net, n, gap_fraction, runs, seed, rate, concentration, echo):
     finite = np.nan_to_num(times, nan=np.inf)
     median = float(np.median(finite))
     q05, q95 = (float(q) for q in np.quantile(finite, [0.05, 0.95]))
-    unit = 1.0 / (rate * concentration)
+    unit = seconds_per_parallel_time(rate, concentration)
     echo(f"\n== ODE against stochastic runs: n = {n:,} strands, gap {gap} "
          f"({gap / n:.0%}), at {format_concentration(concentration)} ==")
     echo(f"  ODE: consensus on {label} at parallel time {ode_time:.3g} "
@@ -144,6 +152,8 @@ def run_demo(out, *, quick: bool = False, seed: int = 20261201, workers: int = 2
     from .plots.regimes import plot_feasibility, plot_regime_map
 
     started = time.perf_counter()
+    report: list[str] = []
+    echo = _recording(echo, report)
     s = SETTINGS["quick" if quick else "full"]
     out = Path(out)
     out.mkdir(parents=True, exist_ok=True)
@@ -178,66 +188,134 @@ def run_demo(out, *, quick: bool = False, seed: int = 20261201, workers: int = 2
         echo(f"  {n:>7} " + " ".join(f"{c.flag:>11}" for c in row))
     echo(f"  ({time.perf_counter() - started:.0f} s so far)")
     b = rmap.boundary
-    if b.exponent is not None:
-        echo(f"  critical gap grows like n^{b.exponent:.2f} (95% interval {b.low:.2f} .. "
-             f"{b.high:.2f}); theory: sqrt(n) up to log factors (Angluin et al. 2008)")
+    theory = "; theory: sqrt(n) up to log factors (Angluin et al. 2008)"
+    echo(f"  {b.describe()}" + (theory if b.exponent is not None else ""))
     ax = plot_regime_map(rmap, title=f"{model.name.split('(')[0].strip()}: regime map")
     _figure_path(out, "regime_map.png", ax.figure)
     write_atomic(out / "regime_map.csv", table_csv(rmap.cells))
 
-    echo(f"\n== Designer's question: {fraction:.0%} gap, risk {risk:g}, decided within "
-         f"{format_time(deadline_s)} at {s['rate']} ==")
-    concentrations = [parse_concentration(c) for c in s["concentrations"]]
-    horizon = deadline_s * rate * max(concentrations)
-    prober = Prober(InitialSplit(net), horizon=horizon, runs_max=s["copies_runs_max"],
-                    transient_max=s["transient_max"], rng=seeds[3])
-    rows = []
-    echo(f"  {'concentration':>13} {'deadline':>9} {'copies n (95% range)':>26} "
-         f"{'droplet volume':>15} {'median time':>12}")
-    for conc in concentrations:
-        deadline = deadline_s * rate * conc
-        result = smallest_n(InitialSplit(net), gap_fraction=fraction, risk=risk,
-                            deadline=deadline, prober=prober, n_max=200_000)
-        row = dict(concentration_molar=conc, deadline_parallel=deadline, copies=result.estimate,
-                   copies_low=result.low, copies_high=result.high, volume_liters=None,
-                   volume_low_liters=None, volume_high_liters=None, median_hours=None,
-                   method=result.method)
-        if result.estimate is not None:
-            row["volume_liters"] = result.estimate / (conc * AVOGADRO)
-            row["volume_low_liters"] = (None if result.low is None
-                                        else result.low / (conc * AVOGADRO))
-            row["volume_high_liters"] = (None if result.high is None
-                                         else result.high / (conc * AVOGADRO))
-            if result.median_time is not None:
-                row["median_hours"] = result.median_time / (rate * conc) / 3600
-        rows.append(row)
-        if result.estimate is None:
-            echo(f"  {format_concentration(conc):>13} {deadline:>9.3g}   too slow: no droplet "
-                 f"size decides by the deadline")
-        else:
-            span = f"{result.estimate:,} ({_n(result.low)}..{_n(result.high)})"
-            hours = "-" if row["median_hours"] is None else f"{row['median_hours']:.2f} h"
-            echo(f"  {format_concentration(conc):>13} {deadline:>9.3g} {span:>26} "
-                 f"{format_volume(row['volume_liters']):>15} {hours:>12}")
+    rows = _designers_question(net, s, seeds[3], echo)
     echo(f"  ({time.perf_counter() - started:.0f} s so far)")
     feasible = [r for r in rows if r["volume_liters"]]
     chosen = min(feasible, key=lambda r: r["volume_liters"]) if feasible else None
-    slowest = min(feasible, key=lambda r: r["concentration_molar"]) if feasible else None
-    ax = plot_feasibility(rows, chosen=chosen, risk=risk, deadline_hours=deadline_s / 3600)
+    ax = plot_feasibility(rows, chosen=chosen, risk=risk, deadline_hours=deadline_s / 3600,
+                          note=WET_LAB_CAUTION)
     _figure_path(out, "feasibility.png", ax.figure)
-    write_atomic(out / "feasibility.csv", _csv(rows))
+    write_atomic(out / "feasibility.csv", _csv(rows, comment=f"caution: {WET_LAB_CAUTION}"))
+    _verdict(rows, chosen, s, echo)
+    dna = _dna(out, net, s, rate, deadline_s, quick, root, echo)
+    elapsed = time.perf_counter() - started
+    echo(f"\nFigures and tables in {out}/ (ode_vs_stochastic.png, regime_map.png, "
+         f"feasibility.png, regime_map.csv, feasibility.csv, summary.json, report.html, "
+         f"{REPORT}); {elapsed:.0f} s.")
+    summary = {"seed": seed, "settings": "quick" if quick else "full", "risk": risk,
+               "gap_fraction": fraction, "deadline_seconds": deadline_s,
+               "rate_per_molar_second": rate, "loading": s["loading"], "compare": compare,
+               "regimes": {"cells": rmap.table(), "exponent": b.to_dict()},
+               "feasibility": rows, "chosen": chosen, "elapsed_seconds": elapsed,
+               "caution": WET_LAB_CAUTION}
+    summary["dna"] = dna
+    summary["report"] = str(_write_report(out, model, rmap, chosen, summary, seeds[0]))
+    write_atomic(out / "summary.json", json.dumps(to_jsonable(summary), indent=2) + "\n")
+    write_atomic(out / REPORT, "\n".join(report) + "\n")
+    return summary
 
+
+def _recording(echo, lines: list):
+    """``echo`` that also keeps each line, for the saved report."""
+    def say(text=""):
+        lines.append(str(text))
+        echo(text)
+    return say
+
+
+def _designers_question(net, s, seed, echo) -> list[dict]:
+    """The copies answer per concentration: smallest droplet deciding by the deadline."""
+    rate, deadline_s = parse_rate_constant(s["rate"]), parse_time(s["deadline"])
+    fraction, risk = s["gap_fraction"], s["risk"]
+    poisson = s["loading"] == "poisson"
+    echo(f"\n== Designer's question: {fraction:.0%} gap, risk {risk:g}, decided within "
+         f"{format_time(deadline_s)} at {s['rate']} ==")
+    if poisson:
+        echo("  Droplets are Poisson-loaded: n is the mean number of strands per droplet; each "
+             "strain's count varies from droplet to droplet, so a droplet sometimes holds the "
+             "wrong majority.")
+    echo("  n is the smallest mean copy number whose 95% upper bound on P(wrong) lies below "
+         "the risk (the lattice n one step below does not qualify).")
+    concentrations = [parse_concentration(c) for c in s["concentrations"]]
+    horizon = to_parallel_time(deadline_s, rate, max(concentrations))
+    prober = Prober(InitialSplit(net), horizon=horizon, runs_max=s["copies_runs_max"],
+                    transient_max=s["transient_max"], rng=seed, loading=s["loading"],
+                    scale_deadline=True)
+    rows = []
+    echo(f"  {'concentration':>13} {'deadline':>11} {'copies n (range)':>20} "
+         f"{'P(wrong) [95% int.]':>22} {'droplet':>9} {'median':>7}")
+    echo(f"  {'':>13} {'(par. time)':>11} {'':>20} {'':>22} {'volume':>9} {'time':>7}")
+    for conc in concentrations:
+        deadline = to_parallel_time(deadline_s, rate, conc)
+        result = smallest_n(InitialSplit(net), gap_fraction=fraction, risk=risk,
+                            deadline=deadline, prober=prober, n_max=200_000)
+        rows.append(_feasibility_row(result, conc, deadline, rate))
+        row = rows[-1]
+        if result.estimate is None:
+            echo(f"  {format_concentration(conc):>13} {deadline:>11.3g}   too slow: no droplet "
+                 f"size decides by the deadline")
+            continue
+        span = f"{result.estimate:,} ({_n(result.low)}..)"
+        wrong = f"{row['p_wrong']:.2g} [{row['p_wrong_low']:.2g}, {row['p_wrong_high']:.2g}]"
+        hours = "-" if row["median_hours"] is None else f"{row['median_hours']:.2f} h"
+        echo(f"  {format_concentration(conc):>13} {deadline:>11.3g} {span:>20} {wrong:>22} "
+             f"{format_volume(row['volume_liters']):>9} {hours:>7}")
+    echo("  (range: the smallest n could be as low as the second number, allowing for "
+         "sampling error)")
+    return rows
+
+
+def _feasibility_row(result, conc, deadline, rate) -> dict:
+    """One row of feasibility.csv (SI units; None where there is no answer)."""
+    row = dict(concentration_molar=conc, deadline_parallel=deadline, copies=result.estimate,
+               copies_low=result.low, copies_high=result.high, copies_below=result.below,
+               volume_liters=None, volume_low_liters=None, volume_high_liters=None,
+               median_hours=None, p_wrong=None, p_wrong_low=None, p_wrong_high=None,
+               p_wrong_runs=None, risk_loading=None, risk_kinetics=None, loading_reversal=None,
+               loading=result.loading, method=result.method)
+    if result.estimate is None:
+        return row
+    row["volume_liters"] = volume_for(result.estimate, conc)
+    row["volume_low_liters"] = None if result.low is None else volume_for(result.low, conc)
+    row["volume_high_liters"] = volume_for(result.high, conc)
+    if result.median_time is not None:
+        row["median_hours"] = to_seconds(result.median_time, rate, conc) / 3600
+    at = result.at_estimate
+    row["p_wrong"], row["p_wrong_low"], row["p_wrong_high"] = at.p_wrong
+    row["p_wrong_runs"] = at.trials
+    if at.loading == "poisson":
+        row["risk_loading"], row["risk_kinetics"] = at.wrong_loading, at.wrong_kinetics
+        row["loading_reversal"] = at.reversal
+    return row
+
+
+def _verdict(rows, chosen, s, echo) -> None:
+    fraction, risk = s["gap_fraction"], s["risk"]
+    deadline_s = parse_time(s["deadline"])
+    feasible = [r for r in rows if r["volume_liters"]]
+    slowest = min(feasible, key=lambda r: r["concentration_molar"]) if feasible else None
     echo("\n== Verdict ==")
     if chosen is None:
         echo(f"  No concentration up to {s['concentrations'][-1]} decides a {fraction:.0%} gap "
              f"at risk {risk:g} within {format_time(deadline_s)}.")
     else:
         conc = chosen["concentration_molar"]
+        mean = " on average" if chosen["loading"] == "poisson" else ""
         echo(f"  Smallest droplet: {format_volume(chosen['volume_liters'])} at "
              f"{format_concentration(conc)} total signature strand "
-             f"({chosen['copies']:,} copies per droplet; 95% range "
-             f"{_n(chosen['copies_low'])}..{_n(chosen['copies_high'])}, i.e. "
-             f"{_vol(chosen['volume_low_liters'])}..{_vol(chosen['volume_high_liters'])}).")
+             f"({chosen['copies']:,} copies per droplet{mean}; P(wrong) "
+             f"{chosen['p_wrong']:.2g}, 95% interval {chosen['p_wrong_low']:.2g} .. "
+             f"{chosen['p_wrong_high']:.2g}, below the risk {risk:g}).")
+        if chosen["risk_loading"] is not None:
+            echo(f"  By cause: about {chosen['risk_loading']:.2g} from droplets loaded with "
+                 f"the wrong or a tied majority (P = {chosen['loading_reversal']:.2g}) and "
+                 f"about {chosen['risk_kinetics']:.2g} from the kinetics.")
         if chosen["median_hours"] is not None:
             echo(f"  It decides in about {chosen['median_hours']:.2f} h (median), within the "
                  f"{format_time(deadline_s)} deadline with probability >= {1 - risk:g}.")
@@ -251,23 +329,7 @@ def run_demo(out, *, quick: bool = False, seed: int = 20261201, workers: int = 2
             echo("  Below " + format_concentration(min(r["concentration_molar"]
                                                        for r in feasible))
                  + " the reactions are too slow to decide in time at any droplet size.")
-    echo("  These wet-lab numbers are model predictions (ideal mass-action kinetics, no leak or "
-         "strand loss): validate them with your lab's own controls and follow its safety "
-         "practice.")
-    dna = _dna(out, net, s, rate, deadline_s, quick, root, echo)
-    elapsed = time.perf_counter() - started
-    echo(f"\nFigures and tables in {out}/ (ode_vs_stochastic.png, regime_map.png, "
-         f"feasibility.png, regime_map.csv, feasibility.csv, summary.json, report.html); "
-         f"{elapsed:.0f} s.")
-    summary = {"seed": seed, "settings": "quick" if quick else "full", "risk": risk,
-               "gap_fraction": fraction, "deadline_seconds": deadline_s,
-               "rate_per_molar_second": rate, "compare": compare,
-               "regimes": {"cells": rmap.table(), "exponent": b.to_dict()},
-               "feasibility": rows, "chosen": chosen, "elapsed_seconds": elapsed}
-    summary["dna"] = dna
-    summary["report"] = str(_write_report(out, model, rmap, chosen, summary, seeds[0]))
-    write_atomic(out / "summary.json", json.dumps(to_jsonable(summary), indent=2) + "\n")
-    return summary
+    echo(f"  {WET_LAB_CAUTION}")
 
 
 def _write_report(out: Path, model, rmap, chosen, summary, seed) -> Path:
@@ -284,7 +346,10 @@ def _write_report(out: Path, model, rmap, chosen, summary, seed) -> Path:
                   "volume_liters": chosen["volume_liters"],
                   "seconds": (None if chosen["median_hours"] is None
                               else chosen["median_hours"] * 3600),
-                  "median_time": None, "method": chosen["method"]}
+                  "median_time": None, "method": chosen["method"],
+                  "p_wrong": {"estimate": chosen["p_wrong"], "low": chosen["p_wrong_low"],
+                              "high": chosen["p_wrong_high"], "runs": chosen["p_wrong_runs"],
+                              "method": chosen["method"]}}
     data = collect_report(model, model_text=MODEL.read_text(encoding="utf-8"),
                           model_file=MODEL.name,
                           settings=ReportSettings(runs=100, seed=int(seed.generate_state(1)[0])),
@@ -312,9 +377,10 @@ def _vol(value):
     return "-" if value is None else format_volume(value)
 
 
-def _csv(rows) -> str:
+def _csv(rows, comment: str | None = None) -> str:
     keys = list(rows[0]) if rows else []
-    lines = [",".join(keys)]
+    lines = [] if comment is None else [f"# {comment}"]
+    lines.append(",".join(keys))
     for r in rows:
         lines.append(",".join("" if r[k] is None else str(r[k]) for k in keys))
     return "\n".join(lines) + "\n"

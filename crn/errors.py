@@ -2,7 +2,7 @@
 
 from __future__ import annotations
 
-__all__ = ["CRNError", "ModelError", "ExpressionError"]
+__all__ = ["CRNError", "ModelError", "ExpressionError", "WorkerError"]
 
 
 class CRNError(Exception):
@@ -57,3 +57,18 @@ class ModelError(CRNError):
 
 class ExpressionError(CRNError):
     """An arithmetic expression in a model is not allowed or cannot be evaluated."""
+
+
+class WorkerError(CRNError):
+    """Worker processes kept dying and the work could not be finished (exit status 1).
+
+    Attributes
+    ----------
+    partial : object or None
+        The results that did finish (for an ensemble, an
+        :class:`~crn.simulate.Ensemble` of the finished runs).
+    """
+
+    def __init__(self, message: str, partial=None):
+        super().__init__(message)
+        self.partial = partial

@@ -78,7 +78,7 @@ def evaluate(expression, names: dict | None = None):
     if isinstance(expression, bool):
         raise ExpressionError(f"expected a number or an expression, got {expression!r}")
     if isinstance(expression, int | float):
-        return expression
+        return _real(expression, repr(expression))
     if not isinstance(expression, str):
         raise ExpressionError(f"expected a number or an expression, got {expression!r}")
     if len(expression) > _MAX_LENGTH:
@@ -87,11 +87,15 @@ def evaluate(expression, names: dict | None = None):
         tree = ast.parse(expression.strip(), mode="eval")
     except SyntaxError as err:
         raise ExpressionError(f"cannot parse expression {expression!r}: {err.msg}") from err
+    except (RecursionError, MemoryError) as err:
+        raise ExpressionError(f"expression nested too deeply: {expression[:40]!r}...") from err
     names = names or {}
     try:
         return _walk(tree.body, names, expression)
     except ExpressionError:
         raise
+    except RecursionError as err:
+        raise ExpressionError(f"expression nested too deeply: {expression[:40]!r}...") from err
     except (ArithmeticError, ValueError, TypeError) as err:
         raise ExpressionError(f"cannot evaluate {expression!r}: {err}") from err
 
@@ -115,7 +119,7 @@ def _walk(node, names, source):
     if isinstance(node, ast.Constant):
         if isinstance(node.value, bool) or not isinstance(node.value, int | float):
             raise ExpressionError(f"only numbers are allowed in {source!r}, found {node.value!r}")
-        return node.value
+        return _real(node.value, source)
     if isinstance(node, ast.Name):
         if node.id in names:
             return names[node.id]
@@ -151,4 +155,6 @@ def _walk(node, names, source):
 def _real(value, source):
     if isinstance(value, complex):
         raise ExpressionError(f"{source!r} gives a complex number, {value}")
+    if isinstance(value, float) and not math.isfinite(value):
+        raise ExpressionError(f"{source!r} gives {value}, not a finite number")
     return value

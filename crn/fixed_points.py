@@ -170,7 +170,9 @@ def _describe(net: Network, point, subspace, exact=None, family=False,
     scale = molecules_per_unit(net)
     labels = np.asarray(net.species_label)
     n_labels = len(net.labels)
-    safe = np.nan_to_num(np.asarray(point, dtype=np.float64))
+    # the searches keep only points >= 0 up to roundoff; clip that roundoff (-1e-17) to 0
+    point = np.maximum(np.asarray(point, dtype=np.float64), 0.0) + 0.0  # + 0.0: no -0.0
+    safe = np.nan_to_num(point)
     totals = np.bincount(labels[labels >= 0], weights=np.maximum(safe, 0)[labels >= 0],
                          minlength=n_labels)
     leading = np.sort(totals)[::-1]
@@ -180,8 +182,7 @@ def _describe(net: Network, point, subspace, exact=None, family=False,
         index = mean_field_consensus_index(labels, n_labels, safe, scale)
         consensus = label_name(net, index)
     if family:
-        return FixedPoint(point=np.asarray(point, dtype=np.float64),
-                          classification="non-isolated",
+        return FixedPoint(point=point, classification="non-isolated",
                           eigenvalues=np.zeros(0, np.complex128),
                           unstable_directions=np.zeros((0, net.n_species)),
                           consensus=None, tie=tie, exact=exact)

@@ -1,6 +1,6 @@
 """Models: the parsed content of a model file, ready for the engines.
 
-:func:`parse_model` turns the text of a TOML model (DESIGN.md format) into a
+:func:`parse_model` turns the text of a TOML model (docs/design.md format) into a
 :class:`Model`; it never touches the file system. Opening files (and running
 trusted Python model files) is :mod:`crn.io.models`' job.
 """
@@ -129,7 +129,10 @@ def parse_overrides(pairs) -> dict[str, float | int]:
         try:
             out[name] = evaluate(value.strip())
         except ExpressionError as err:
-            raise ModelError(f"{name}: {err}", field="--set") from err
+            # a name in the value is not a parameter of the model: the value is simply not a number
+            why = "" if "unknown parameter" in str(err) else f" ({str(err).split(': ', 1)[-1]})"
+            raise ModelError(f"{value.strip()!r} is not a number for parameter {name}{why}",
+                             field="--set") from err
     return out
 
 
@@ -250,7 +253,7 @@ def parse_model(text: str, *, source: str = "<string>", overrides: Mapping | Non
     Parameters
     ----------
     text : str
-        The file's content (DESIGN.md format).
+        The file's content (docs/design.md format).
     source : str
         File name used in error messages.
     overrides : mapping of str to number, optional
@@ -272,6 +275,9 @@ def parse_model(text: str, *, source: str = "<string>", overrides: Mapping | Non
         match = re.search(r"line (\d+)", str(err))
         raise ModelError(f"malformed TOML: {err}", file=source,
                          line=int(match.group(1)) if match else None) from err
+    except RecursionError as err:
+        raise ModelError("malformed TOML: arrays or tables nested too deeply",
+                         file=source) from err
     return _Builder(data, _Locator(text), source).build(dict(overrides or {}))
 
 
@@ -320,11 +326,17 @@ class _Builder:
         if has_protocol:
             rules, transitions, states = self.protocol(initial)
             self.check_mentioned(states, output, majority)
+            self.warn_undeclared(
+                [(r.text, r.line, f"protocol.transitions[{i}]", (r.initiator, r.responder),
+                  (r.outcome.initiator, r.outcome.responder))
+                 for i, r in enumerate(r for r in rules if not r.mirrored)],
+                initial, output, "rule")
             protocol = Protocol(name, states, transitions, initial, output, majority, about)
             network = protocol_to_network(protocol)
             return Model(name, about, self.file, params, network, protocol, tuple(rules))
         reactions, species, volume = self.network(initial, params)
         self.check_mentioned(species, output, majority)
+        self.warn_undeclared(self.reaction_sites, initial, output, "reaction")
         try:
             network = Network.from_reactions(name, species, reactions, volume=volume,
                                              initial=initial, output=output, majority=majority,
@@ -405,6 +417,33 @@ class _Builder:
                 raise self.error(f"state {state!r} appears in no rule and no initial count",
                                  "question", "majority")
 
+    def warn_undeclared(self, sites, initial, output, kind):
+        """Warn once per state a rule names that is neither declared nor made by any rule
+        (it can never be present), and once per unlabelled state a rule makes that is
+        neither declared nor changed by any rule (once made it blocks consensus for good;
+        protocols only: a network's waste species are made and left alone on purpose).
+
+        ``sites`` lists ``(text, line, field, reactants, products)`` in written order.
+        """
+        declared = set(initial) | set(output)
+        made = {s for *_, products in sites for s in products}
+        used = {s for *_, reactants, _ in sites for s in reactants}
+        warned = set()
+        for text, line, where, reactants, products in sites:
+            for s in reactants:
+                if s not in declared and s not in made and s not in warned:
+                    warned.add(s)
+                    self.warn(line, where, f"{kind} {text!r} names state {s!r}, which has no "
+                                           "initial count and no output label and which no "
+                                           f"{kind} makes: it is never present (a typo?)")
+            for s in products:
+                if (kind == "rule" and output and s not in declared and s not in used
+                        and s not in warned):
+                    warned.add(s)
+                    self.warn(line, where, f"{kind} {text!r} makes state {s!r}, which has no "
+                                           f"output label and which no {kind} changes: once "
+                                           "made it stays, and no consensus is possible")
+
     def protocol(self, initial):
         table = self.table("protocol")
         for key in table:
@@ -480,6 +519,7 @@ class _Builder:
         if not isinstance(items, list):
             raise self.error("reactions must be a list", "network", "reactions")
         reactions = []
+        self.reaction_sites = []
         species = list(initial)
         for i, item in enumerate(items):
             where = f"network.reactions[{i}]"
@@ -506,4 +546,5 @@ class _Builder:
             if rate == 0:
                 self.warn(line, where, f"reaction {text!r} has rate 0 and never fires")
             reactions.append(Reaction(reactants, products, rate))
+            self.reaction_sites.append((text, line, where, tuple(reactants), tuple(products)))
         return reactions, tuple(species), volume

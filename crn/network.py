@@ -10,9 +10,12 @@ from __future__ import annotations
 from collections.abc import Mapping, Sequence
 from dataclasses import dataclass, field
 from functools import cached_property
+from typing import TYPE_CHECKING
 
 import numpy as np
-import scipy.sparse as sp
+
+if TYPE_CHECKING:
+    import scipy.sparse as sp
 
 from .errors import ModelError
 from .protocol import is_identifier
@@ -425,6 +428,8 @@ def _replace(net: Network, **changes) -> Network:
 
 
 def _side_matrix(species, counts, n_species):
+    import scipy.sparse as sp
+
     rows, cols = np.nonzero(species >= 0)
     data = counts[rows, cols]
     return sp.csr_matrix(

@@ -3,7 +3,7 @@
 For a network translated from a protocol the state is the vector of fractions
 ``y = x / n`` in the limit n -> infinity; for any other network it is the
 vector of concentrations ``c = x / volume``. Both obey the same mass-action law
-``d/dt y = sum_R k_R nu_R prod_s y_s**r_sR`` (DESIGN.md, Semantics).
+``d/dt y = sum_R k_R nu_R prod_s y_s**r_sR`` (docs/design.md, Semantics).
 
 The law is evaluated in complex form: reactions that share a reactant
 multiset (a *complex*) share one monomial ``psi_c(y) = prod_s y_s**r_sc``, so
@@ -352,6 +352,19 @@ def _consensus_gap(net: Network, scale: float):
     return gap
 
 
+def _clip_roundoff(values: np.ndarray, rtol: float, atol: float) -> np.ndarray:
+    """Set negative values within the integrator's error (roundoff: -1e-17) to 0.
+
+    Fractions and concentrations cannot be negative; the solver's steps can
+    undershoot 0 by about its tolerance. Anything further below 0 is left as it
+    is, so a real failure stays visible.
+    """
+    if not values.size:
+        return values
+    tol = 100.0 * (atol + rtol * float(np.nanmax(np.abs(values))))
+    return np.where((values <= 0) & (values >= -tol), 0.0, values)  # -0.0 too
+
+
 def solve_mean_field(net: Network, *, until=None, times=None, method: str = "LSODA",
                      rtol: float = 1e-10, atol: float = 1e-12,
                      stop_at_consensus: bool = True) -> MeanFieldResult:
@@ -446,7 +459,8 @@ def solve_mean_field(net: Network, *, until=None, times=None, method: str = "LSO
     with np.errstate(over="ignore", invalid="ignore"):
         sol = solve_ivp(system.rhs, (0.0, until), y0, method=method, t_eval=t_eval,
                         events=events, rtol=rtol, atol=atol, **options)
-    values = np.asarray(sol.y, dtype=np.float64).T.reshape(-1, net.n_species)
+    values = _clip_roundoff(np.asarray(sol.y, dtype=np.float64).T.reshape(-1, net.n_species),
+                            rtol, atol)
     shown_t = np.asarray(sol.t, dtype=np.float64)
     horizon_state = values[-1] if values.shape[0] else y0
     if t_eval is not times and shown_t.size and shown_t[-1] == until:

@@ -36,7 +36,11 @@ __all__ = [
     "FIRST_ROUND",
     "stochastic_decisions",
     "configurations",
+    "GAP_FRACTION_RANGE",
 ]
+
+#: The one wording of the gap-fraction range (0, 1): 0 is a tie, 1 leaves no minority.
+GAP_FRACTION_RANGE = "--gap-fraction must lie in (0, 1), strictly between a tie and no minority"
 
 
 def split_counts(n: int, gap: int) -> tuple[int, int]:
@@ -62,8 +66,8 @@ def gap_for_fraction(n: int, fraction: float) -> int:
     tie, which has no right answer to get wrong) is raised to the smallest
     positive gap of n's parity, and a gap above n is lowered to n.
     """
-    if not 0 < fraction <= 1:
-        raise CRNError(f"a gap fraction must lie in (0, 1], got {fraction}")
+    if not 0 < fraction < 1:
+        raise CRNError(f"{GAP_FRACTION_RANGE}, got {fraction}")
     n = int(n)
     target = fraction * n
     low = math.floor(target)
@@ -87,7 +91,7 @@ class InitialSplit:
     def __post_init__(self):
         if self.network.inputs is None:
             raise CRNError("the model asks no majority question ([question] majority = [...]); "
-                           "a sweep needs the two input states")
+                           "setting n and the gap needs the two input states")
 
     def __call__(self, n: int, gap: int) -> Network:
         a, b = self.network.inputs

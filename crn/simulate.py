@@ -11,25 +11,22 @@ from __future__ import annotations
 import importlib
 import math
 import os
+import warnings
 from collections.abc import Callable
 from dataclasses import dataclass, field
 
 import numpy as np
 
+from .engines import ENGINES
 from .engines.base import Trajectory
-from .errors import CRNError
+from .errors import CRNError, WorkerError
 from .network import Network
 from .outcome import NO_CONSENSUS, tally
 from .stats import time_summary
 
 __all__ = ["Ensemble", "SimulationInterrupted", "simulate", "ENGINES", "choose_engine",
-           "default_horizon", "run_chunk", "AUTO_BATCHED_FROM"]
+           "default_horizon", "run_chunk", "probe_scheduler", "AUTO_BATCHED_FROM"]
 
-ENGINES = {
-    "direct": ("crn.engines.direct", "run_direct"),
-    "batched": ("crn.engines.batched", "run_batched"),
-    "reference": ("crn.reference", "run_reference"),
-}
 AUTO_BATCHED_FROM = 100_000
 """Agents from which ``engine="auto"`` runs a protocol with the batched engine."""
 
@@ -70,6 +67,9 @@ class Ensemble:
         Which child stream each run used (0..requested-1; all of them unless interrupted).
     requested : int
         Runs asked for.
+    outcome_labels : tuple of str
+        Every label a run can decide on (the network's output labels), so that
+        :meth:`outcomes` lists the labels no run reached, with 0.
     """
 
     runs: int
@@ -88,6 +88,7 @@ class Ensemble:
     species: tuple
     run_index: np.ndarray = field(default=None)
     requested: int = 0
+    outcome_labels: tuple = ()
 
     @property
     def complete(self) -> bool:
@@ -95,8 +96,12 @@ class Ensemble:
         return self.runs == self.requested
 
     def outcomes(self) -> dict[str, int]:
-        """First-consensus label -> number of runs, with ``"none"`` for no consensus."""
-        out = tally(self.labels)
+        """First-consensus label -> number of runs, with ``"none"`` for no consensus.
+
+        Every label of :attr:`outcome_labels` and ``"none"`` appear, with 0 when no run got it.
+        """
+        out = dict.fromkeys(self.outcome_labels, 0)
+        out.update(tally(self.labels))
         out.setdefault(NO_CONSENSUS, 0)
         return out
 
@@ -106,7 +111,8 @@ class Ensemble:
 
     @classmethod
     def from_trajectories(cls, trajectories, *, engine, seed_entropy, until, species,
-                          times, run_index=None, requested=None) -> Ensemble:
+                          times, run_index=None, requested=None, outcome_labels=()
+                          ) -> Ensemble:
         """Collect runs (in run order) into an ensemble."""
         trajectories = list(trajectories)
         r = len(trajectories)
@@ -128,6 +134,7 @@ class Ensemble:
             run_index=np.arange(r, dtype=np.int64) if run_index is None
             else np.asarray(run_index, dtype=np.int64),
             requested=r if requested is None else int(requested),
+            outcome_labels=tuple(outcome_labels),
         )
 
 
@@ -205,11 +212,30 @@ def _engine(name: str) -> Callable[..., Trajectory]:
 
 
 def run_chunk(net: Network, engine: str, until: float, times, stop_at_consensus: bool,
-              seeds) -> list[Trajectory]:
-    """Run one engine once per child seed (the task sent to pool and cluster workers)."""
+              seeds, run_index: int | None = None) -> list[Trajectory]:
+    """Run one engine once per child seed (the task sent to pool and cluster workers).
+
+    ``run_index`` (the index of the first seed's run) serves the worker-fault test hook.
+    """
+    if run_index is not None and os.environ.get(KILL_WORKER_HOOK):
+        _maybe_die(run_index, len(seeds))
     run = _engine(engine)
     return [run(net, until=until, times=times, rng=np.random.default_rng(s),
                 stop_at_consensus=stop_at_consensus) for s in seeds]
+
+
+def _maybe_die(first: int, size: int) -> None:
+    import signal
+
+    target, _, marker = os.environ[KILL_WORKER_HOOK].partition(":")
+    if not first <= int(target) < first + size:
+        return
+    if marker:
+        try:
+            os.close(os.open(marker, os.O_CREAT | os.O_EXCL | os.O_WRONLY))
+        except FileExistsError:
+            return
+    os.kill(os.getpid(), signal.SIGKILL)
 
 
 def _root(rng) -> np.random.SeedSequence:
@@ -220,12 +246,6 @@ def _root(rng) -> np.random.SeedSequence:
     if rng is None or isinstance(rng, int | np.integer):
         return np.random.SeedSequence(None if rng is None else int(rng))
     raise TypeError(f"`rng` must be a Generator, int, SeedSequence or None, got {type(rng)}")
-
-
-def _ignore_sigint():
-    import signal
-
-    signal.signal(signal.SIGINT, signal.SIG_IGN)
 
 
 def simulate(net: Network, *, runs: int = 1, until: float | None = None, times=None,
@@ -275,7 +295,12 @@ def simulate(net: Network, *, runs: int = 1, until: float | None = None, times=N
     CRNError
         For an unknown engine or an unreachable cluster.
     SimulationInterrupted
-        On Ctrl-C, carrying the finished runs.
+        On Ctrl-C (or SIGTERM under :func:`crn.interrupts.handling`), carrying
+        the finished runs.
+    WorkerError
+        When local worker processes keep dying (a dead worker's runs are rerun
+        up to :data:`POOL_RESTARTS` times first), carrying the finished runs
+        as ``partial``.
 
     References
     ----------
@@ -309,19 +334,14 @@ def simulate(net: Network, *, runs: int = 1, until: float | None = None, times=N
         if cluster is not None:
             _on_cluster(cluster, task, children, done, report)
         elif workers == 1 or runs == 1:
-            for i, child in enumerate(children):
-                try:
-                    done[i] = run_chunk(*task, [child])[0]
-                except SystemError as err:
-                    # Ctrl-C inside a numba kernel surfaces as a SystemError caused by it
-                    if isinstance(err.__cause__, KeyboardInterrupt):
-                        raise KeyboardInterrupt from err
-                    raise
-                report(len(done), runs)
+            _in_thread(task, children, done, report)
         else:
             _on_pool(workers, task, children, done, report)
     except KeyboardInterrupt as err:
         raise SimulationInterrupted(_collect(done, name, root, until, net, times, runs)) from err
+    except WorkerError as err:
+        err.partial = _collect(done, name, root, until, net, times, runs)
+        raise
     return _collect(done, name, root, until, net, times, runs)
 
 
@@ -347,7 +367,7 @@ def _collect(done, name, root, until, net, times, runs) -> Ensemble:
     return Ensemble.from_trajectories([done[i] for i in order], engine=name,
                                       seed_entropy=int(root.entropy), until=until,
                                       species=net.species, times=times, run_index=order,
-                                      requested=runs)
+                                      requested=runs, outcome_labels=net.labels)
 
 
 def _chunks(n_runs: int, workers: int) -> list[range]:
@@ -355,54 +375,138 @@ def _chunks(n_runs: int, workers: int) -> list[range]:
     return [range(i, min(i + size, n_runs)) for i in range(0, n_runs, size)]
 
 
-def _on_pool(workers, task, children, done, report):
-    import multiprocessing
-    from concurrent.futures import FIRST_COMPLETED, ProcessPoolExecutor, wait
+def _in_thread(task, children, done, report):
+    """Run in turn on a helper thread while this thread waits, so that Ctrl-C and SIGTERM
+    (handled in the main thread only) stop the ensemble at once even during a long run.
 
-    context = multiprocessing.get_context("spawn")
-    pool = ProcessPoolExecutor(max_workers=workers, mp_context=context,
-                               initializer=_ignore_sigint)
-    futures = {}
+    The engines' kernels release the GIL; on an interruption the run under way
+    is abandoned (its thread stops after it) and the finished runs are kept.
+    """
+    import queue
+    import threading
+
+    stop = threading.Event()
+    finished: queue.SimpleQueue = queue.SimpleQueue()
+    failure = []
+
+    def work():
+        try:
+            for i, child in enumerate(children):
+                if stop.is_set():
+                    return
+                finished.put((i, run_chunk(*task, [child])[0]))
+        except BaseException as err:  # handed to the waiting thread
+            failure.append(err)
+        finally:
+            finished.put(None)
+
+    thread = threading.Thread(target=work, name="crn-runs", daemon=True)
+    thread.start()
     try:
-        for chunk in _chunks(len(children), workers):
-            futures[pool.submit(run_chunk, *task, [children[i] for i in chunk])] = chunk
+        while True:
+            try:
+                item = finished.get(timeout=0.05)
+            except queue.Empty:
+                continue
+            if item is None:
+                break
+            done[item[0]] = item[1]
+            report(len(done), len(children))
+    except BaseException:
+        stop.set()
+        raise
+    if failure:
+        raise failure[0]
+
+
+POOL_RESTARTS = 3
+"""How many times a local pool whose worker died is replaced before the ensemble gives up."""
+
+KILL_WORKER_HOOK = "CRN_TEST_KILL_WORKER"
+"""Test hook ``RUN[:MARKER]``: a pool worker SIGKILLs itself on starting the chunk holding run
+RUN (once, if the MARKER file does not exist yet; it is then created; always without one)."""
+
+
+def _on_pool(workers, task, children, done, report):
+    """Run the chunks on local processes; a chunk lost with a dead worker is rerun on a new pool.
+
+    A chunk's runs use the chunk's own child streams, so rerunning it gives the
+    same trajectories: the ensemble is the same as if no worker had died.
+    """
+    from concurrent.futures.process import BrokenProcessPool
+
+    chunks = _chunks(len(children), workers)
+    for restart in range(POOL_RESTARTS + 1):
+        todo = [chunk for chunk in chunks if chunk[0] not in done]
+        if not todo:
+            return
+        try:
+            _pool_pass(workers, task, children, todo, done, report)
+            return
+        except BrokenProcessPool as err:
+            lost = sum(len(chunk) for chunk in chunks if chunk[0] not in done)
+            if restart == POOL_RESTARTS:
+                raise WorkerError(
+                    f"worker processes died {restart + 1} times (killed or out of memory); "
+                    f"{len(done)} of {len(children)} runs finished, {lost} lost") from err
+            warnings.warn(f"a worker process died; rerunning its {lost} unfinished runs "
+                          "on their own random streams", RuntimeWarning, stacklevel=2)
+
+
+def _pool_pass(workers, task, children, chunks, done, report):
+    from concurrent.futures import FIRST_COMPLETED, wait
+    from concurrent.futures.process import BrokenProcessPool
+
+    from .workers import process_pool
+
+    with process_pool(workers) as pool:
+        futures = {pool.submit(run_chunk, *task, [children[i] for i in chunk],
+                               run_index=chunk.start): chunk
+                   for chunk in chunks}
         pending = set(futures)
         while pending:
             finished, pending = wait(pending, return_when=FIRST_COMPLETED)
+            broken = None
             for future in finished:
-                for i, trajectory in zip(futures[future], future.result(), strict=True):
+                try:
+                    result = future.result()
+                except BrokenProcessPool as err:
+                    broken = err
+                    continue
+                for i, trajectory in zip(futures[future], result, strict=True):
                     done[i] = trajectory
             report(len(done), len(children))
-    except BaseException:
-        _terminate(pool)
-        # not cancel_futures: after the workers are terminated the pool fails the queued
-        # futures itself, and Python 3.11 errors on failing a future cancelled before.
-        pool.shutdown(wait=False)
-        raise
-    # every future is done: joining is immediate, and leaves no pool thread for exit to trip on
-    pool.shutdown(wait=True)
+            if broken is not None:
+                raise broken
 
 
-def _terminate(pool) -> None:
-    """Stop the pool's worker processes now (on Ctrl-C) instead of after their queued chunks."""
-    terminate = getattr(pool, "terminate_workers", None)  # Python >= 3.14
-    if terminate is not None:
-        terminate()
-        return
-    for process in list((getattr(pool, "_processes", None) or {}).values()):
-        process.terminate()
+def probe_scheduler(address: str) -> None:
+    """Fail fast on a malformed or refused TCP address instead of waiting out Dask's retries.
 
+    Parameters
+    ----------
+    address : str
+        ``tcp://HOST:PORT``, ``tls://HOST:PORT`` or ``HOST:PORT``; other schemes pass unchecked.
 
-def _probe(address: str) -> None:
-    """Fail fast on a refused TCP address instead of waiting out Dask's connect retries."""
+    Raises
+    ------
+    CRNError
+        When a TCP or TLS address has no host or port, or nothing listens there.
+    """
     import socket
     from urllib.parse import urlsplit
 
     parts = urlsplit(address if "://" in address else f"tcp://{address}")
-    if parts.scheme not in ("tcp", "tls") or parts.port is None:
+    if parts.scheme not in ("tcp", "tls"):
         return
     try:
-        socket.create_connection((parts.hostname, parts.port), timeout=5).close()
+        port = parts.port
+    except ValueError:
+        port = None
+    if not parts.hostname or port is None:
+        raise CRNError(f"{address!r} is not a scheduler address; expected tcp://HOST:PORT")
+    try:
+        socket.create_connection((parts.hostname, port), timeout=5).close()
     except OSError as err:
         raise CRNError(f"cannot reach the Dask scheduler at {address}: {err}") from err
 
@@ -410,9 +514,10 @@ def _probe(address: str) -> None:
 def _on_cluster(address, task, children, done, report):
     try:
         from distributed import Client, as_completed
+        from distributed.scheduler import KilledWorker
     except ImportError as err:  # pragma: no cover - dask is a dependency
         raise CRNError("--cluster needs dask.distributed") from err
-    _probe(address)
+    probe_scheduler(address)
     try:
         client = Client(address, timeout="10s", set_as_default=False)
     except (OSError, TimeoutError) as err:
@@ -428,8 +533,16 @@ def _on_cluster(address, task, children, done, report):
             chunk_of[future.key] = chunk
             futures.append(future)
         with client.as_current():
+            # a chunk whose worker dies is rescheduled by the scheduler on another worker
+            # (same child streams, same numbers); one that kills workers repeatedly fails
             for future in as_completed(futures):
-                for i, trajectory in zip(chunk_of[future.key], future.result(), strict=True):
+                try:
+                    result = future.result()
+                except KilledWorker as err:
+                    raise WorkerError(f"cluster workers died running the same runs again and "
+                                      f"again ({err}); {len(done)} of {len(children)} runs "
+                                      "finished") from err
+                for i, trajectory in zip(chunk_of[future.key], result, strict=True):
                     done[i] = trajectory
                 report(len(done), len(children))
     finally:

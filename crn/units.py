@@ -5,7 +5,7 @@ Concentrations (``10nM``), volumes (``5 uL``), bimolecular rate constants
 accepted list is an error whose message lists the accepted units. Copy numbers
 follow ``n = C V N_A`` with the exact SI 2019 Avogadro constant, and one unit
 of parallel time of a protocol built at ``k_phys`` and total concentration
-``C`` lasts ``1 / (k_phys C)`` seconds (DESIGN.md, physical units).
+``C`` lasts ``1 / (k_phys C)`` seconds (docs/design.md, physical units).
 """
 
 from __future__ import annotations
@@ -36,7 +36,14 @@ __all__ = [
     "format_volume",
     "format_time",
     "format_rate_constant",
+    "WET_LAB_CAUTION",
 ]
+
+#: Carried by every output holding wet-lab numbers (text, JSON ``caution``, CSV, figures).
+WET_LAB_CAUTION = ("Wet-lab numbers (copies, concentrations, volumes, times) are predictions of "
+                   "a mathematical model (ideal mass-action kinetics, no leak or strand loss), "
+                   "not measurements: validate them with your lab's own controls and follow its "
+                   "validation and safety practice before relying on them.")
 
 #: Avogadro constant in 1/mol, exact by definition since the 2019 SI.
 AVOGADRO = 6.02214076e23

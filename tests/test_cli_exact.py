@@ -14,9 +14,9 @@ MODELS = Path(__file__).resolve().parents[1] / "models"
 AM = str(MODELS / "approximate_majority.toml")
 
 
-def invoke(args, env=None):
+def invoke(args, env=None, code=0):
     result = CliRunner().invoke(cli, args, catch_exceptions=False, env=env)
-    assert result.exit_code == 0, result.output
+    assert result.exit_code == code, result.output
     return result
 
 
@@ -69,10 +69,10 @@ def test_verify_exact_majority_says_correct():
 
 def test_verify_wrong_protocol_prints_the_path():
     args = ["verify", str(MODELS / "cancel_spread.toml"), "--max-n", "6"]
-    text = invoke(args).stdout
+    text = invoke(args, code=1).stdout  # refuted: exit status 1
     assert "NOT correct" in text and "counterexample at n = 5" in text
     assert "1. X, Y -> B, B" in text
-    out = json.loads(invoke(args + ["--json"]).stdout)
+    out = json.loads(invoke(args + ["--json"], code=1).stdout)
     assert out["correct"] is False
     cx = out["counterexample"]
     assert {"n", "initial", "path"} <= set(cx) and cx["n"] == 5

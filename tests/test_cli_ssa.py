@@ -8,6 +8,7 @@ import json
 import numpy as np
 import pytest
 from click.testing import CliRunner
+from seeds import seed
 
 from crn.cli import cli, main
 from crn.commands.compare import compare_window, disagreement
@@ -50,7 +51,7 @@ def test_ssa_json_same_on_a_dask_cluster():
 def test_ssa_table_seed_entropy_and_csv(tmp_path):
     out = tmp_path / "runs.csv"
     result = invoke(["ssa", AM, *SMALL, "--runs", "12", "--workers", "1", "--csv", str(out)])
-    assert "seed entropy" in result.stderr  # no --seed: the entropy is printed
+    assert "crn: seed " in result.stderr  # no --seed: the entropy is printed
     assert "95% interval" in result.stdout and "consensus time" in result.stdout
     rows = list(csv.DictReader(out.open()))
     assert len(rows) == 12 and rows[0]["run"] == "0"
@@ -59,9 +60,19 @@ def test_ssa_table_seed_entropy_and_csv(tmp_path):
     assert [p.name for p in tmp_path.iterdir()] == ["runs.csv"]  # no temporary file left
 
 
-def test_ssa_reference_engine_runs():
+def test_ssa_reference_engine_runs(tmp_path):
     data = ssa_json("--runs", "2", "--engine", "reference", "--workers", "1", "--until", "5")
     assert data["engine"] == "reference" and data["runs"] == 2
+    # derived (models/birth_death.toml): from x0 = 0, X(t) is Poisson with mean
+    # (birth / death)(1 - e^(-death t)) = 10 (1 - e^-5); the mean of R runs lies within
+    # 3.29 standard errors sqrt(mean / R) of it (two-sided, level 0.001)
+    out, runs = tmp_path / "bd.csv", 80
+    invoke(["ssa", "models/birth_death.toml", "--engine", "reference", "--workers", "1",
+            "--until", "5", "--runs", str(runs), "--seed", str(seed(62)), "--csv", str(out)])
+    finals = np.array([int(r["final_X"]) for r in csv.DictReader(out.open())])
+    mean = 10 * (1 - np.exp(-5.0))
+    assert finals.size == runs
+    assert abs(finals.mean() - mean) < 3.29 * np.sqrt(mean / runs)
 
 
 def test_ssa_bad_input_exits_2(capsys):
@@ -73,7 +84,7 @@ def test_ssa_bad_input_exits_2(capsys):
 
 
 def test_ssa_ctrl_c_reports_finished_runs(monkeypatch, capsys):
-    module = importlib.import_module("crn.commands.ssa")  # the package attribute is the command
+    module = importlib.import_module("crn.simulate")  # the command imports it when it runs
 
     real = module.simulate
 
@@ -106,7 +117,7 @@ def test_compare_json_table_and_plot(tmp_path):
 
 
 def assert_compare_ode_contract(ode):
-    """compare's ``ode`` is the ``crn ode --json`` object (DESIGN.md CLI contract)."""
+    """compare's ``ode`` is the ``crn ode --json`` object (docs/design.md CLI contract)."""
     assert {"times", "fractions", "consensus", "fixed_points"} <= set(ode)
     alone = json.loads(invoke(["ode", AM, *SMALL, "--json"]).stdout)
     # same ODE as `crn ode`; both solves locate the consensus event at rtol 1e-10

@@ -120,7 +120,7 @@ def test_interrupted_time_course_reports_the_finished_runs(monkeypatch, capsys):
 
     from crn.simulate import SimulationInterrupted
 
-    module = importlib.import_module("crn.commands.ssa")
+    module = importlib.import_module("crn.simulate")  # the command imports it when it runs
     real = module.simulate
 
     def interrupted(net, **kw):  # two runs finish (and reach the reduction), then Ctrl-C

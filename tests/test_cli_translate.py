@@ -22,7 +22,7 @@ def test_translate_json_prints_the_contract_object():
     result = run("translate", AM, "--set", "n=100", "--set", "gap=4", "--json")
     assert result.exit_code == 0
     data = json.loads(result.stdout)
-    # DESIGN.md contract: species, initial, volume, reactions [{reactants, products, rate}]
+    # docs/design.md contract: species, initial, volume, reactions [{reactants, products, rate}]
     assert data["species"] == ["X", "Y", "B"]
     assert data["initial"] == {"X": 52, "Y": 48, "B": 0}
     assert data["volume"] == 99

@@ -1,16 +1,21 @@
 """Copy numbers: smallest population for a risk and deadline (crn.copies, crn copies)."""
 
+import functools
 import json
 
+import numpy as np
 import pytest
 from click.testing import CliRunner
+from seeds import seed
 
 from crn.cli import cli, main
-from crn.copies import lattice, physical_outputs, smallest_n
+from crn.copies import Prober, lattice, physical_outputs, smallest_n
 from crn.errors import CRNError
 from crn.exact import exact_outcomes, transient_outcomes
 from crn.io.models import load_model
-from crn.probes import InitialSplit
+from crn.outcome import correct_label
+from crn.probes import InitialSplit, stochastic_decisions
+from crn.stats import wilson_interval
 from crn.units import AVOGADRO
 
 AM = "models/approximate_majority.toml"
@@ -48,7 +53,7 @@ def test_stochastic_search_interval_contains_exact_smallest_n():
     nets = InitialSplit(load_model(AM).network)
     risk = 0.05
     exact_n = _exact_smallest(nets, lattice(0.2), 1 - risk)
-    result = smallest_n(nets, gap_fraction=0.2, risk=risk, method="stochastic", rng=11,
+    result = smallest_n(nets, gap_fraction=0.2, risk=risk, method="stochastic", rng=seed(11),
                         runs_max=4000)
     assert result.low <= exact_n <= result.high, (result.low, exact_n, result.high)
     assert result.ended == "found"
@@ -71,7 +76,7 @@ def test_deadline_search_matches_transient_scan():
 
 
 def test_physical_outputs():
-    # DESIGN.md: n = C V N_A; one unit of parallel time = 1 / (k C) s
+    # docs/design.md: n = C V N_A; one unit of parallel time = 1 / (k C) s
     out = physical_outputs(6022, concentration_molar=1e-8, rate=1e6, parallel_time=20.0)
     assert out["volume_liters"] == pytest.approx(6022 / (1e-8 * AVOGADRO))
     assert out["seconds"] == pytest.approx(2000.0)
@@ -114,3 +119,96 @@ def test_search_records_why_it_ended():
     assert exact_n > 5
     result = smallest_n(nets, gap_fraction=0.2, risk=0.05, method="exact", n_max=5, rng=1)
     assert result.estimate is None and result.ended == "n_max"
+
+
+# --- the reported n is on the safe side -------------------------------------------------------
+
+US = "models/undecided_state.toml"
+DROPLET = "models/droplet_assay.toml"
+
+
+@functools.cache
+def _safe_answer(path, fraction, risk, seed, deadline=None):
+    nets = InitialSplit(load_model(path).network)
+    result = smallest_n(nets, gap_fraction=fraction, risk=risk, deadline=deadline,
+                        method="stochastic", rng=seed, runs_max=4000)
+    return nets, result
+
+
+@pytest.mark.parametrize("path, fraction, risk, deadline", [
+    (AM, 0.2, 0.02, None),      # three-state approximate majority, eventual decision
+    (US, 0.1, 0.05, 30.0),      # undecided-state dynamics, by a deadline
+])
+def test_reported_n_survives_an_independent_check(path, fraction, risk, deadline):
+    # The guarantee: at the reported n the 95% upper bound of P(wrong) lies below the risk and
+    # one lattice step below it does not. Independent check: 20,000 fresh runs at the reported n
+    # with another seed; the true P(wrong) is below the risk, so the Wilson 95% lower bound
+    # (Wilson, JASA 22(158), 1927) of the fresh estimate must lie below it too (it fails with
+    # probability <= 2.5% if the answer were exactly at the risk, far less below it).
+    nets, result = _safe_answer(path, fraction, risk, seed=17, deadline=deadline)
+    assert result.ended == "found" and result.estimate is not None
+    at, below = result.at_estimate, result.at_below
+    assert at.method == "stochastic" and at.p_wrong[2] < risk
+    assert below is not None and below.n == result.estimate - lattice(fraction).step
+    assert below.p_wrong[2] >= risk
+    assert result.low <= result.estimate == result.high
+    net = nets(result.estimate, result.gap_estimate)
+    horizon = deadline if deadline is not None else Prober(nets)._horizon(net, None)
+    labels, times = stochastic_decisions(net, 20_000, horizon, np.random.SeedSequence(90210),
+                                         workers=1)
+    truth = correct_label(net)
+    wrong = sum(1 for label in labels if label != truth)
+    _, low, _ = wilson_interval(wrong, 20_000)
+    assert low < risk, (result.estimate, wrong)
+
+
+def test_reported_n_meets_the_risk_exactly_where_the_chain_fits():
+    # reference: the exact chain (Kemeny-Snell absorption) at the reported n and one step below
+    nets, result = _safe_answer(AM, 0.2, 0.02, seed=17, deadline=None)
+    exact = exact_outcomes(nets(result.estimate, result.gap_estimate), absorb="first")
+    assert 1 - exact.probabilities["X"] < 0.02
+    exact_n = _exact_smallest(nets, lattice(0.2), 0.98)
+    assert exact_n <= result.estimate
+
+
+def test_regime_map_never_flags_misleading_above_the_reported_n():
+    # a cell flagged misleading (P(disagree) surely above the risk) at the same gap fraction
+    # cannot lie at or above the n that copies reports as surely within the risk
+    from crn.regimes import regime_map
+
+    nets = InitialSplit(load_model(DROPLET).network)
+    fraction, risk = 0.2, 0.05
+    result = smallest_n(nets, gap_fraction=fraction, risk=risk, method="stochastic", rng=3)
+    ns = [10, 20, 30, 40, 50, 60, 70, 80, 90, 100, 120, 150]
+    rmap = regime_map(nets, ns, gap_fractions=[fraction], risk=risk, method="stochastic",
+                      runs_max=4000, rng=4, workers=1)
+    flagged = [c.n for c in rmap.cells if c.flag == "misleading"]
+    assert flagged, "the grid must reach into the misleading region for the test to mean much"
+    assert max(flagged) < result.estimate, (flagged, result.estimate)
+    # and the map's ok cells do not all lie below the answer's bracket either
+    assert any(c.flag == "ok" and c.n >= result.estimate for c in rmap.cells)
+
+
+def test_cli_reports_bracket_interval_and_caution():
+    runner = CliRunner()
+    result = runner.invoke(cli, ["copies", AM, "--gap-fraction", "0.2", "--risk", "0.05",
+                                 "--concentration", "10nM", "--rate", "1e6/M/s", "--deadline",
+                                 "1h", "--seed", "4", "--method", "exact", "--json"])
+    assert result.exit_code == 0, result.output
+    data = json.loads(result.output)
+    # issue 16: cautions travel with the wet-lab numbers
+    assert "model" in data["caution"] and "safety" in data["caution"]
+    assert data["volume_liters"] is not None and data["hours"] is not None
+    assert data["bracket"]["passes"] == data["n"]["estimate"]
+    assert data["bracket"]["fails"] == data["n"]["estimate"] - 5
+    assert data["p_wrong"]["high"] < 0.05 <= data["p_wrong_below"]["high"]
+    assert data["loading"] == "fixed" and data["risk_parts"] is None
+    text = runner.invoke(cli, ["copies", AM, "--gap-fraction", "0.2", "--risk", "0.05",
+                               "--concentration", "10nM", "--seed", "4", "--method", "exact"])
+    assert text.exit_code == 0
+    assert "one step below" in text.output and "safety practice" in text.output
+
+
+def test_cli_rejects_unknown_loading(capsys):
+    assert main(["copies", AM, "--gap-fraction", "0.2", "--loading", "binomial"]) == 2
+    assert "--loading" in capsys.readouterr().err

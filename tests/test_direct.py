@@ -1,11 +1,13 @@
 """The direct-method SSA against closed forms and an exact master-equation solution."""
 
 import math
+from pathlib import Path
 
 import numpy as np
 import pytest
 from scipy import stats
 from scipy.linalg import expm
+from seeds import seed
 from ssa_checks import chi_square_pvalue
 
 from crn.engines.direct import dependency_graph, run_direct
@@ -33,8 +35,8 @@ def harmonic(m):
     return sum(1.0 / k for k in range(1, m + 1))
 
 
-def consensus_times(net, runs, seed, until=200.0):
-    children = np.random.SeedSequence(seed).spawn(runs)
+def consensus_times(net, runs, key, until=200.0):
+    children = np.random.SeedSequence(seed(key)).spawn(runs)
     out = np.empty(runs)
     for i, child in enumerate(children):
         run = run_direct(net, until=until, times=[0.0], rng=child, stop_at_consensus=True)
@@ -44,21 +46,23 @@ def consensus_times(net, runs, seed, until=200.0):
 
 
 def test_epidemic_both_orders_mean_time():
-    # derived (REFERENCES.md): both orders infect -> (n-1) H_{n-1} interactions expected,
+    # derived: both orders infect, so from i infected the next infection takes
+    # n (n-1) / (2 i (n-i)) interactions on average; summed over i that is (n-1) H_{n-1},
     # parallel time (n-1) H_{n-1} / n; within 4 standard errors of 3000 runs.
     n = 100
     net = load_model("models/epidemic.toml", {"n": n, "seeds": 1}).network
-    t = consensus_times(net, 3000, seed=11)
+    t = consensus_times(net, 3000, key=11)
     expected = (n - 1) * harmonic(n - 1) / n
     assert abs(t.mean() - expected) < 4 * t.std(ddof=1) / math.sqrt(t.size)
 
 
 def test_epidemic_initiator_only_mean_time():
-    # derived (REFERENCES.md): only the initiator infects -> 2 (n-1) H_{n-1} / n parallel time;
+    # derived: only the initiator infects, so half the infecting pairs of the both-orders
+    # case remain and every wait doubles: 2 (n-1) H_{n-1} / n parallel time;
     # within 4 standard errors of 3000 runs.
     n = 100
     net = parse_model(INITIATOR_ONLY).network
-    t = consensus_times(net, 3000, seed=12, until=400.0)
+    t = consensus_times(net, 3000, key=12, until=400.0)
     expected = 2 * (n - 1) * harmonic(n - 1) / n
     assert abs(t.mean() - expected) < 4 * t.std(ddof=1) / math.sqrt(t.size)
 
@@ -70,24 +74,25 @@ def birth_death(lam, mu, n0):
 
 
 def test_birth_death_stationary_poisson():
-    # derived (REFERENCES.md): 0 -> X (lambda), X -> 0 (mu x) is stationary Poisson(lambda/mu);
-    # from X0 = 0 the law at t is Poisson((lambda/mu)(1 - e^{-mu t})), at t = 15 the mean
-    # differs by 3e-6 relative. Chi-square, alpha = 0.001, 3000 independent runs.
+    # derived: 0 -> X (lambda), X -> 0 (mu x) is stationary Poisson(lambda/mu) (the
+    # immigration-death chain); from X0 = 0 the law at t is Poisson((lambda/mu)(1 - e^{-mu t})),
+    # at t = 15 the mean differs by e^-15 = 3.1e-7 relative. Chi-square, alpha = 0.001,
+    # 3000 independent runs.
     lam, mu = 12.0, 1.0
     net = birth_death(lam, mu, 0)
-    children = np.random.SeedSequence(21).spawn(3000)
+    children = np.random.SeedSequence(seed(21)).spawn(3000)
     x = np.array([run_direct(net, until=15.0, times=[15.0], rng=c).counts[0, 0]
                   for c in children])
     assert chi_square_pvalue(x, lambda k: stats.poisson.pmf(k, lam / mu), 40) > ALPHA
 
 
 def test_birth_death_transient_mean():
-    # derived (REFERENCES.md): E X(t) = n0 e^{-mu t} + (lambda/mu)(1 - e^{-mu t});
+    # derived (immigration-death chain): E X(t) = n0 e^{-mu t} + (lambda/mu)(1 - e^{-mu t});
     # each sample time within 4 standard errors of 2000 runs.
     lam, mu, n0 = 5.0, 0.5, 60
     net = birth_death(lam, mu, n0)
     times = np.array([0.0, 0.5, 1.0, 2.0, 4.0])
-    children = np.random.SeedSequence(22).spawn(2000)
+    children = np.random.SeedSequence(seed(22)).spawn(2000)
     x = np.stack([run_direct(net, until=4.0, times=times, rng=c).counts[:, 0]
                   for c in children])
     assert (x[:, 0] == n0).all()
@@ -98,11 +103,11 @@ def test_birth_death_transient_mean():
 
 
 def test_pure_decay_is_binomial():
-    # derived (REFERENCES.md): X -> 0 at c gives X(t) ~ Binomial(X0, e^{-ct});
+    # derived: X -> 0 at c gives X(t) ~ Binomial(X0, e^{-ct});
     # chi-square, alpha = 0.001, 3000 runs.
     x0, c, t = 40, 0.7, 1.0
     net = Network.from_reactions("decay", ["X"], [Reaction({"X": 1}, {}, c)], initial={"X": x0})
-    children = np.random.SeedSequence(23).spawn(3000)
+    children = np.random.SeedSequence(seed(23)).spawn(3000)
     x = np.array([run_direct(net, until=t, times=[t], rng=ch).counts[0, 0] for ch in children])
     p = math.exp(-c * t)
     assert chi_square_pvalue(x, lambda k: stats.binom.pmf(k, x0, p), x0) > ALPHA
@@ -128,7 +133,7 @@ def test_mixed_orders_match_the_master_equation():
     p0[25] = 1.0
     pt = p0 @ expm(q * t)
     assert 1.0 - pt.sum() < 1e-9
-    children = np.random.SeedSequence(24).spawn(3000)
+    children = np.random.SeedSequence(seed(24)).spawn(3000)
     x = np.array([run_direct(net, until=t, times=[t], rng=ch).counts[0, 0] for ch in children])
     assert chi_square_pvalue(x, lambda k: pt[k], n_max) > ALPHA
 
@@ -162,7 +167,7 @@ def test_stop_at_consensus_and_horizon():
 def test_huge_counts_do_not_overflow():
     # n = 1e9: propensities ~ 1e9 in float64, counts int64; the run keeps the population.
     net = load_model("models/approximate_majority.toml", {"n": 10**9, "gap": 0}).network
-    run = run_direct(net, until=2e-4, times=[0.0, 2e-4], rng=3)
+    run = run_direct(net, until=2e-4, times=[0.0, 2e-4], rng=seed(3))
     assert run.counts[-1].sum() == 10**9
     # derived: total propensity 2 x y / (n - 1) = n / 2 at x = y = n / 2, nearly constant over
     # so short a time, so the events are Poisson with mean (n / 2) t = 1e5; 6 standard deviations
@@ -192,14 +197,49 @@ def test_bad_horizon_is_refused():
 def test_many_reactions_use_the_incremental_total():
     # 80 independent decays X_i -> 0 (more reactions than the kernel re-sums at every event,
     # so the total propensity is kept incrementally): every X_i(t) ~ Binomial(20, e^{-ct})
-    # (derived, REFERENCES.md pure decay); the 80 x 300 counts pooled, chi-square, alpha = 0.001.
+    # (derived: pure decay, each molecule independently); the 80 x 300 counts pooled,
+    # chi-square, alpha = 0.001.
     k, x0, c, t = 80, 20, 0.7, 1.0
     names = [f"X{i}" for i in range(k)]
     net = Network.from_reactions("decays", names, [Reaction({s: 1}, {}, c) for s in names],
                                  initial={s: x0 for s in names})
-    children = np.random.SeedSequence(25).spawn(300)
+    children = np.random.SeedSequence(seed(25)).spawn(300)
     x = np.concatenate([run_direct(net, until=t, times=[t], rng=ch).counts[0] for ch in children])
     p = math.exp(-c * t)
     assert chi_square_pvalue(x, lambda j: stats.binom.pmf(j, x0, p), x0) > ALPHA
     done = run_direct(net, until=1e3, times=[1e3], rng=1)
     assert done.status == "silent" and done.events == k * x0 and done.counts.sum() == 0
+
+
+def _scipy_tables(net):
+    """The dependency graph and change lists as sparse products (how they were first built)."""
+    import scipy.sparse as sp
+
+    changed = (net.stoichiometry != 0).astype(np.int64)
+    uses = (net.reactant_matrix != 0).astype(np.int64)
+    dep = sp.csr_matrix(changed.T @ uses)
+    dep.sort_indices()
+    st = sp.csc_matrix(net.stoichiometry)
+    st.sort_indices()
+    return (dep.indptr, dep.indices, st.indptr, st.indices, np.rint(st.data))
+
+
+@pytest.mark.parametrize("model", ["approximate_majority.toml", "birth_death.toml",
+                                   "cancel_spread.toml", "droplet_assay.toml", "epidemic.toml",
+                                   "exact_majority.toml", "undecided_state.toml", "voter.toml",
+                                   "exact_majority_records.py"])
+@pytest.mark.parametrize("compiled", [False, True])
+def test_compiled_tables_equal_the_sparse_products(model, compiled, monkeypatch):
+    import crn.engines.direct as direct_module
+    from crn.engines.direct import _changes
+
+    # small networks take the kernels' Python versions; force either
+    monkeypatch.setattr(direct_module, "_PYTHON_TABLES_UP_TO", -1 if compiled else 10**9)
+
+    net = load_model(Path(__file__).resolve().parent.parent / "models" / model).network
+    dep_ptr, dep_idx = dependency_graph(net)
+    ch_ptr, ch_sp, ch_d = _changes(net)
+    ref = _scipy_tables(net)
+    for ours, theirs in zip((dep_ptr, dep_idx, ch_ptr, ch_sp, ch_d), ref, strict=True):
+        assert ours.dtype == np.int64
+        assert np.array_equal(ours, np.asarray(theirs, dtype=np.int64))

@@ -6,6 +6,7 @@ from pathlib import Path
 import numpy as np
 import pytest
 from scipy import stats
+from seeds import seed
 
 from crn.configurations import (
     enumerate_configurations,
@@ -116,7 +117,7 @@ def test_cancel_and_spread_can_end_undecided():
 
 @pytest.mark.parametrize("n", [2, 10, 50, 200])
 def test_epidemic_time_is_n_minus_1_harmonic(n):
-    # REFERENCES.md [derived]: both orders infect, so from i infected the next
+    # derived: both orders infect, so from i infected the next
     # infection comes at rate 2 i (n - i) / (n - 1) in parallel time; the mean is
     # (n - 1) H_{n-1} / n and the variance the sum of the squared mean waits
     result = exact_outcomes(model_net("epidemic", n=n))
@@ -146,7 +147,7 @@ def test_exact_agrees_with_stochastic_simulation_at_n_50():
     net = model_net("approximate_majority", n=50, gap=2)
     exact = exact_outcomes(net)
     runs = 4000
-    ensemble = simulate(net, runs=runs, until=500.0, engine="direct", rng=20240601, workers=1,
+    ensemble = simulate(net, runs=runs, until=500.0, engine="direct", rng=seed(20240601), workers=1,
                         stop_at_consensus=True)
     counts = ensemble.outcomes()
     assert counts.get("none", 0) == 0
@@ -221,7 +222,7 @@ def test_first_consensus_matches_stochastic_runs_when_consensus_can_be_lost():
     assert stable.probabilities["Y"] == pytest.approx(1.0, abs=1e-12)
     first = exact_outcomes(net, absorb="first")
     assert sum(first.probabilities.values()) == pytest.approx(1.0, abs=1e-12)
-    runs = simulate(net, runs=4000, rng=20261201, workers=1, engine="direct",
+    runs = simulate(net, runs=4000, rng=seed(20261201), workers=1, engine="direct",
                     stop_at_consensus=True, until=1000.0)
     hits = runs.outcomes().get("X", 0)
     # Wilson interval at 99.9% of the 4000 runs' estimate (alpha = 0.001)

@@ -263,7 +263,7 @@ def _gillespy2_propensities(model, x: dict) -> np.ndarray:
 
 
 def test_gillespy2_mass_action_convention_is_ours():
-    # Checks the DESIGN.md claim against the library itself (gillespy2 core/reaction.py,
+    # Checks the docs/design.md claim against the library itself (gillespy2 core/reaction.py,
     # _create_mass_action): 0 -> X is k * vol, X -> k * x, A + B -> k a b / vol and
     # 2 A -> k a (a - 1) / vol with no 1/2; the library refuses orders above 2.
     import gillespy2

@@ -32,8 +32,7 @@ def test_approximate_majority_equilibria_and_the_tie_saddle(method):
     third = round(1 / 3, 9)
     # derived: dx/dt = x (b - y), dy/dt = y (b - x), b = 1 - x - y. Fixed points need
     # x = 0 or b = y, and y = 0 or b = x: the corners X, Y, B (all blank) and x = y = b = 1/3.
-    # (The issue lists the two consensus corners and the tie point; the all-blank corner is
-    # a fixed point too, since no rule applies to B, B.)
+    # (The all-blank corner is a fixed point too, since no rule applies to B, B.)
     assert set(points) == {(1, 0, 0), (0, 1, 0), (0, 0, 1), (third, third, third)}
     tie = points[(third, third, third)]
     # derived: on the simplex (x, y) with b = 1 - x - y the Jacobian of
@@ -134,7 +133,7 @@ def test_bad_method_is_refused():
 
 def test_equations_as_sympy():
     i, s = sympy.symbols("I S", real=True)
-    # derived (REFERENCES.md): the epidemic with both orders is I + S -> 2 I at rate 2
+    # derived: the epidemic with both orders is I + S -> 2 I at rate 2
     assert mean_field_equations(_load("epidemic")) == {"I": 2 * i * s, "S": -2 * i * s}
     x, y, b = sympy.symbols("X Y B", real=True)
     eqs = mean_field_equations(_load("approximate_majority"))
@@ -166,4 +165,12 @@ def test_an_inert_state_gives_its_own_conservation_law():
     laws = conservation_laws(net)
     assert {"U": 1} in [{k: int(v) for k, v in law.items()} for law in laws]
     assert "dU/dt = 0" in format_equations(net)
-    assert find_fixed_points(net)
+    # derived: with u = 1/10 fixed, x' = x y on x + y = 9/10 rests where x y = 0; at
+    # (x, y) = (9/10, 0) the perturbation y' = -x y decays at rate 9/10 (stable), at
+    # (0, 9/10) x' = x y grows at rate 9/10 (unstable)
+    found = {fp.classification: fp for fp in find_fixed_points(net)}
+    assert set(found) == {"stable", "unstable"}
+    assert found["stable"].exact == {"U": "1/10", "X": "9/10", "Y": "0"}
+    assert found["unstable"].exact == {"U": "1/10", "X": "0", "Y": "9/10"}
+    assert found["stable"].eigenvalues == pytest.approx([-0.9])
+    assert found["unstable"].eigenvalues == pytest.approx([0.9])

@@ -6,6 +6,7 @@ import mpmath
 import numpy as np
 import pytest
 from scipy import stats
+from seeds import seed
 
 from crn.engines.hypergeometric import (
     INVERSION_MODE,
@@ -37,7 +38,7 @@ def _chi_square_pvalue(samples, pmf_values, support):
     [
         (5, 7, 4),  # tiny: inversion
         (3, 997, 500),  # small mode, large population: inversion, sample > half
-        (30, 40, 25),  # mode 10 < 16: inversion
+        (30, 40, 25),  # mode 11 < 16: inversion
         (100, 300, 150),  # ratio of uniforms
         (4000, 1000, 3000),  # ratio of uniforms, more good than bad, sample > half
         (10**6, 3 * 10**6, 1000),  # ratio of uniforms, sample << population
@@ -45,7 +46,7 @@ def _chi_square_pvalue(samples, pmf_values, support):
 )
 def test_univariate_matches_the_exact_pmf(ngood, nbad, nsample):
     # exact pmf: scipy.stats.hypergeom (common practice), chi-square at ALPHA
-    x = hypergeometric(ngood, nbad, nsample, size=DRAWS, rng=ngood + nbad)
+    x = hypergeometric(ngood, nbad, nsample, size=DRAWS, rng=seed(ngood + nbad))
     support = np.arange(max(0, nsample - nbad), min(nsample, ngood) + 1)
     pmf = stats.hypergeom(ngood + nbad, ngood, nsample).pmf(support)
     assert x.min() >= support[0] and x.max() <= support[-1]
@@ -64,7 +65,7 @@ def test_mean_and_variance_at_huge_populations(total):
     # errors of the sample mean and of the sample variance (Var * sqrt(2 / (R - 1)) for a
     # near-normal law; the excess kurtosis here is below 1e-6)
     good, draws = total // 3, total // 5
-    x = hypergeometric(good, total - good, draws, size=DRAWS, rng=7).astype(np.float64)
+    x = hypergeometric(good, total - good, draws, size=DRAWS, rng=seed(7)).astype(np.float64)
     p = good / total
     mean = draws * p
     var = draws * p * (1 - p) * (total - draws) / (total - 1)
@@ -74,7 +75,7 @@ def test_mean_and_variance_at_huge_populations(total):
 
 def test_huge_population_with_a_small_mode_uses_the_exact_tail():
     # derived: 12 good among 2**60 items, half of them drawn: Binomial-like with mean 6
-    x = hypergeometric(12, 2**60 - 12, 2**59, size=DRAWS, rng=3)
+    x = hypergeometric(12, 2**60 - 12, 2**59, size=DRAWS, rng=seed(3))
     support = np.arange(13)
     pmf = stats.binom(12, 0.5).pmf(support)  # exact in the limit; error ~ 12 / 2**59
     assert _chi_square_pvalue(x, pmf, support) > ALPHA
@@ -83,7 +84,7 @@ def test_huge_population_with_a_small_mode_uses_the_exact_tail():
 def test_multivariate_marginals_and_sums():
     # derived: each colour's count is hypergeometric(draws, colour, total)
     colors = np.array([20, 5, 35, 40])
-    x = multivariate_hypergeometric(colors, 30, size=DRAWS, rng=11)
+    x = multivariate_hypergeometric(colors, 30, size=DRAWS, rng=seed(11))
     assert (x.sum(axis=1) == 30).all() and (x <= colors).all()
     for i, ci in enumerate(colors):
         support = np.arange(0, min(30, ci) + 1)
@@ -94,7 +95,7 @@ def test_multivariate_marginals_and_sums():
 def test_multivariate_joint_law_on_a_small_urn():
     # exact joint pmf: scipy.stats.multivariate_hypergeom (common practice)
     colors = [3, 4, 5]
-    x = multivariate_hypergeometric(colors, 6, size=DRAWS, rng=12)
+    x = multivariate_hypergeometric(colors, 6, size=DRAWS, rng=seed(12))
     cells = [(a, b, 6 - a - b) for a in range(4) for b in range(5) if 0 <= 6 - a - b <= 5]
     pmf = np.array([stats.multivariate_hypergeom(colors, 6).pmf(c) for c in cells])
     codes = x[:, 0] * 100 + x[:, 1] * 10 + x[:, 2]
@@ -104,7 +105,7 @@ def test_multivariate_joint_law_on_a_small_urn():
 
 def test_multivariate_at_two_to_the_sixty():
     colors = [2**59, 2**58, 2**58 - 7, 7]
-    x = multivariate_hypergeometric(colors, 2**50, size=2000, rng=13)
+    x = multivariate_hypergeometric(colors, 2**50, size=2000, rng=seed(13))
     assert (x.sum(axis=1) == 2**50).all()
     x = x.astype(float)
     # derived: mean of colour i is draws * c_i / N, sd below sqrt(draws * c_i / N)

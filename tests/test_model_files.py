@@ -95,7 +95,7 @@ def test_record_model_refuses_odd_splits():
 
 
 def test_birth_death_is_a_network_with_the_documented_propensities():
-    # derived (REFERENCES.md birth-death): at volume 1, 0 -> X fires at `birth`, X -> 0 at
+    # derived (birth-death): at volume 1, 0 -> X fires at `birth`, X -> 0 at
     # death * x; stationary mean birth / death.
     model = load_model(MODELS / "birth_death.toml", {"birth": 6.0, "death": 2.0, "x0": 3})
     net = model.network
@@ -105,7 +105,7 @@ def test_birth_death_is_a_network_with_the_documented_propensities():
 
 
 def test_epidemic_is_symmetric():
-    # REFERENCES.md [derived]: both orders infect, so one reaction I + S -> 2 I of rate 2
+    # derived: both orders infect, so one reaction I + S -> 2 I of rate 2
     net = load_model(MODELS / "epidemic.toml", {"n": 10}).network
     assert reaction_set(net) == [((("I", 1), ("S", 1)), (("I", 2),), 2.0)]
     assert list(net.initial) == [1, 9]

@@ -42,7 +42,7 @@ def _finite_difference_jacobian(f, y, h=1e-6):
 @pytest.mark.parametrize("method", ["LSODA", "BDF", "Radau", "DOP853"])
 @pytest.mark.parametrize("given_times", [False, True])
 def test_epidemic_matches_logistic_closed_form(method, given_times):
-    # derived (REFERENCES.md, epidemic with both orders): the network is I + S -> 2 I at
+    # derived (epidemic with both orders): the network is I + S -> 2 I at
     # rate 2, so in fractions df/dt = 2 f (1 - f), solved by separation of variables:
     # f(t) = f0 e^{2t} / (1 - f0 + f0 e^{2t}).
     net = _load("epidemic", n=1000, seeds=1)
@@ -199,7 +199,7 @@ def test_times_past_consensus_are_dropped_unless_asked_to_continue():
 
 
 def test_network_in_concentrations_matches_birth_death_mean():
-    # derived (REFERENCES.md, birth-death): 0 -> X at lambda (per unit volume), X -> 0 at mu:
+    # derived (birth-death): 0 -> X at lambda (per unit volume), X -> 0 at mu:
     # dc/dt = lambda - mu c, so c(t) = c0 e^{-mu t} + (lambda/mu)(1 - e^{-mu t}).
     lam, mu, volume = 3.0, 0.5, 2.5
     net = Network.from_reactions("birth-death", ["X"], [Reaction({}, {"X": 1}, lam),
@@ -288,7 +288,7 @@ def test_agrees_with_gillespy2_ode_solver(net):
 def test_one_silent_agent_forever_blocks_consensus(method, n):
     # derived: with X, Y -> X, X and one inert agent U that reports nothing, the U
     # fraction stays exactly 1/n, i.e. exactly one molecule: never fewer than one
-    # (DESIGN.md), so the mean field never reaches consensus, whatever the integrator.
+    # (docs/design.md), so the mean field never reaches consensus, whatever the integrator.
     protocol = Protocol("spread", ("X", "Y", "U"), {("X", "Y"): (Outcome("X", "X"),)},
                         {"X": n // 2, "Y": n - n // 2 - 1, "U": 1}, {"X": "X", "Y": "Y"})
     result = solve_mean_field(protocol_to_network(protocol), until=200.0, method=method)
@@ -297,7 +297,7 @@ def test_one_silent_agent_forever_blocks_consensus(method, n):
 
 
 def test_final_label_is_taken_at_the_horizon_not_at_the_last_requested_time():
-    # derived: approximate majority from 60% X reaches consensus near t = 12 (ODE), so
+    # derived: approximate majority from 60% X reaches consensus at t = 13.11 (ODE), so
     # with times up to 2 and a horizon of 100 the state at the horizon is all X.
     net = _load("approximate_majority", n=1000, gap=200)
     result = solve_mean_field(net, until=100.0, times=[0.0, 1.0, 2.0], stop_at_consensus=False)

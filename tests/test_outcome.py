@@ -33,7 +33,7 @@ def test_mean_field_consensus_is_fewer_than_one_other_molecule():
     net = _am()
     labels, k = net.species_label, len(net.labels)
     n = 1000
-    # DESIGN.md: others must add up to fewer than one molecule (fraction < 1/n)
+    # docs/design.md: others must add up to fewer than one molecule (fraction < 1/n)
     assert mean_field_consensus_index(labels, k, np.array([1 - 0.9 / n, 0, 0.9 / n]), n) == 0
     assert mean_field_consensus_index(labels, k, np.array([1 - 1.1 / n, 0.6 / n, 0.5 / n]), n) == -1
     assert mean_field_consensus_index(labels, k, np.array([0.2 / n, 1 - 0.2 / n, 0]), n) == 1

@@ -2,6 +2,7 @@
 
 import numpy as np
 import pytest
+from seeds import seed
 
 from crn.errors import CRNError
 from crn.io.models import load_model
@@ -24,9 +25,9 @@ def mixed_order_network():
 
 
 def test_propensities_agree_at_random_states():
-    # derived: both sides must give k * prod x(x-1)..(x-r+1) / v**(order-1) (DESIGN.md);
+    # derived: both sides must give k * prod x(x-1)..(x-r+1) / v**(order-1) (docs/design.md);
     # compared to 1e-12 relative (floating-point evaluation order only).
-    rng = np.random.default_rng(2024)
+    rng = np.random.default_rng(seed(2024))
     nets = [mixed_order_network(),
             load_model("models/approximate_majority.toml", {"n": 1000, "gap": 10}).network,
             load_model("models/exact_majority.toml", {"n": 100, "gap": 2}).network]
@@ -59,7 +60,7 @@ def test_run_reference_pure_decay_is_binomial_in_mean():
     # mean within 4 standard errors of X0 e^{-ct}.
     net = Network.from_reactions("decay", ["X"], [Reaction({"X": 1}, {}, 1.0)],
                                  initial={"X": 20})
-    children = np.random.SeedSequence(7).spawn(300)
+    children = np.random.SeedSequence(seed(7)).spawn(300)
     finals = np.array([run_reference(net, until=1.0, times=[0.0, 0.5, 1.0], rng=c,
                                      solver="numpy").counts[-1, 0] for c in children])
     p = np.exp(-1.0)

@@ -266,7 +266,7 @@ def test_level_3_stoichiometry_left_out_is_refused_by_name():
         network_from_sbml(text)
 
 
-# -- laws in equivalent forms (4.11.5), read under DESIGN.md's propensity convention ------------
+# -- laws in equivalent forms (4.11.5), read under docs/design.md's propensity convention ---------
 
 
 @pytest.mark.parametrize("reactants, formula, only_amounts, rate", [
@@ -337,7 +337,7 @@ def test_reversible_law_is_refused_with_a_hint():
 
 def test_export_validates_and_libsbml_evaluates_the_same_propensities():
     """libsbml's own evaluator (SBMLTransforms.evaluateASTNode) reads every kinetic law of the
-    export at a few states; it must give this project's propensities (DESIGN.md convention)."""
+    export at a few states; it must give this project's propensities (docs/design.md convention)."""
     import libsbml
 
     net = Network.from_reactions("mix", ["A", "B", "C"], [

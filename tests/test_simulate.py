@@ -4,6 +4,7 @@ import math
 
 import numpy as np
 import pytest
+from seeds import seed
 from ssa_checks import two_sample_chi_square_pvalue
 
 from crn.errors import CRNError
@@ -89,13 +90,12 @@ def test_engine_choice_and_horizon(am_net):
     assert choose_engine(am_net) == "direct"
     with pytest.raises(CRNError, match="unknown engine"):
         choose_engine(am_net, "fast")
-    big = am_net.with_initial({"X": AUTO_BATCHED_FROM, "Y": AUTO_BATCHED_FROM})
-    try:
-        import crn.engines.batched  # noqa: F401
-
-        assert choose_engine(big) == "batched"
-    except ImportError:
-        assert choose_engine(big) == "direct"
+    # documented rule: batched for a protocol from AUTO_BATCHED_FROM = 100,000 agents on
+    big = am_net.with_initial({"X": AUTO_BATCHED_FROM // 2, "Y": AUTO_BATCHED_FROM // 2})
+    assert AUTO_BATCHED_FROM == 100_000 and big.population == AUTO_BATCHED_FROM
+    assert choose_engine(big) == "batched"
+    below = am_net.with_initial({"X": AUTO_BATCHED_FROM // 2, "Y": AUTO_BATCHED_FROM // 2 - 1})
+    assert choose_engine(below) == "direct"
     # documented rule: 20 (1 + ln n) parallel time for a protocol
     assert default_horizon(am_net) == pytest.approx(20 * (1 + math.log(120)))
     with pytest.raises(ValueError, match="runs"):
@@ -110,10 +110,10 @@ def test_direct_and_reference_engines_agree_in_distribution():
     net = load_model("models/approximate_majority.toml", {"n": 40, "gap": 4}).network
     times = [0.0, 1.0, 2.0]
     x = net.index["X"]
-    ours = simulate(net, runs=400, until=2.0, times=times, engine="direct", rng=31, workers=1)
+    ours = simulate(net, runs=400, until=2.0, times=times, engine="direct", rng=seed(31), workers=1)
     ref = np.array([run_reference(net, until=2.0, times=times, rng=child,
                                   solver="numpy").counts[-1, x]
-                    for child in np.random.SeedSequence(32).spawn(400)])
+                    for child in np.random.SeedSequence(seed(32)).spawn(400)])
     assert two_sample_chi_square_pvalue(ours.counts[:, -1, x], ref) > ALPHA
 
 
@@ -125,8 +125,8 @@ def test_direct_and_batched_engines_agree_in_distribution():
 
     net = load_model("models/approximate_majority.toml", {"n": 1000, "gap": 20}).network
     common = dict(runs=600, until=80.0, times=[0.0, 3.0], workers=1)
-    direct = simulate(net, engine="direct", rng=41, **common)
-    batched = simulate(net, engine="batched", rng=42, **common)
+    direct = simulate(net, engine="direct", rng=seed(41), **common)
+    batched = simulate(net, engine="batched", rng=seed(42), **common)
     assert batched.engine == "batched"
     assert direct.outcomes()["none"] == 0 and batched.outcomes()["none"] == 0
     assert stats.ks_2samp(direct.consensus_times, batched.consensus_times).pvalue > ALPHA

@@ -46,3 +46,13 @@ def test_time_summary_ignores_runs_without_consensus():
     assert summary == pytest.approx({"mean": 2.5, "median": 2.5, "q05": 1.15, "q95": 3.85},
                                     rel=1e-12)
     assert time_summary([np.nan]) is None
+
+
+def test_stored_normal_quantiles_are_scipys_to_the_last_bit():
+    from scipy.special import ndtri
+    from scipy.stats import norm
+
+    from crn.stats import _NORMAL_QUANTILES
+
+    for confidence, z in _NORMAL_QUANTILES.items():
+        assert z == float(ndtri(0.5 + confidence / 2)) == float(norm.ppf(0.5 + confidence / 2))

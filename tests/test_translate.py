@@ -48,7 +48,7 @@ def configurations(k, n):
 
 
 def protocol_generator(protocol: Protocol):
-    """CTMC generator of the continuous-time protocol, straight from DESIGN.md's semantics:
+    """CTMC generator of the continuous-time protocol, straight from docs/design.md's semantics:
     interactions at rate n, the ordered pair of distinct agents uniform over n(n-1), each
     outcome applied with its probability (the rest null)."""
     states = protocol.states
@@ -105,7 +105,7 @@ def test_reactions_conserve_two_agents_and_rates_add_up_to_pair_probability(prot
     for r in net.reactions():
         assert r.order == 2 and sum(r.products.values()) == 2
         assert Counter(r.reactants) != Counter(r.products)  # null reactions are dropped
-    # derived (DESIGN.md translation): the multiset {p, q} collects the non-null outcome
+    # derived (docs/design.md translation): the multiset {p, q} collects the non-null outcome
     # probability of the ordered pair (p, q) and, when p != q, of (q, p)
     expected = Counter()
     for (p, q), outcomes in protocol.transitions.items():
@@ -123,7 +123,7 @@ def test_reactions_conserve_two_agents_and_rates_add_up_to_pair_probability(prot
 @settings(max_examples=60, deadline=None)
 @given(protocols())
 def test_network_chain_equals_protocol_chain_entry_by_entry(protocol):
-    # DESIGN.md: with volume n - 1 the network's CTMC is exactly the continuous-time protocol
+    # docs/design.md: with volume n - 1 the network's CTMC is exactly the continuous-time protocol
     configs, q_protocol = protocol_generator(protocol)
     net = protocol_to_network(protocol)
     assert net.volume == protocol.population - 1
@@ -192,7 +192,7 @@ def test_propensity_convention_of_condon_et_al():
 
 
 def test_epidemic_both_orders_merge_into_one_reaction_of_rate_two():
-    # REFERENCES.md [derived]: with both orders infecting, the mean field is
+    # derived: with both orders infecting, the mean field is
     # dy/dt = 2 y (1 - y), i.e. one reaction I + S -> 2 I of rate 2 (the two ordered pairs)
     p = Protocol("e", ("I", "S"), {("I", "S"): (Outcome("I", "I"),),
                                    ("S", "I"): (Outcome("I", "I"),)}, {"I": 1, "S": 9})

@@ -25,7 +25,7 @@ from crn.units import (
 
 
 def test_one_nanomolar_in_one_microlitre():
-    # REFERENCES.md Units: N_A = 6.02214076e23 /mol exact since the 2019 SI (IUPAC Gold Book);
+    # N_A = 6.02214076e23 /mol exact since the 2019 SI (IUPAC Gold Book);
     # 1 nM in 1 uL = 6.02214076e8 molecules
     assert AVOGADRO == 6.02214076e23
     n = copies(parse_concentration("1nM"), parse_volume("1uL"))
@@ -104,7 +104,7 @@ def test_conversions_round_trip(conc, vol):
 
 
 def test_parallel_time_unit():
-    # DESIGN.md physical units: one unit of parallel time = 1 / (k_phys C) seconds;
+    # docs/design.md physical units: one unit of parallel time = 1 / (k_phys C) seconds;
     # derived: k = 1e6 /M/s, C = 10 nM -> 100 s
     assert seconds_per_parallel_time(1e6, 1e-8) == pytest.approx(100.0, rel=1e-15)
     assert to_seconds(36.0, 1e6, 1e-8) == pytest.approx(3600.0)

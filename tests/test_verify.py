@@ -22,7 +22,8 @@ def cases(max_n):
 
 
 def test_four_state_exact_majority_is_correct_up_to_12():
-    # Mertzios, Nikoletseas, Raptopoulos, Spirakis, ICALP 2014: always correct
+    # Mertzios, Nikoletseas, Raptopoulos, Spirakis, ICALP 2014: always correct on any
+    # connected interaction graph, so on the complete graph too
     result = verify(load("exact_majority"), 12)
     assert result.correct and result.counterexample is None
     assert result.checked == cases(12)
@@ -97,8 +98,10 @@ def test_cancel_and_spread_is_refuted_and_the_path_replays():
 
 @pytest.mark.parametrize("name", ["approximate_majority", "voter"])
 def test_small_protocols_are_refuted(name):
-    # Mertzios et al. 2014: no protocol with fewer than four states computes exact
-    # majority; derived: with 1 X and 2 Y the lone X converts both Ys first
+    # Mertzios et al. 2014 prove that no protocol with fewer than four states computes exact
+    # majority on every interaction graph; that bound is over all graphs, so it does not by
+    # itself refute these protocols on the complete graph used here. The refutation is the
+    # counterexample, derived: with 1 X and 2 Y the lone X can convert both Ys first
     result = verify(load(name), 5)
     cx = result.counterexample
     assert not result.correct and cx["n"] == 3

@@ -3,19 +3,26 @@
 from __future__ import annotations
 
 import click
-import numpy as np
 
 from .implementing import dna_options, dna_settings, implement_option
 from .options import (
-    OUTPUT_FILE,
+    FIGURE_FILE,
     emit_json,
     json_option,
+    lab_time_options,
     load,
     model_argument,
+    seconds_per_time,
     seed_option,
     set_option,
 )
-from .ssa import _finish_interrupted, ensemble_options, ensemble_summary, run_ensemble
+from .ssa import (
+    _finish_interrupted,
+    ensemble_options,
+    ensemble_summary,
+    horizon_text,
+    run_ensemble,
+)
 
 __all__ = ["compare", "compare_window", "disagreement"]
 
@@ -46,16 +53,20 @@ def disagreement(labels, ode_label) -> tuple[float, float, float]:
 @ensemble_options
 @seed_option
 @json_option
-@click.option("--plot", "plot_path", type=OUTPUT_FILE, default=None,
-              help="Write the figure (ODE over the stochastic mean and 5-95% band).")
+@click.option("--plot", "plot_path", type=FIGURE_FILE, default=None,
+              help="Write the figure (ODE over the stochastic mean and 5-95% band; png, pdf, "
+                   "svg, ...).")
+@lab_time_options
 @implement_option
 @dna_options
-def compare(model, sets, runs, until, engine, workers, cluster, seed, as_json, plot_path,
-            implement, fuel, max_rate, toehold, leak, rate, concentration):
+def compare(model, sets, runs, until, engine, workers, cluster, max_memory, force, seed, as_json,
+            plot_path, implement, fuel, max_rate, toehold, leak, rate, concentration):
     """Put MODEL's mean-field ODE next to its exact stochastic runs: each label's
     probability (95% Wilson interval) beside the ODE's label, consensus-time quantiles
     beside the ODE's time, and how often a run disagrees with the ODE. With --implement:
     the formal ODE, the DNA implementation's ODE and its stochastic runs side by side."""
+    import numpy as np
+
     from ..fixed_points import find_fixed_points
     from ..ode import solve_mean_field
     from ..simulate import default_horizon
@@ -73,6 +84,7 @@ def compare(model, sets, runs, until, engine, workers, cluster, seed, as_json, p
                             plot_path=plot_path)
         return
     net = loaded.network
+    seconds = seconds_per_time(net, rate, concentration)
     horizon = default_horizon(net) if until is None else float(until)
     ode_first = solve_mean_field(net, until=horizon)
     window = compare_window(ode_first.consensus.time, horizon)
@@ -80,11 +92,12 @@ def compare(model, sets, runs, until, engine, workers, cluster, seed, as_json, p
     ode = solve_mean_field(net, times=times, until=window, stop_at_consensus=False)
     ensemble, interrupted = run_ensemble(net, runs=runs, until=horizon, engine=engine,
                                          seed=seed, workers=workers, cluster=cluster,
-                                         as_json=as_json, times=times)
+                                         as_json=as_json, times=times,
+                                         max_memory=max_memory, force=force)
     ode_label, ode_time = ode_first.consensus.label, ode_first.consensus.time
     differ = disagreement(ensemble.labels, ode_label)
     if plot_path is not None and ensemble.runs:
-        _write_plot(plot_path, ode, ensemble, differ, loaded.name)
+        _write_plot(plot_path, ode, ensemble, differ, loaded.name, seconds)
     if as_json:
         # the sampled window (the figure's curves) with the consensus the disagreement uses
         ode_obj = mean_field_json(loaded, ode, find_fixed_points(net),
@@ -98,7 +111,7 @@ def compare(model, sets, runs, until, engine, workers, cluster, seed, as_json, p
         })
     else:
         lines = [f"{loaded.name}: ODE vs {ensemble.runs} stochastic runs "
-                 f"(engine {ensemble.engine}, horizon {ensemble.until:.4g})",
+                 f"(engine {ensemble.engine}, horizon {horizon_text(ensemble.until, net)})",
                  f"{'label':<10} {'ODE':>5} {'runs':>7} {'probability':>12}   95% interval"]
         outcomes = ensemble.outcomes()
         for label in sorted(set(outcomes) | ({ode_label} - {None}),
@@ -122,7 +135,7 @@ def compare(model, sets, runs, until, engine, workers, cluster, seed, as_json, p
         _finish_interrupted(ensemble)
 
 
-def _write_plot(path, ode, ensemble, differ, name):
+def _write_plot(path, ode, ensemble, differ, name, seconds=None):
     import matplotlib
 
     matplotlib.use("Agg")
@@ -133,7 +146,7 @@ def _write_plot(path, ode, ensemble, differ, name):
 
     ax = plot_compare(ode, ensemble, disagreement=differ,
                       title=f"{name}\nmean field vs {ensemble.runs} exact stochastic runs "
-                            f"({ensemble.engine})")
+                            f"({ensemble.engine})", seconds_per_time=seconds)
     try:
         save_figure(path, ax.figure, dpi=120)
     finally:

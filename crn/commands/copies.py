@@ -4,10 +4,10 @@ from __future__ import annotations
 
 import click
 
-from ..copies import physical_outputs, smallest_n
 from ..errors import CRNError
 from ..units import (
-    AVOGADRO,
+    WET_LAB_CAUTION,
+    concentration_for,
     format_concentration,
     format_time,
     format_volume,
@@ -15,12 +15,16 @@ from ..units import (
     parse_rate_constant,
     parse_time,
     parse_volume,
+    to_parallel_time,
 )
 from .implementing import dna_only_options, dna_settings, implement_option
-from .options import emit_json, json_option, model_argument, seed_option, set_option
+from .options import emit_json, json_option, model_argument, seed_notice, seed_option, set_option
 from .regimes import cell_networks
 
 __all__ = ["copies", "parse_deadline"]
+
+#: :data:`crn.loading.LOADINGS`, repeated here so that start-up imports no numpy (tested).
+LOADINGS = ("fixed", "poisson")
 
 
 def parse_deadline(text: str | None):
@@ -40,7 +44,7 @@ def parse_deadline(text: str | None):
 @model_argument
 @set_option
 @click.option("--gap-fraction", type=float, default=None, metavar="F",
-              help="Gap as a fraction of the population (e.g. 0.05).")
+              help="Gap as a fraction of the population, in (0, 1) (e.g. 0.05).")
 @click.option("--gap", type=click.IntRange(min=0), default=None, metavar="G",
               help="A fixed gap in molecules.")
 @click.option("--risk", type=click.FloatRange(0, 1, min_open=True, max_open=True), default=0.01,
@@ -59,21 +63,27 @@ def parse_deadline(text: str | None):
 @click.option("--runs-max", type=click.IntRange(min=1), default=4000, show_default=True,
               help="Most stochastic runs per probed population.")
 @click.option("--method", type=click.Choice(["auto", "exact", "stochastic"]), default="auto",
-              show_default=True)
-@seed_option
+              show_default=True, help="Exact analysis, stochastic runs, or exact when small.")
+@click.option("--loading", type=click.Choice(list(LOADINGS)), default="fixed", show_default=True,
+              help="fixed: every droplet holds exactly n, split by the gap. poisson: n and the "
+                   "gap are means, each input's count in a droplet is Poisson; the risk is "
+                   "integrated over the loading and split into loading and kinetics.")
+@seed_option(workers=False)
 @json_option
 @implement_option
 @dna_only_options
 def copies(model, sets, gap_fraction, gap, risk, deadline, concentration, volume, rate, n_max,
-           runs_max, method, seed, as_json, implement, fuel, max_rate, toehold, leak):
+           runs_max, method, loading, seed, as_json, implement, fuel, max_rate, toehold, leak):
     """Smallest number of agents (molecules) of MODEL that reach the correct consensus by the
-    deadline with probability at least 1 - risk, with an interval for sampling error (per
-    population a 95% interval, simultaneous over the sequential looks (Clopper-Pearson,
-    Bonferroni)); and
-    with physical options the concentration or volume and the time in seconds and hours.
-    With --implement (needs --rate and --concentration or --volume) the search runs on the
-    DNA implementation, beside the formal answer: more copies, a later decision, or no
-    droplet size at all and why (fuel runs out, leak dominates)."""
+    deadline with probability at least 1 - risk, on the safe side: the 95% upper bound of the
+    risk at the reported n lies below --risk (per population a 95% interval, simultaneous over
+    the sequential looks, Clopper-Pearson with Bonferroni), and one lattice step below it does
+    not. With physical options: the concentration or volume and the time in seconds and hours.
+    With --implement the search runs on the DNA implementation, beside the formal answer:
+    more copies, a later decision, or no droplet size at all and why (fuel runs out, leak
+    dominates)."""
+    from ..copies import physical_outputs, smallest_n
+
     settings = dna_settings(implement, fuel=fuel, max_rate=max_rate, toehold=toehold,
                             leak=leak, rate=rate, concentration=concentration)
     if (gap_fraction is None) == (gap is None):
@@ -89,27 +99,34 @@ def copies(model, sets, gap_fraction, gap, risk, deadline, concentration, volume
             raise CRNError("a deadline in physical time needs --rate and --concentration or "
                            "--volume (to convert it into parallel time)")
         if conc is not None:
-            parallel_deadline = deadline_seconds * k * conc
+            parallel_deadline = to_parallel_time(deadline_seconds, k, conc)
         else:
             # a fixed volume: the concentration, and so the time unit, grows with n
             def parallel_deadline(n, _s=deadline_seconds, _k=k, _v=vol):
-                return _s * _k * n / (_v * AVOGADRO)
+                return to_parallel_time(_s, _k, concentration_for(n, _v))
     model_obj, networks = cell_networks(model, sets)
     answer = None
-    if settings is None:
-        result = smallest_n(networks, gap_fraction=gap_fraction, gap=gap, risk=risk,
-                            deadline=parallel_deadline, n_max=n_max, method=method,
-                            runs_max=runs_max, rng=seed, workers=1)
-    else:
-        from ..design_questions import implementation_copies
-        from .implementing import implementation_errors
+    try:
+        if settings is None:
+            result = smallest_n(networks, gap_fraction=gap_fraction, gap=gap, risk=risk,
+                                deadline=parallel_deadline, n_max=n_max, method=method,
+                                runs_max=runs_max, rng=seed, workers=1, loading=loading,
+                                scale_deadline=deadline_seconds is not None)
+        else:
+            from ..design_questions import implementation_copies
+            from .implementing import implementation_errors
 
-        answer = implementation_errors(
-            implementation_copies, networks, *settings,
-            volume_liters=vol if conc is None else None, gap_fraction=gap_fraction, gap=gap,
-            risk=risk, deadline=parallel_deadline, n_max=n_max, method=method,
-            runs_max=runs_max, rng=seed, workers=1)
-        result = answer.implemented
+            answer = implementation_errors(
+                implementation_copies, networks, *settings,
+                volume_liters=vol if conc is None else None, gap_fraction=gap_fraction,
+                gap=gap, risk=risk, deadline=parallel_deadline, n_max=n_max, method=method,
+                runs_max=runs_max, rng=seed, workers=1)
+            result = answer.implemented
+    except KeyboardInterrupt:
+        from .options import stop_interrupted
+
+        stop_interrupted("before the search finished; no answer (an unfinished search has no "
+                         "safe n to report)")
     phys = physical_outputs(result.estimate, concentration_molar=conc, volume_liters=vol,
                             rate=k, parallel_time=result.median_time)
     bounds = {}
@@ -134,13 +151,19 @@ def copies(model, sets, gap_fraction, gap, risk, deadline, concentration, volume
             "seconds": phys["seconds"],
             "hours": phys["hours"],
             "method": result.method,
+            "loading": result.loading,
+            "bracket": {"passes": result.estimate, "fails": result.below},
+            "p_wrong": _p_wrong(result.at_estimate),
+            "p_wrong_below": _p_wrong(result.at_below),
+            "risk_parts": _risk_parts(result.at_estimate),
             "seed": result.seed_entropy,
             "probes": [p.__dict__ for p in result.probes],
+            "caution": WET_LAB_CAUTION,
             **({} if answer is None else _implementation_json(answer, settings)),
         })
         return
     if seed is None:
-        click.echo(f"crn: seed {result.seed_entropy}", err=True)
+        seed_notice(result.seed_entropy)
     click.echo(_text(model_obj.name, result, phys, bounds, deadline_seconds))
     if answer is not None:
         click.echo(_implementation_text(answer, settings))
@@ -188,16 +211,54 @@ def _implementation_text(answer, settings) -> str:
     return "\n".join(lines)
 
 
+def _p_wrong(probe) -> dict | None:
+    """P(no correct decision by the deadline) at a probe, with its 95% interval."""
+    if probe is None:
+        return None
+    p, low, high = probe.p_wrong
+    return {"estimate": p, "low": low, "high": high, "runs": probe.trials,
+            "method": probe.method}
+
+
+def _risk_parts(probe) -> dict | None:
+    """Poisson loading: the risk from reversed or tied loadings and from the kinetics."""
+    if probe is None or probe.loading != "poisson":
+        return None
+    return {"loading": probe.wrong_loading, "kinetics": probe.wrong_kinetics,
+            "reversal": probe.reversal}
+
+
+def _interval(probe) -> str:
+    p, low, high = probe.p_wrong
+    if probe.method == "exact":
+        return f"P(wrong) = {p:.3g} (exact)"
+    return f"P(wrong) = {p:.3g} (95% interval {low:.3g} .. {high:.3g}, {probe.trials:,} runs)"
+
+
 def _text(name, result, phys, bounds, deadline_seconds) -> str:
     target = f"P(correct consensus{'' if result.deadline is None else ' by the deadline'})"
-    lines = [f"{name}: smallest population with {target} >= {1 - result.risk:g}"]
+    mean = " (mean per droplet, Poisson loading)" if result.loading == "poisson" else ""
+    lines = [f"{name}: smallest population{mean} with {target} >= {1 - result.risk:g}"]
     if result.estimate is None:
         lines.append("  no population up to --n-max meets the risk"
                      + (" (the deadline may be too short)" if result.deadline else ""))
+        lines.append(f"  {WET_LAB_CAUTION}")
         return "\n".join(lines)
-    lines.append(f"  n = {result.estimate:,} (gap {result.gap_estimate:,}); 95% range allowing "
-                 f"for sampling error: {_n(result.low)} .. {_n(result.high)} "
-                 f"[{result.method}]")
+    at, below = result.at_estimate, result.at_below
+    sure = "" if at.method == "exact" else " with 95% confidence"
+    lines.append(f"  n = {result.estimate:,} (gap {result.gap_estimate:,}): {_interval(at)}, "
+                 f"below the risk {result.risk:g}{sure} [{result.method}]")
+    if below is not None:
+        lines.append(f"  one step below, n = {below.n:,}: {_interval(below)}, not surely below "
+                     f"the risk")
+    if result.low is not None and result.low < result.estimate:
+        lines.append(f"  allowing for sampling error the smallest n could be as low as "
+                     f"{result.low:,}")
+    if at.loading == "poisson":
+        about = "" if at.method == "exact" else "about "
+        lines.append(f"  P(wrong) by cause: {about}{at.wrong_loading:.3g} from droplets whose "
+                     f"counts reversed or tied the gap (P = {at.reversal:.3g}), "
+                     f"{about}{at.wrong_kinetics:.3g} from the kinetics")
     if result.deadline is not None:
         lines.append(f"  deadline: {result.deadline:.4g} parallel time"
                      + (f" ({format_time(deadline_seconds)})" if deadline_seconds else ""))
@@ -209,10 +270,9 @@ def _text(name, result, phys, bounds, deadline_seconds) -> str:
     if phys["seconds"] is not None:
         lines.append(f"  consensus in about {format_time(phys['seconds'])} "
                      f"({phys['seconds']:.4g} s)")
-    lines.append("  wet-lab numbers are model predictions: validate them with your lab's own "
-                 "controls and follow its safety practice")
+    lines.append(f"  {WET_LAB_CAUTION}")
     return "\n".join(lines)
 
 
 def _n(value):
-    return "none up to --n-max" if value is None else f"{value:,}"
+    return "none" if value is None else f"{value:,}"

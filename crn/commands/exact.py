@@ -4,10 +4,18 @@ from __future__ import annotations
 
 import click
 
-from ..exact import exact_outcomes, transient_outcomes
-from ..outcome import NO_CONSENSUS
 from .implementing import dna_options, dna_settings, implement_option
-from .options import emit_json, json_option, load, model_argument, progress_bar, set_option
+from .options import (
+    emit_json,
+    guard,
+    guard_options,
+    json_option,
+    load,
+    model_argument,
+    progress_bar,
+    set_option,
+    stop_interrupted,
+)
 
 __all__ = ["exact"]
 
@@ -25,15 +33,20 @@ def _counts(net, x) -> str:
 @click.option("--max-states", type=click.IntRange(min=1), default=None, metavar="N",
               help="Refuse (or, with --until, project onto) more configurations than N "
                    "(default 10,000,000).")
+@guard_options
 @json_option
 @implement_option
 @dna_options
-def exact(model, sets, until, max_states, as_json, implement, fuel, max_rate, toehold, leak,
-          rate, concentration):
+def exact(model, sets, until, max_states, max_memory, force, as_json, implement, fuel, max_rate,
+          toehold, leak, rate, concentration):
     """Exact outcome probabilities of MODEL from its initial counts, by solving the
     continuous-time Markov chain over every reachable configuration. With --implement,
     of the DNA implementation (small populations and little fuel only: every fuel
     molecule multiplies the configurations)."""
+    from ..exact import exact_outcomes, transient_outcomes
+    from ..guards import exact_estimate
+    from ..interrupts import call_interruptibly
+
     settings = dna_settings(implement, fuel=fuel, max_rate=max_rate, toehold=toehold,
                             leak=leak, rate=rate, concentration=concentration)
     net = load(model, sets).network
@@ -43,12 +56,38 @@ def exact(model, sets, until, max_states, as_json, implement, fuel, max_rate, to
 
         impl = implement_network(net, settings)
         net = impl.network
-    with progress_bar("configurations", None, enabled=not as_json) as update:
-        result = exact_outcomes(net, max_states=max_states, progress=update)
+    guard(exact_estimate(net), max_memory, force, announce=not as_json)
+    seen = [0]
+    try:
+        with progress_bar("configurations", None, enabled=not as_json) as bar:
+            result = call_interruptibly(exact_outcomes, net, max_states=max_states,
+                                        progress=_counting(bar, seen))
+    except KeyboardInterrupt:
+        stop_interrupted(f"after enumerating {seen[0]:,} configurations; no result")
     transient = None
     if until is not None:
-        with progress_bar("projection", None, enabled=not as_json) as update:
-            transient = transient_outcomes(net, until, max_states=max_states, progress=update)
+        try:
+            with progress_bar("projection", None, enabled=not as_json) as update:
+                transient = call_interruptibly(transient_outcomes, net, until,
+                                               max_states=max_states, progress=update)
+        except KeyboardInterrupt:
+            _print(net, result, None, until, as_json, impl)
+            stop_interrupted("during the projection to --until; the eventual probabilities "
+                             "above are complete")
+    _print(net, result, transient, until, as_json, impl)
+
+
+def _counting(bar, seen):
+    def update(done, total=None):
+        seen[0] = done
+        bar(done, total)
+
+    return update
+
+
+def _print(net, result, transient, until, as_json, impl=None):
+    from ..outcome import NO_CONSENSUS
+
     if as_json:
         obj = {
             "model": net.name,

@@ -5,7 +5,6 @@ from __future__ import annotations
 import click
 
 from ..io.atomic import write_atomic
-from ..io.exports import FORMATS
 from .options import (
     OUTPUT_FILE,
     build_implementation,
@@ -17,6 +16,7 @@ from .options import (
     model_argument,
     set_option,
 )
+from .translate import FORMATS  # the export formats, without importing the exporters
 
 __all__ = ["implement"]
 

@@ -5,23 +5,28 @@ from __future__ import annotations
 import math
 
 import click
-import numpy as np
 
-from ..ode import METHODS, solve_mean_field
 from .implementing import dna_options, dna_settings, implement_option
 from .options import (
+    FIGURE_FILE,
     OUTPUT_FILE,
     emit_json,
     every_option,
     force_option,
     json_option,
+    lab_time_options,
     load,
     model_argument,
     sample_times_option_value,
+    seconds_per_time,
     set_option,
 )
 
 __all__ = ["mean_field_json", "ode"]
+
+#: The integrators of scipy's ``solve_ivp`` offered by ``--method``; the same as
+#: :data:`crn.ode.METHODS` (kept here so that ``crn --help`` needs no scipy).
+METHODS = ("LSODA", "BDF", "Radau", "RK45", "DOP853")
 
 
 def _parse_times(text: str | None):
@@ -35,6 +40,8 @@ def _parse_times(text: str | None):
     if not times or any(not math.isfinite(t) or t < 0 for t in times):
         raise click.BadParameter(f"times must be finite and >= 0, got {text!r}",
                                  param_hint="--at")
+    import numpy as np
+
     return np.unique(np.asarray(times, dtype=np.float64))
 
 
@@ -49,6 +56,13 @@ def _eigenvalue(z: complex, tol: float = 1e-7):
         "re": _number(z.real), "im": _number(z.imag)}
 
 
+def _free(point, species) -> list[str]:
+    """Species left free along a continuum of fixed points (the others follow from them)."""
+    if point.exact is not None:
+        return [s for s in species if point.exact[s] == s]
+    return [s for s, v in zip(species, point.point, strict=True) if not math.isfinite(v)]
+
+
 def _fixed_point_dict(point, species) -> dict:
     return {
         "point": {s: _number(v) for s, v in zip(species, point.point, strict=True)},
@@ -59,6 +73,7 @@ def _fixed_point_dict(point, species) -> dict:
         "consensus": point.consensus,
         "tie": point.tie,
         "exact": point.exact,
+        "free": _free(point, species),
     }
 
 
@@ -68,13 +83,26 @@ def _format_point(point, species) -> str:
     return ", ".join(f"{s}={v:.6g}" for s, v in zip(species, point.point, strict=True))
 
 
+def _format_continuum(point, species) -> str:
+    free = _free(point, species)
+    fixed = [s for s in species if s not in free]
+    if point.exact is not None:
+        where = ", ".join(f"{s}={point.exact[s]}" for s in fixed)
+    else:
+        where = ", ".join(f"{s}={v:.6g}" for s, v in zip(species, point.point, strict=True)
+                          if s in fixed)
+    what = "a continuum of fixed points, one for every value of " + " and ".join(free)
+    return (f"{where + ': ' if where else ''}{what}; not isolated, so the eigenvalues say "
+            "nothing about stability")
+
+
 def _format_eigenvalues(values) -> str:
     parts = []
     for z in values:
         z = complex(z)
         parts.append(f"{z.real:.6g}" if abs(z.imag) <= 1e-12 * max(1, abs(z))
                      else f"{z.real:.6g}{z.imag:+.6g}i")
-    return ", ".join(parts) if parts else "-"
+    return ", ".join(parts) if parts else "none (the conserved class is this one point)"
 
 
 @click.command("ode")
@@ -85,8 +113,9 @@ def _format_eigenvalues(values) -> str:
                                 "consensus, capped at a multiple of the natural time scale.")
 @click.option("--at", "at", default=None, metavar="t1,t2,...",
               help="Report the solution at these times (the solve then runs past consensus).")
-@click.option("--plot", "plot_file", type=OUTPUT_FILE, default=None,
-              metavar="FILE", help="Save a figure of the fractions against time (png, pdf, svg).")
+@click.option("--plot", "plot_file", type=FIGURE_FILE, default=None,
+              metavar="FILE", help="Save a figure of the fractions against time (png, pdf, "
+                                   "svg, ...).")
 @click.option("--csv", "csv_file", type=OUTPUT_FILE, default=None,
               metavar="FILE", help="Write the trajectory as CSV (time, then one column per "
                                    "species).")
@@ -102,6 +131,7 @@ def _format_eigenvalues(values) -> str:
               help="With --every: the time course in molecule counts (to overlay `crn ssa "
                    "--every`) instead of fractions or concentrations.")
 @force_option
+@lab_time_options
 @implement_option
 @dna_options
 @click.option("--fuel-needed", "fuel_needed", is_flag=True,
@@ -118,6 +148,8 @@ def ode(model, sets, until, at, plot_file, csv_file, as_json, equations, latex, 
     consensus (the agents not reporting the leading label make fewer than one
     molecule) and the fixed points with their stability. With --implement the ODE
     of the DNA implementation is solved instead, in the same time unit."""
+    from ..ode import solve_mean_field
+
     settings = dna_settings(implement, fuel=fuel, max_rate=max_rate, toehold=toehold,
                             leak=leak, rate=rate, concentration=concentration)
     if fuel_needed and settings is None:
@@ -133,6 +165,7 @@ def ode(model, sets, until, at, plot_file, csv_file, as_json, equations, latex, 
                             in_counts=in_counts, force=force)
         return
     net = loaded.network
+    seconds = seconds_per_time(net, rate, concentration)
     if equations or latex:
         _print_equations(net, latex, as_json)
         return
@@ -173,14 +206,14 @@ def ode(model, sets, until, at, plot_file, csv_file, as_json, equations, latex, 
 
         write_mean_field_csv(csv_file, result)
     if plot_file:
-        _plot(result, loaded.name, plot_file)
+        _plot(result, loaded.name, plot_file, seconds)
     if as_json:
         obj = mean_field_json(loaded, result, points)
         if course is not None:
             obj["time_course"] = course.to_json()
         emit_json(obj)
         return
-    text = _text(loaded, result, points)
+    text = _text(loaded, result, points, requested=at is not None)
     if course is not None:
         text += (f"\ntime course: {course.times.size} samples every {every:g} up to "
                  f"{course.times[-1]:.6g}, in {course.units} (--json or --csv to see it)")
@@ -203,7 +236,7 @@ def _print_equations(net, latex: bool, as_json: bool) -> None:
     click.echo(format_equations(net, latex=latex), nl=False)
 
 
-def _plot(result, name: str, path) -> None:
+def _plot(result, name: str, path, seconds=None) -> None:
     import matplotlib
 
     matplotlib.use("Agg")
@@ -212,7 +245,7 @@ def _plot(result, name: str, path) -> None:
     from ..io.atomic import save_figure
     from ..plots.ode import plot_mean_field
 
-    ax = plot_mean_field(result, title=f"Mean-field ODE of {name}")
+    ax = plot_mean_field(result, title=f"{name}\nmean-field ODE", seconds_per_time=seconds)
     try:
         save_figure(path, ax.figure)
     finally:
@@ -220,7 +253,7 @@ def _plot(result, name: str, path) -> None:
 
 
 def mean_field_json(model, result, fixed_points, *, consensus=None) -> dict:
-    """The ``crn ode --json`` object (DESIGN.md CLI contract) of a mean-field solve.
+    """The ``crn ode --json`` object (docs/design.md CLI contract) of a mean-field solve.
 
     Parameters
     ----------
@@ -271,7 +304,7 @@ def mean_field_json(model, result, fixed_points, *, consensus=None) -> dict:
     return obj
 
 
-def _text(loaded, result, points) -> str:
+def _text(loaded, result, points, requested: bool = False) -> str:
     net = loaded.network
     unit = (f"fractions of n = {result.molecules_per_unit:g} agents, parallel time"
             if result.units == "fraction"
@@ -285,16 +318,34 @@ def _text(loaded, result, points) -> str:
     if result.status < 0:
         lines.append(f"solver       failed: {result.message}")
     width = max(len(s) for s in net.species) if net.n_species else 0
-    t_end = result.times[-1] if result.times.size else 0.0
-    lines.append(f"at t = {t_end:.6g}:")
-    for s, v in result.final.items():
-        lines.append(f"  {s:<{width}}  {v:.6g}")
+    if requested:
+        lines.extend(_table(result, net.species))
+    else:
+        t_end = result.times[-1] if result.times.size else 0.0
+        lines.append(f"at t = {t_end:.6g}:")
+        for s, v in result.final.items():
+            lines.append(f"  {s:<{width}}  {v:.6g}")
     if points is not None:
         lines.append("fixed points on the conserved simplex:" if net.from_protocol
                      else "fixed points (with the initial state's conserved totals):")
         for p in points:
             tag = (f" (consensus {p.consensus})" if p.consensus else "") + (" (tie)" if p.tie
                                                                              else "")
+            if p.classification == "non-isolated":
+                lines.append(f"  {_format_continuum(p, net.species)}")
+                continue
             lines.append(f"  {_format_point(p, net.species)}: {p.classification}{tag}; "
                          f"eigenvalues {_format_eigenvalues(p.eigenvalues)}")
     return "\n".join(lines)
+
+
+def _table(result, species) -> list[str]:
+    """One row per requested time, one column per species."""
+    widths = [max(len(s), 11) for s in species]
+    lines = ["at the requested times:",
+             "  " + " ".join([f"{'t':>11}", *(f"{s:>{w}}" for s, w in zip(species, widths,
+                                                                           strict=True))])]
+    for t, row in zip(result.times, result.values, strict=True):
+        lines.append("  " + " ".join([f"{t:>11.6g}", *(f"{v:>{w}.6g}" for v, w in
+                                                        zip(row, widths, strict=True))]))
+    return lines

@@ -7,15 +7,16 @@ import sys
 
 import click
 
-from ..io.jsonable import to_jsonable
-from ..io.models import load_model
-from ..model import parse_overrides
-
 __all__ = ["model_argument", "set_option", "seed_option", "json_option", "load", "emit_json",
-           "progress_bar", "to_jsonable", "OUTPUT_FILE", "dna_options", "dna_parameters",
-           "dna_errors", "build_implementation", "DNA_OPTION_NAMES", "DEFAULT_DNA_RATE",
-           "DEFAULT_DNA_CONCENTRATION", "every_option", "force_option",
-           "sample_times_option_value"]
+           "progress_bar", "to_jsonable", "seed_notice", "lab_time_options", "seconds_per_time",
+           "OUTPUT_FILE", "FIGURE_FILE", "FIGURE_FORMATS", "CLUSTER_ADDRESS", "dna_options",
+           "dna_parameters", "dna_errors", "build_implementation", "DNA_OPTION_NAMES",
+           "DEFAULT_DNA_RATE", "DEFAULT_DNA_CONCENTRATION", "every_option", "force_option",
+           "sample_times_option_value",
+           "stop_interrupted", "guard_options", "guard"]
+
+#: Figure formats ``--plot`` accepts (all written by matplotlib's Agg, PDF, SVG and PS backends).
+FIGURE_FORMATS = ("png", "pdf", "svg", "svgz", "eps", "ps", "jpg", "jpeg", "tif", "tiff", "webp")
 
 
 def model_argument(func):
@@ -51,8 +52,46 @@ def set_option(func):
                         help="Override a parameter of the model (repeatable).")(func)
 
 
-def seed_option(func):
+def seed_option(func=None, *, workers: bool = True):
     """Add the ``--seed`` option (a non-negative int, default None) to a click command.
+
+    Parameters
+    ----------
+    func : callable, optional
+        The command function to decorate; without it, returns the decorator
+        (``@seed_option(workers=False)``).
+    workers : bool, default True
+        Whether the command runs on several workers (the help then says the
+        numbers do not depend on how many).
+
+    Returns
+    -------
+    callable
+        ``func`` with the option, passed to it as ``seed`` (int or None).
+    """
+    text = ("Root seed; the same seed gives the same numbers on any number of workers. "
+            if workers else "Root seed; the same seed gives the same numbers. ")
+
+    def decorate(f):
+        return click.option("--seed", type=click.IntRange(min=0), default=None,
+                            help=text + "Printed when not given.")(f)
+
+    return decorate if func is None else decorate(func)
+
+
+def seed_notice(entropy: int) -> None:
+    """Tell the user, on standard error, the seed drawn because ``--seed`` was not given.
+
+    Parameters
+    ----------
+    entropy : int
+        Entropy of the root ``SeedSequence``; ``--seed entropy`` repeats the run.
+    """
+    click.echo(f"crn: seed {entropy} (pass --seed {entropy} to repeat)", err=True)
+
+
+def lab_time_options(func):
+    """Add ``--rate`` and ``--concentration`` (text, default None), which give time in minutes.
 
     Parameters
     ----------
@@ -62,11 +101,58 @@ def seed_option(func):
     Returns
     -------
     callable
-        ``func`` with the option, passed to it as ``seed`` (int or None).
+        ``func`` with the options, passed to it as ``rate`` and ``concentration``
+        (str or None); :func:`seconds_per_time` turns them into a time unit.
     """
-    return click.option("--seed", type=click.IntRange(min=0), default=None,
-                        help="Root seed; the same seed gives the same numbers on any number "
-                             "of workers. Printed when not given.")(func)
+    # a command that already has them (from dna_options) keeps its own: one option, one name
+    present = {param.name for param in getattr(func, "__click_params__", ())}
+    if "concentration" not in present:
+        func = click.option("--concentration", default=None, metavar="C",
+                            help="Total concentration of all agents, e.g. 10nM; with --rate "
+                                 "the figure gets a second time axis in minutes.")(func)
+    if "rate" not in present:
+        func = click.option("--rate", default=None, metavar="K",
+                            help="Bimolecular rate constant the reactions are built at, e.g. "
+                                 "1e6/M/s; with --concentration the figure gets a second time "
+                                 "axis in minutes.")(func)
+    return func
+
+
+def seconds_per_time(net, rate: str | None, concentration: str | None) -> float | None:
+    """Seconds in one unit of parallel time, from ``--rate`` and ``--concentration``.
+
+    One unit of parallel time lasts ``1 / (k C)`` seconds for a protocol whose
+    reactions are built at ``k`` (/M/s) and total concentration ``C`` (M)
+    (docs/design.md, physical units).
+
+    Parameters
+    ----------
+    net : Network
+        The model's network; only a protocol's time has this unit.
+    rate, concentration : str or None
+        The options as typed.
+
+    Returns
+    -------
+    float or None
+        None unless both are given.
+
+    Raises
+    ------
+    CRNError
+        When only one is given, a value cannot be read, or the model is not a protocol.
+    """
+    from ..errors import CRNError
+    from ..units import parse_concentration, parse_rate_constant
+
+    if rate is None and concentration is None:
+        return None
+    if rate is None or concentration is None:
+        raise CRNError("give --rate and --concentration together (time in minutes needs both)")
+    if not net.from_protocol:
+        raise CRNError("--rate and --concentration convert parallel time; this model is a "
+                       "reaction network, whose time unit is its own")
+    return 1.0 / (parse_rate_constant(rate) * parse_concentration(concentration))
 
 
 def json_option(func):
@@ -105,7 +191,17 @@ def load(model: str, sets):
     ModelError
         When the file is missing, unreadable or invalid, or an override is malformed.
     """
+    from ..io.models import load_model
+    from ..model import parse_overrides
+
     return load_model(model, parse_overrides(sets))
+
+
+def to_jsonable(value):
+    """:func:`crn.io.jsonable.to_jsonable`, imported on first use (it needs numpy)."""
+    from ..io.jsonable import to_jsonable as convert
+
+    return convert(value)
 
 
 def emit_json(obj) -> None:
@@ -150,10 +246,18 @@ def progress_bar(description: str, total: int | None, enabled: bool = True):
             yield lambda done, new_total=None: None
             return
         from rich.console import Console
-        from rich.progress import BarColumn, MofNCompleteColumn, Progress, TimeElapsedColumn
+        from rich.progress import (
+            BarColumn,
+            MofNCompleteColumn,
+            Progress,
+            TextColumn,
+            TimeElapsedColumn,
+            TimeRemainingColumn,
+        )
 
         with Progress("[progress.description]{task.description}", BarColumn(),
-                      MofNCompleteColumn(), TimeElapsedColumn(),
+                      MofNCompleteColumn(), TimeElapsedColumn(), TextColumn("eta"),
+                      TimeRemainingColumn(),
                       console=Console(stderr=True), transient=True) as progress:
             task = progress.add_task(description, total=total)
 
@@ -195,6 +299,57 @@ class OutputFile(click.ParamType):
 
 
 OUTPUT_FILE = OutputFile()
+
+
+class FigureFile(OutputFile):
+    """An :class:`OutputFile` whose suffix names a figure format matplotlib writes (or none:
+    PNG), checked before any work starts."""
+
+    name = "figure"
+
+    def convert(self, value, param, ctx):
+        from pathlib import Path
+
+        suffix = Path(value).suffix.lstrip(".").lower()
+        if suffix and suffix not in FIGURE_FORMATS:
+            self.fail(f"{value!r}: cannot write a figure as .{suffix}; use one of "
+                      f"{', '.join(FIGURE_FORMATS)}", param, ctx)
+        return super().convert(value, param, ctx)
+
+
+FIGURE_FILE = FigureFile()
+
+
+class ClusterAddress(click.ParamType):
+    """A Dask scheduler address, ``[tcp|tls]://HOST:PORT`` (or ``HOST:PORT``), checked (and,
+    for TCP, reached) before any work starts."""
+
+    name = "address"
+    schemes = ("tcp", "tls")
+
+    def convert(self, value, param, ctx):
+        from urllib.parse import urlsplit
+
+        from ..errors import CRNError
+        from ..simulate import probe_scheduler
+
+        parts = urlsplit(value if "://" in value else f"tcp://{value}")
+        try:
+            port = parts.port
+        except ValueError:
+            port = None
+        if parts.scheme not in self.schemes or not parts.hostname or port is None \
+                or parts.path not in ("", "/"):
+            self.fail(f"{value!r} is not a scheduler address; expected tcp://HOST:PORT "
+                      f"(or tls://HOST:PORT)", param, ctx)
+        try:
+            probe_scheduler(value)
+        except CRNError as err:
+            self.fail(str(err), param, ctx)
+        return value
+
+
+CLUSTER_ADDRESS = ClusterAddress()
 
 
 #: Defaults of ``--rate`` and ``--concentration`` for a DNA implementation: formal rate 1
@@ -428,8 +583,9 @@ def force_option(func):
         ``func`` with the flag, passed to it as ``force`` (bool).
     """
     return click.option("--force", is_flag=True,
-                        help="Go ahead even past a size limit (more than 1,000,000 sample "
-                             "times, say).")(func)
+                        help="Go ahead even past a limit: more estimated memory than "
+                             "--max-memory, more than a day of estimated work, more than "
+                             "1,000,000 sample times.")(func)
 
 
 def sample_times_option_value(every: float, until: float, force: bool):
@@ -458,3 +614,75 @@ def sample_times_option_value(every: float, until: float, force: bool):
         return sample_times(every, until, force=force)
     except ValueError as err:
         raise click.BadParameter(str(err), param_hint="--every") from err
+
+
+def stop_interrupted(finished: str):
+    """After Ctrl-C or SIGTERM: say what was finished on standard error and exit 130 or 143.
+
+    Parameters
+    ----------
+    finished : str
+        What the command had finished, e.g. ``"after n = 2..7 (no counterexample so far)"``.
+    """
+    from .. import interrupts
+
+    click.echo(f"crn: {interrupts.reason()} {finished}", err=True)
+    click.get_current_context().exit(interrupts.exit_status())
+
+
+class MemorySize(click.ParamType):
+    """A size in bytes: ``4G``, ``512MiB``, ``2.5GB``."""
+
+    name = "size"
+
+    def convert(self, value, param, ctx):
+        from ..errors import CRNError
+        from ..guards import parse_memory
+
+        try:
+            return parse_memory(value)
+        except CRNError as err:
+            self.fail(str(err).removeprefix("--max-memory: "), param, ctx)
+
+
+def guard_options(func):
+    """Add ``--max-memory SIZE`` and ``--force`` (see :mod:`crn.guards`) to a click command.
+
+    Parameters
+    ----------
+    func : callable
+        The command function to decorate.
+
+    Returns
+    -------
+    callable
+        ``func`` with the options, passed as ``max_memory`` (int bytes or None) and
+        ``force`` (bool).
+    """
+    func = force_option(func)
+    return click.option("--max-memory", type=MemorySize(), default=None, metavar="SIZE",
+                        help="Refuse work estimated to need more memory (e.g. 4G; default "
+                             "half the machine's RAM).")(func)
+
+
+def guard(estimate, max_memory, force, *, announce: bool = True,
+          announce_from: float = 10.0) -> None:
+    """Refuse ``estimate`` beyond the limits (exit 2); print it when it is long.
+
+    Parameters
+    ----------
+    estimate : crn.guards.Estimate
+    max_memory : int or None
+        ``--max-memory`` in bytes (None: half the RAM).
+    force : bool
+        ``--force``: never refuse.
+    announce : bool, default True
+        Whether to print a long estimate (not with ``--json``).
+    announce_from : float, default 10
+        Print the estimate on standard error from this many seconds.
+    """
+    from ..guards import enforce
+
+    enforce(estimate, max_memory=max_memory, force=force)
+    if announce and estimate.seconds >= announce_from:
+        click.echo(f"crn: estimated work for {estimate.what}: {estimate.describe()}", err=True)

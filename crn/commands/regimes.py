@@ -7,29 +7,33 @@ import json
 import os
 import signal
 from pathlib import Path
+from typing import TYPE_CHECKING
 
 import click
-import numpy as np
 
 from ..errors import CRNError
 from ..io.atomic import save_figure, write_atomic
 from ..io.regime_tables import table_csv
-from ..io.sweep_store import SweepStore
-from ..model import parse_overrides
-from ..probes import InitialSplit, ModelParameters
-from ..regimes import RegimeCell, RegimeMap, plan_cells, regime_map
 from .implementing import dna_options, dna_settings, implement_option
 from .options import (
+    CLUSTER_ADDRESS,
+    FIGURE_FILE,
     OUTPUT_FILE,
     emit_json,
+    guard,
+    guard_options,
     json_option,
     load,
     model_argument,
     progress_bar,
+    seed_notice,
     seed_option,
     set_option,
     to_jsonable,
 )
+
+if TYPE_CHECKING:
+    from ..regimes import RegimeMap
 
 __all__ = ["regimes", "parse_int_list", "parse_float_list", "cell_networks"]
 
@@ -62,6 +66,9 @@ def parse_float_list(text: str, what: str) -> list[float]:
 
 def cell_networks(model_path: str, sets):
     """The per-cell network builder: model parameters n and gap when the TOML model has both."""
+    from ..model import parse_overrides
+    from ..probes import InitialSplit, ModelParameters
+
     model = load(model_path, sets)
     path = Path(model_path)
     if path.suffix != ".py" and {"n", "gap"} <= set(model.parameters):
@@ -79,9 +86,11 @@ def result_json(model_name: str, result: RegimeMap) -> dict:
         "seed": result.seed_entropy,
         "cells": result.table(),
         "exponent": {k: v for k, v in result.boundary.to_dict().items()
-                     if k in ("estimate", "low", "high")},
+                     if k in ("estimate", "low", "high", "interval", "grid_low", "grid_high",
+                              "bracketed", "note")},
         "boundary": result.boundary.to_dict(),
         "skipped": [{"n": n, "gap": g} for n, g in result.skipped],
+        "merged": list(result.merged),
     }
 
 
@@ -98,7 +107,8 @@ def _fmt(value, spec=".3g"):
               help="Absolute gaps, comma-separated; cells whose gap differs from n in parity "
                    "are skipped.")
 @click.option("--gap-fraction", "fraction_list", default=None, metavar="LIST",
-              help="Gaps as fractions of n, rounded to the nearest gap of n's parity.")
+              help="Gaps as fractions of n, each in (0, 1), rounded to the nearest gap of n's "
+                   "parity.")
 @click.option("--risk", type=click.FloatRange(0, 1, min_open=True, max_open=True), default=0.01,
               show_default=True, help="Acceptable probability of disagreeing with the ODE.")
 @click.option("--until", type=click.FloatRange(min=0, min_open=True), default=None, metavar="T",
@@ -109,8 +119,8 @@ def _fmt(value, spec=".3g"):
               show_default=True, help="Flag times when SSA median and ODE differ by more.")
 @click.option("--method", type=click.Choice(["auto", "exact", "stochastic"]), default="auto",
               show_default=True, help="Exact analysis, stochastic runs, or exact when small.")
-@click.option("--plot", "plot_file", type=OUTPUT_FILE, default=None,
-              help="Write the heatmap figure (png, pdf, svg).")
+@click.option("--plot", "plot_file", type=FIGURE_FILE, default=None,
+              help="Write the heatmap figure (png, pdf, svg, ...).")
 @click.option("--csv", "csv_file", type=OUTPUT_FILE, default=None,
               help="Write the table as CSV.")
 @click.option("--out", "out_dir", type=click.Path(file_okay=False), default=None,
@@ -119,8 +129,9 @@ def _fmt(value, spec=".3g"):
 @click.option("--resume", is_flag=True, help="Continue the sweep whose results are in --out.")
 @click.option("--workers", type=click.IntRange(min=1), default=None,
               help="Processes computing cells in parallel (default 1).")
-@click.option("--cluster", default=None, metavar="ADDR",
+@click.option("--cluster", type=CLUSTER_ADDRESS, default=None, metavar="ADDRESS",
               help="Dask scheduler address for the stochastic runs.")
+@guard_options
 @seed_option
 @json_option
 @implement_option
@@ -129,13 +140,19 @@ def _fmt(value, spec=".3g"):
               help="With --implement: for each cell, the largest leak rate constant at which "
                    "it stays ok with the correct decision (many more runs).")
 def regimes(model, sets, n_list, gap_list, fraction_list, risk, until, runs_max, time_factor,
-            method, plot_file, csv_file, out_dir, resume, workers, cluster, seed, as_json,
-            implement, fuel, max_rate, toehold, leak, rate, concentration, with_leak_tolerance):
+            method, plot_file, csv_file, out_dir, resume, workers, cluster, max_memory, force,
+            seed, as_json, implement, fuel, max_rate, toehold, leak, rate, concentration,
+            with_leak_tolerance):
     """Sweep MODEL over populations n and gaps: for each cell, the ODE's decision, the
     probability that a stochastic run disagrees with it (95% interval, simultaneous over the
     sequential looks (Clopper-Pearson, Bonferroni)), the flag, the times;
     and the fitted growth of the critical gap with n. With --implement every cell runs on
     the DNA implementation of its network (same time unit, decisions from the signals)."""
+    import numpy as np
+
+    from ..io.sweep_store import SweepStore
+    from ..regimes import RegimeCell, plan_cells, regime_map
+
     settings = dna_settings(implement, fuel=fuel, max_rate=max_rate, toehold=toehold,
                             leak=leak, rate=rate, concentration=concentration)
     if with_leak_tolerance and settings is None:
@@ -161,9 +178,15 @@ def regimes(model, sets, n_list, gap_list, fraction_list, risk, until, runs_max,
         implement_network(model_obj.network, settings)  # parameter errors before any cell
     for n, g in skipped:
         click.echo(f"crn: skipping n={n}, gap={g}: (n + gap) / 2 is not whole", err=True)
+    from ..guards import regime_map_estimate
+    from ..regimes import DEFAULT_EXACT_MAX
+
+    guard(regime_map_estimate(networks, cells, runs_max=runs_max, until=until, method=method,
+                              exact_max=DEFAULT_EXACT_MAX, workers=workers or 1),
+          max_memory, force, announce=not as_json)
 
     entropy = np.random.SeedSequence(seed).entropy
-    done, on_cell, store = {}, None, None
+    done, store, new_cells = {}, None, []
     if out_dir:
         parameters = {
             "model": Path(model).name,
@@ -179,20 +202,27 @@ def regimes(model, sets, n_list, gap_list, fraction_list, risk, until, runs_max,
                            check_seed=seed is not None)
         entropy = store.seed_entropy
         done = {(c["n"], c["gap"]): RegimeCell.from_dict(c) for c in store.finished}
-        kill_after = os.environ.get(KILL_HOOK)
+    kill_after = os.environ.get(KILL_HOOK)
 
-        def on_cell(cell):
-            store.append(cell.to_dict())
-            if kill_after is not None and len(store.finished) >= int(kill_after):
-                os.kill(os.getpid(), signal.SIGKILL)
+    def on_cell(cell):
+        new_cells.append(cell)
+        if store is None:
+            return
+        store.append(cell.to_dict())
+        if kill_after is not None and len(store.finished) >= int(kill_after):
+            os.kill(os.getpid(), signal.SIGKILL)
     if seed is None and not as_json:
-        click.echo(f"crn: seed {entropy}", err=True)
+        seed_notice(entropy)
 
-    with progress_bar("cells", len(cells), enabled=not as_json) as update:
-        result = regime_map(networks, ns, gaps=gaps, gap_fractions=fractions, risk=risk,
-                            until=until, runs_max=runs_max, time_factor=time_factor,
-                            method=method, rng=entropy, workers=workers, cluster=cluster,
-                            done=done, on_cell=on_cell, progress=update)
+    try:
+        with progress_bar("cells", len(cells), enabled=not as_json) as update:
+            result = regime_map(networks, ns, gaps=gaps, gap_fractions=fractions, risk=risk,
+                                until=until, runs_max=runs_max, time_factor=time_factor,
+                                method=method, rng=entropy, workers=workers, cluster=cluster,
+                                done=done, on_cell=on_cell, progress=update)
+    except KeyboardInterrupt:
+        _report_interrupted(sorted([*done.values(), *new_cells], key=lambda c: (c.n, c.gap)),
+                            len(cells), out_dir)
     table = table_csv(result.cells)
     payload = result_json(model_obj.name, result)
     tolerances = None
@@ -251,6 +281,22 @@ def _tolerance_text(tolerances, risk) -> str:
     return "\n".join(lines)
 
 
+def _report_interrupted(finished, total, out_dir):
+    """After Ctrl-C or SIGTERM: the finished cells, where they are kept, and the exit status."""
+    from .. import interrupts
+
+    lines = [f"{c.n:>10} {c.gap:>8} {c.p_wrong:>12.4g} [{c.low:8.3g}, {c.high:8.3g}] "
+             f"{c.flag:>10}" for c in finished]
+    if lines:
+        click.echo("\n".join([f"{'n':>10} {'gap':>8} {'P(disagree)':>12} {'95% interval':>19} "
+                               f"{'flag':>10}", *lines]))
+    kept = (f"kept in {Path(out_dir) / 'regimes.jsonl'}; add --resume to finish the sweep"
+            if out_dir else "not kept (give --out DIR to keep cells across interruptions)")
+    click.echo(f"crn: {interrupts.reason()} after {len(finished)} of {total} cells; "
+               f"finished cells {kept}", err=True)
+    click.get_current_context().exit(interrupts.exit_status())
+
+
 def _save_plot(result, path, name):
     import matplotlib
 
@@ -276,11 +322,11 @@ def _text(name, result: RegimeMap) -> str:
             f"{c.n:>10} {c.gap:>8} {c.ode_label or '-':>5} {_fmt(c.ode_time):>8} "
             f"{c.p_wrong:>12.4g} [{c.low:8.3g}, {c.high:8.3g}] {c.runs:>6} {c.flag:>10} "
             f"{_fmt(c.ssa_median_time):>8} {c.time_flag:>7} {c.method}")
+    for m in result.merged:
+        lines.append(f"merged: at n={m['n']} the gap fractions "
+                     + ", ".join(f"{f:g}" for f in m["gap_fractions"])
+                     + f" all round to gap {m['gap']} (one cell)")
     b = result.boundary
-    if b.exponent is None:
-        lines.append("boundary: too few n with a crossing inside the gap range to fit")
-    else:
-        lines.append(f"boundary: critical gap ~ n^{b.exponent:.3f} (95% interval "
-                     f"[{b.low:.3f}, {b.high:.3f}]) over "
-                     + ", ".join(f"n={n}: {g:.3g}" for n, g in b.critical_gaps))
+    where = ", ".join(f"n={n}: {g:.3g}" for n, g in b.critical_gaps)
+    lines.append(f"boundary: {b.describe(3)}" + (f"; critical gaps {where}" if where else ""))
     return "\n".join(lines)

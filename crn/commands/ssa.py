@@ -2,27 +2,35 @@
 
 from __future__ import annotations
 
+from typing import TYPE_CHECKING
+
 import click
 
-from ..simulate import ENGINES, Ensemble, SimulationInterrupted, simulate
-from ..stats import wilson_interval
+from ..engines import ENGINES
 from .implementing import dna_options, dna_settings, implement_option
 from .options import (
+    CLUSTER_ADDRESS,
+    FIGURE_FILE,
     OUTPUT_FILE,
     emit_json,
     every_option,
-    force_option,
+    guard,
+    guard_options,
     json_option,
     load,
     model_argument,
     progress_bar,
     sample_times_option_value,
+    seed_notice,
     seed_option,
     set_option,
 )
 
+if TYPE_CHECKING:
+    from ..simulate import Ensemble
+
 __all__ = ["ssa", "ensemble_options", "run_ensemble", "ensemble_summary", "format_ensemble",
-           "format_horizon"]
+           "horizon_text", "format_horizon"]
 
 
 def ensemble_options(func):
@@ -37,30 +45,57 @@ def ensemble_options(func):
                      show_default=True, help="Stochastic engine."),
         click.option("--workers", type=click.IntRange(min=1), default=None,
                      help="Local worker processes (default: all cores)."),
-        click.option("--cluster", metavar="ADDRESS", default=None,
+        click.option("--cluster", type=CLUSTER_ADDRESS, metavar="ADDRESS", default=None,
                      help="Dask scheduler address (tcp://HOST:PORT) to run the ensemble on."),
     ]
     for option in reversed(options):
         func = option(func)
-    return func
+    return guard_options(func)
 
 
 def run_ensemble(net, *, runs, until, engine, seed, workers, cluster, as_json, times=None,
-                 description="stochastic runs", reduce=None):
+                 description="stochastic runs", reduce=None, max_memory=None, force=False):
     """Run :func:`crn.simulate.simulate` under a progress bar; report the seed and Ctrl-C.
+
+    First the work is estimated from the engine's cost model
+    (:func:`crn.guards.ensemble_estimate`): printed when long, refused (exit 2)
+    beyond the limits unless ``force``.
 
     Returns
     -------
     (Ensemble, bool)
-        The ensemble (the finished runs after Ctrl-C) and whether it was interrupted.
-        With ``reduce`` (see :func:`crn.simulate.simulate`) every run's counts go to it.
+        The ensemble (the finished runs after Ctrl-C or SIGTERM) and whether it
+        was interrupted. With ``reduce`` (see :func:`crn.simulate.simulate`)
+        every run's counts go to it.
+
+    Raises
+    ------
+    WorkerError
+        When worker processes kept dying; ``partial`` holds the finished runs.
     """
+    import os
+
     import numpy as np
+
+    from ..guards import ensemble_estimate
+    from ..simulate import SimulationInterrupted, choose_engine, default_horizon, simulate
+
+    horizon = default_horizon(net) if until is None else float(until)
+    estimate = ensemble_estimate(net, runs=runs, until=horizon, engine=choose_engine(net, engine),
+                                 workers=workers or os.cpu_count() or 1,
+                                 n_times=101 if times is None else len(times))
+    if reduce is not None:  # the runs' counts are reduced as they come: bounded memory
+        from dataclasses import replace
+
+        from ..time_course import reduction_memory
+
+        estimate = replace(estimate, memory=float(reduction_memory(
+            len(times), net.n_species, runs)))
+    guard(estimate, max_memory, force, announce=not as_json)
 
     root = np.random.SeedSequence(seed)
     if seed is None:
-        click.echo(f"seed entropy {root.entropy} (pass --seed {root.entropy} to repeat)",
-                   err=True)
+        seed_notice(root.entropy)
     with progress_bar(description, runs, enabled=not as_json) as update:
         try:
             ensemble = simulate(net, runs=runs, until=until, times=times, engine=engine,
@@ -88,6 +123,11 @@ def ensemble_summary(ensemble: Ensemble, model_name: str) -> dict:
     }
 
 
+def horizon_text(until: float, net) -> str:
+    """``"158.2 parallel time"`` for a protocol, ``"5 time units"`` for a network."""
+    return f"{until:.4g} {'parallel time' if net.from_protocol else 'time units'}"
+
+
 def _number(x) -> str:
     return "-" if x is None else f"{x:.4g}"
 
@@ -95,6 +135,8 @@ def _number(x) -> str:
 def format_ensemble(ensemble: Ensemble, correct=None) -> list[str]:
     """Table lines: each label's runs and probability with its 95% Wilson interval, then the
     consensus-time quantiles."""
+    from ..stats import wilson_interval
+
     if ensemble.runs == 0:
         return ["no run finished"]
     lines = [f"{'label':<10} {'runs':>7} {'probability':>12}   95% interval"]
@@ -113,9 +155,11 @@ def format_ensemble(ensemble: Ensemble, correct=None) -> list[str]:
 
 
 def _finish_interrupted(ensemble: Ensemble):
-    click.echo(f"crn: interrupted after {ensemble.runs} of {ensemble.requested} runs",
+    from .. import interrupts
+
+    click.echo(f"crn: {interrupts.reason()} after {ensemble.runs} of {ensemble.requested} runs",
                err=True)
-    click.get_current_context().exit(130)
+    click.get_current_context().exit(interrupts.exit_status())
 
 
 @click.command("ssa")
@@ -126,28 +170,31 @@ def _finish_interrupted(ensemble: Ensemble):
 @json_option
 @click.option("--csv", "csv_path", type=OUTPUT_FILE, default=None,
               help="Also write one row per run to this CSV file (with --every: the time "
-                   "course in long form, one row per time and species).")
+                   "course in long form, one row per time and species; after an "
+                   "interruption the finished runs under a '# partial' first line).")
 @every_option
-@click.option("--plot", "plot_path", type=OUTPUT_FILE, default=None, metavar="FILE",
+@click.option("--plot", "plot_path", type=FIGURE_FILE, default=None, metavar="FILE",
               help="Save a figure of each species' mean count and 5-95% band with the "
-                   "mean-field ODE overlaid (png, pdf, svg).")
-@force_option
+                   "mean-field ODE overlaid (png, pdf, svg, ...).")
 @implement_option
 @dna_options
-def ssa(model, sets, runs, until, engine, workers, cluster, seed, as_json, csv_path, every,
-        plot_path, force, implement, fuel, max_rate, toehold, leak, rate, concentration):
+def ssa(model, sets, runs, until, engine, workers, cluster, max_memory, force, seed, as_json,
+        csv_path, every, plot_path, implement, fuel, max_rate, toehold, leak, rate,
+        concentration):
     """Run MODEL's exact stochastic dynamics RUNS times and report who won and when.
 
     Each run has its own random stream from --seed, so the numbers do not depend
     on --workers or --cluster. Ctrl-C stops and reports the runs finished. With
     --every DT the runs go on to --until and the species' counts are summarised
     at 0, DT, 2 DT, ..., --until (a model with no output labels reports the
-    species at the horizon anyway). With --implement the runs are of the DNA
-    implementation (same time unit, default horizon of the formal network), and
-    the fuel left at the horizon is reported.
+    species at the horizon anyway). The work is estimated first and refused
+    beyond a day (or --max-memory) unless --force. With --implement the runs are
+    of the DNA implementation (same time unit, default horizon of the formal
+    network), and the fuel left at the horizon is reported.
     """
     import numpy as np
 
+    from ..errors import WorkerError
     from ..io.runs import write_runs_csv
     from ..outcome import correct_label
     from ..simulate import default_horizon
@@ -173,13 +220,20 @@ def ssa(model, sets, runs, until, engine, workers, cluster, seed, as_json, csv_p
         until = float(times[-1])
         if seed is None:  # the kept runs are drawn from the root seed, so fix it now
             seed = int(np.random.SeedSequence().entropy)
-            click.echo(f"seed entropy {seed} (pass --seed {seed} to repeat)", err=True)
+            seed_notice(seed)
         accumulator = TimeCourseAccumulator(times, net.species, runs,
                                             rng=np.random.SeedSequence(seed),
                                             time_units=time_units)
-    ensemble, interrupted = run_ensemble(net, runs=runs, until=until, engine=engine, seed=seed,
-                                         workers=workers, cluster=cluster, as_json=as_json,
-                                         times=times, reduce=accumulator)
+    try:
+        ensemble, interrupted = run_ensemble(net, runs=runs, until=until, engine=engine,
+                                             seed=seed, workers=workers, cluster=cluster,
+                                             as_json=as_json, times=times, reduce=accumulator,
+                                             max_memory=max_memory, force=force)
+    except WorkerError as err:
+        if (csv_path is not None and accumulator is None and err.partial is not None
+                and err.partial.runs):
+            write_runs_csv(err.partial, csv_path, note="worker processes died")
+        raise
     course = None
     if accumulator is not None:
         course = accumulator.result()
@@ -192,7 +246,7 @@ def ssa(model, sets, runs, until, engine, workers, cluster, seed, as_json, csv_p
 
             write_time_course_csv(csv_path, course)
         else:
-            write_runs_csv(ensemble, csv_path)
+            write_runs_csv(ensemble, csv_path, note="interrupted" if interrupted else None)
     if plot_path is not None and course is not None:
         _plot(net, course, loaded.name, plot_path)
     fuel_left = None
@@ -216,7 +270,7 @@ def ssa(model, sets, runs, until, engine, workers, cluster, seed, as_json, csv_p
         emit_json(summary)
     else:
         head = (f"{loaded.name}: {ensemble.runs} runs, engine {ensemble.engine}, "
-                f"horizon {ensemble.until:.4g}")
+                f"horizon {horizon_text(ensemble.until, net)}")
         if impl is not None:
             head += (f" (formal time unit), on its {impl.scheme} DNA implementation "
                      f"({net.n_species} species)")

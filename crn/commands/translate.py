@@ -6,12 +6,13 @@ import click
 
 from ..errors import CRNError
 from ..io.atomic import write_atomic
-from ..io.contract import network_to_dict
-from ..io.exports import FORMATS, export_network
-from ..io.sbml import sbml_consistency
 from .options import OUTPUT_FILE, emit_json, json_option, load, model_argument, set_option
 
 __all__ = ["translate"]
+
+#: The formats of ``--to``; the same as the keys of :data:`crn.io.exports.FORMATS`
+#: (kept here so that ``crn --help`` needs no numpy).
+FORMATS = ("text", "json", "sbml", "latex")
 
 
 @click.command("translate")
@@ -30,10 +31,15 @@ def translate(model, sets, fmt, output, as_json):
     """
     if as_json and output is None and fmt not in (None, "json"):
         raise click.UsageError(f"--json prints the JSON object; give -o FILE for --to {fmt}")
+    from ..io.contract import network_to_dict
+    from ..io.exports import export_network
+
     fmt = fmt or "text"
     net = load(model, sets).network
     text = export_network(net, fmt)
     if fmt == "sbml":
+        from ..io.sbml import sbml_consistency
+
         errors, _ = sbml_consistency(text)
         if errors:
             raise CRNError(f"the SBML export fails libsbml's consistency check: {errors[0]}")

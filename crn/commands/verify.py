@@ -4,10 +4,22 @@ from __future__ import annotations
 
 import click
 
-from ..verify import verify as verify_model
-from .options import emit_json, json_option, load, model_argument, progress_bar, set_option
+from .options import (
+    emit_json,
+    guard,
+    guard_options,
+    json_option,
+    load,
+    model_argument,
+    progress_bar,
+    set_option,
+    stop_interrupted,
+)
 
-__all__ = ["verify"]
+__all__ = ["verify", "EXIT_COUNTEREXAMPLE"]
+
+#: Exit status of ``crn verify`` when the protocol is refuted.
+EXIT_COUNTEREXAMPLE = 1
 
 
 def _counts(counts: dict) -> str:
@@ -27,8 +39,9 @@ def _step(step: dict) -> str:
               help="Check every population size from 2 to N.")
 @click.option("--max-states", type=click.IntRange(min=1), default=None, metavar="N",
               help="Refuse a case with more reachable configurations than N.")
+@guard_options
 @json_option
-def verify(model, sets, max_n, max_states, as_json):
+def verify(model, sets, max_n, max_states, max_memory, force, as_json):
     """Check that MODEL stably computes its majority question for every n from 2 to
     --max-n and every split of the n agents between the two input states.
 
@@ -36,14 +49,34 @@ def verify(model, sets, max_n, max_states, as_json):
     must be in consensus on the correct label; the first failure is shown as
     the shortest sequence of interactions leading into a wrong component.
     Non-input states keep the model's initial counts (usually zero).
+
+    Exit status: 0 when every case is correct, 1 on a counterexample (so scripts
+    can rely on it), 2 on bad input.
     """
+    from ..guards import verify_estimate
+    from ..interrupts import call_interruptibly
+    from ..verify import verify as verify_model
+
     loaded = load(model, sets)
-    with progress_bar("population sizes", max_n - 1, enabled=not as_json) as update:
-        result = verify_model(loaded, max_n, progress=update, max_states=max_states)
+    if loaded.network.inputs is not None:
+        guard(verify_estimate(loaded.network, max_n), max_memory, force, announce=not as_json)
+    checked = [0]
+    try:
+        with progress_bar("population sizes", max_n - 1, enabled=not as_json) as bar:
+            def update(done, total):
+                checked[0] = done
+                bar(done, total)
+
+            result = call_interruptibly(verify_model, loaded, max_n, progress=update,
+                                        max_states=max_states)
+    except KeyboardInterrupt:
+        stop_interrupted(f"after n = 2..{checked[0] + 1} of 2..{max_n} (no counterexample "
+                         "among them)" if checked[0] else "before n = 2 was checked")
     if as_json:
         emit_json({"checked": result.checked, "correct": result.correct,
                    "counterexample": result.counterexample, "ties": result.ties,
                    "max_n": result.max_n})
+        _exit_status(result)
         return
     name = loaded.network.name
     lines = []
@@ -65,3 +98,9 @@ def verify(model, sets, max_n, max_states, as_json):
         lines.append(f"{len(result.ties)} tie split(s) not judged (the model has no 'tie' "
                      f"label); their bottom components output: {', '.join(outputs)}")
     click.echo("\n".join(lines))
+    _exit_status(result)
+
+
+def _exit_status(result) -> None:
+    if not result.correct:
+        click.get_current_context().exit(EXIT_COUNTEREXAMPLE)

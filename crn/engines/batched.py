@@ -15,6 +15,13 @@ replacement, so the run is simulated in bulk:
    splitting), then the interaction that collides with an agent of the run,
    with the right law of which agents collide.
 
+With many states (from 16) and a run short enough to match agent by agent, the
+2 l agents of the run are drawn at once instead (one multivariate
+hypergeometric draw) and a uniformly random ordered half of them, chosen by a
+partial shuffle, are the responders: the same law with one draw per state
+fewer. While no consensus can arise inside a batch, each interaction is then
+applied at once from a packed table entry for its ordered state pair.
+
 Only state pairs that can change anything are visited: for an initiator state
 the responders that give a null interaction with it are drawn as one group,
 and the group is split only into the states that a later initiator state
@@ -65,6 +72,12 @@ _AGENT_PAIRING_MAX = 2**22  # longest run matched agent by agent (memory: 4 byte
 # Match agent by agent when the run is shorter than this many times the state pairs
 # to visit (the cost of a hypergeometric draw in shuffle steps, measured on one core).
 _AGENT_FACTOR = 10.0
+# From this many states, a batch matched agent by agent draws its 2 l agents in one
+# multivariate hypergeometric draw and splits them by a shuffle, instead of drawing the
+# initiators and then the responders (one draw per state fewer; a different stream of
+# random numbers for the same law, so protocols with fewer states keep their runs).
+_JOINT_FROM_STATES = 16
+_PACK = 1 << 16  # packed outcome codes a * _PACK + b need fewer states than this
 
 
 # --------------------------------------------------------------------------- tables
@@ -93,7 +106,10 @@ def protocol_tables(net: Network) -> dict:
         ``out_c``, ``out_d``, ``out_p`` (outcomes, CSR by pair), ``nn_ptr``,
         ``nn_q`` (responder states with a non-null transition, CSR by
         initiator), ``rows`` (initiator states with any), ``res_ptr``,
-        ``res_q`` (per row: states a later row still needs counted).
+        ``res_q`` (per row: states a later row still needs counted), ``code``
+        (per ordered pair: -1 null, -2 randomized, else the deterministic
+        outcome packed as ``a * 2**16 + b``, or ``-3 - o`` for its index o
+        from 2**16 states on).
 
     Raises
     ------
@@ -163,9 +179,16 @@ def protocol_tables(net: Network) -> dict:
     for r, states in enumerate(resolve):
         res_q.extend(states)
         res_ptr[r + 1] = len(res_q)
+    # one lookup per interaction on the fast path: -1 null, -2 randomized, else a * _PACK + b
+    code = np.full(n_states * n_states, -2, dtype=np.int64)
+    code[w <= 0] = -1
+    for pq in np.flatnonzero(det >= 0):
+        o = det[pq]
+        code[pq] = out_c[o] * _PACK + out_d[o] if n_states < _PACK else -3 - o
     return {
         "time_scale": float(time_scale),
         "w": w,
+        "code": code,
         "det": det,
         "out_ptr": out_ptr,
         "out_c": np.array(out_c, dtype=np.int64),
@@ -437,49 +460,134 @@ def _below(state, bound):
 
 
 @numba.njit(cache=True)
-def _pair_agents(rng, n_states, ell, ini, res, rows, w, det, out_ptr, out_p, label, bad, resp,
-                 grp_slot, grp_pq, grp_o, grp_y):
+def _shuffle_front(rng, arr, total, count):
+    """Put a uniformly random ordered sample of ``count`` of ``arr[:total]`` in front.
+
+    A partial Fisher-Yates shuffle drawing from a splitmix64 stream seeded from
+    the Generator (53 bits).
+    """
+    state = np.uint64(rng.random() * 9007199254740992.0)
+    for i in range(count):
+        state, offset = _below(state, np.uint64(total - i))
+        j = i + np.int64(offset)
+        t = arr[j]
+        arr[j] = arr[i]
+        arr[i] = t
+
+
+@numba.njit(cache=True)
+def _random_outcome(rng, pq, out_ptr, out_p):
+    """Index of the outcome of a randomized pair, or -1 for a null interaction."""
+    u = rng.random()
+    acc = 0.0
+    for j in range(out_ptr[pq], out_ptr[pq + 1]):
+        acc += out_p[j]
+        if u < acc:
+            return j
+    return -1
+
+
+@numba.njit(cache=True)
+def _pair_agents(rng, n_states, ell, ini, res, rows, w, det, code, out_ptr, out_c, out_d, out_p,
+                 label, bad, resp, grp_slot, grp_pq, grp_o, grp_y, c):
     """Match initiators to responders agent by agent (a partial random shuffle).
 
     Same results as :func:`_pair_cells`; cheaper when the state pairs to visit
-    outnumber the interactions.
+    outnumber the interactions. Returns as :func:`_pair_sequence`.
     """
     k = 0
     for s in range(n_states):
         for _ in range(res[s]):
             resp[k] = s
             k += 1
+    _shuffle_front(rng, resp, ell, ell)
+    return _pair_sequence(rng, n_states, ini, rows, resp, w, det, code, out_ptr, out_c, out_d,
+                          out_p, label, bad, grp_slot, grp_pq, grp_o, grp_y, c)
+
+
+@numba.njit(cache=True)
+def _draw_joint(rng, c, ell, drawn, arr, ini, res):
+    """Draw the 2 ell agents of a batch at once; the responders, shuffled, fill ``arr[:ell]``.
+
+    The agents are a multivariate hypergeometric sample of 2 ell; a uniformly
+    random ordered half of them are the responders and the rest the initiators,
+    which is the law of drawing the initiators and then the responders.
+    """
+    multivariate_hypergeometric_draw(rng, c, 2 * ell, drawn)
+    k = 0
+    for s in range(c.shape[0]):
+        for _ in range(drawn[s]):
+            arr[k] = s
+            k += 1
+        res[s] = 0
+    _shuffle_front(rng, arr, 2 * ell, ell)
+    for i in range(ell):
+        res[arr[i]] += 1
+    for s in range(c.shape[0]):
+        ini[s] = drawn[s] - res[s]
+
+
+@numba.njit(cache=True)
+def _pair_sequence(rng, n_states, ini, rows, resp, w, det, code, out_ptr, out_c, out_d, out_p,
+                   label, bad, grp_slot, grp_pq, grp_o, grp_y, c):
+    """Pair the initiators, row by row, with the shuffled responders ``resp`` in turn.
+
+    Without a consensus label to watch (``label < 0``) the transitions are
+    applied to ``c`` as they are drawn and no groups are formed.
+
+    Returns
+    -------
+    groups, bad_seen, broken
+        As for :func:`_pair_cells`.
+    applied : int
+        Non-null interactions already applied to ``c`` (``label < 0``).
+    """
     groups = 0
     bad_seen = 0
     broken = False
+    applied = 0
     i = 0
-    # the shuffle draws from a splitmix64 stream seeded from the Generator (53 bits)
-    state = np.uint64(rng.random() * 9007199254740992.0)
+    if label < 0:
+        for r in range(rows.shape[0]):
+            p = rows[r]
+            base = p * n_states
+            for _ in range(ini[p]):
+                q = resp[i]
+                i += 1
+                pq = base + q
+                cd = code[pq]
+                if cd == -1:
+                    continue
+                if cd >= 0:
+                    a = cd >> 16
+                    b = cd & 0xFFFF
+                else:
+                    o = _random_outcome(rng, pq, out_ptr, out_p) if cd == -2 else -3 - cd
+                    if o < 0:
+                        continue
+                    a = out_c[o]
+                    b = out_d[o]
+                c[p] -= 1
+                c[q] -= 1
+                c[a] += 1
+                c[b] += 1
+                applied += 1
+        return groups, bad_seen, broken, applied
     for r in range(rows.shape[0]):
         p = rows[r]
         for _ in range(ini[p]):
-            state, offset = _below(state, np.uint64(ell - i))
-            j = i + np.int64(offset)
-            q = resp[j]
-            resp[j] = resp[i]
+            q = resp[i]
             i += 1
             pq = p * n_states + q
             o = -1
             if w[pq] > 0.0:
                 o = det[pq]
                 if o < 0:
-                    u = rng.random()
-                    acc = 0.0
-                    for jj in range(out_ptr[pq], out_ptr[pq + 1]):
-                        acc += out_p[jj]
-                        if u < acc:
-                            o = jj
-                            break
-            if label >= 0:
-                bp = bad[p] + bad[q]
-                bad_seen += bp
-                if bp > 0 and o < 0:
-                    broken = True
+                    o = _random_outcome(rng, pq, out_ptr, out_p)
+            bp = bad[p] + bad[q]
+            bad_seen += bp
+            if bp > 0 and o < 0:
+                broken = True
             if o >= 0:
                 g = grp_slot[o]
                 if g < 0:
@@ -492,13 +600,13 @@ def _pair_agents(rng, n_states, ell, ini, res, rows, w, det, out_ptr, out_p, lab
                 grp_y[g] += 1
     for g in range(groups):
         grp_slot[grp_o[g]] = -1
-    return groups, bad_seen, broken
+    return groups, bad_seen, broken, applied
 
 
-@numba.njit(cache=True)
-def _kernel(rng, n_states, w, det, out_ptr, out_c, out_d, out_p, nn_ptr, nn_q, rows, res_ptr,
-            res_q, species_label, x0, times, until, stop_at_consensus, discrete, threshold,
-            agent_factor):
+@numba.njit(cache=True, nogil=True)  # nogil: Ctrl-C is seen during a run
+def _kernel(rng, n_states, w, det, code, out_ptr, out_c, out_d, out_p, nn_ptr, nn_q, rows,
+            res_ptr, res_q, species_label, x0, times, until, stop_at_consensus, discrete,
+            threshold, agent_factor, joint_states):
     n = 0
     for s in range(n_states):
         n += x0[s]
@@ -513,6 +621,10 @@ def _kernel(rng, n_states, w, det, out_ptr, out_c, out_d, out_p, nn_ptr, nn_q, r
     pool = np.zeros(n_states, dtype=np.int64)
     touched = np.zeros(n_states, dtype=np.int64)
     resp = np.zeros(0, dtype=np.int32)
+    drawn = np.zeros(n_states, dtype=np.int64)
+    work_all = 0  # state pairs a batch with every initiator state present visits
+    for r in range(rows.shape[0]):
+        work_all += nn_ptr[rows[r] + 1] - nn_ptr[rows[r]] + res_ptr[r + 1] - res_ptr[r]
     n_groups = out_c.shape[0]
     grp_pq = np.zeros(n_groups, dtype=np.int64)
     grp_o = np.zeros(n_groups, dtype=np.int64)
@@ -633,12 +745,19 @@ def _kernel(rng, n_states, w, det, out_ptr, out_c, out_d, out_p, nn_ptr, nn_q, r
                 ell = rng.binomial(m_int - 1, min(1.0, span / full))
                 unif = ell
         if ell > 0:
-            multivariate_hypergeometric_draw(rng, c, ell, ini)
+            joint = (n_states >= joint_states and ell <= _AGENT_PAIRING_MAX
+                     and ell < agent_factor * work_all)
+            if joint:
+                if resp.shape[0] < 2 * ell:
+                    resp = np.empty(max(2 * ell, 2 * resp.shape[0]), dtype=np.int32)
+                _draw_joint(rng, c, ell, drawn, resp, ini, res)
+            else:
+                multivariate_hypergeometric_draw(rng, c, ell, ini)
+                for s in range(n_states):
+                    rest[s] = c[s] - ini[s]
+                multivariate_hypergeometric_draw(rng, rest, ell, res)
             for s in range(n_states):
-                rest[s] = c[s] - ini[s]
-            multivariate_hypergeometric_draw(rng, rest, ell, res)
-            for s in range(n_states):
-                untouched[s] = rest[s] - res[s]
+                untouched[s] = c[s] - ini[s] - res[s]
                 pool[s] = res[s]
                 touched[s] = ini[s] + res[s]
             # -- consensus inside the collision-free run needs the label of the untouched
@@ -657,20 +776,28 @@ def _kernel(rng, n_states, w, det, out_ptr, out_c, out_d, out_p, nn_ptr, nn_q, r
             for r in range(rows.shape[0]):
                 if ini[rows[r]] > 0:
                     work += nn_ptr[rows[r] + 1] - nn_ptr[rows[r]] + res_ptr[r + 1] - res_ptr[r]
-            if ell < agent_factor * work and ell <= _AGENT_PAIRING_MAX:
+            if joint:
+                groups, bad_seen, broken, applied = _pair_sequence(
+                    rng, n_states, ini, rows, resp, w, det, code, out_ptr, out_c, out_d, out_p,
+                    label, bad, grp_slot, grp_pq, grp_o, grp_y, c)
+            elif ell < agent_factor * work and ell <= _AGENT_PAIRING_MAX:
                 if resp.shape[0] < ell:
                     resp = np.empty(max(ell, 2 * resp.shape[0]), dtype=np.int32)
-                groups, bad_seen, broken = _pair_agents(
-                    rng, n_states, ell, ini, res, rows, w, det, out_ptr, out_p, label, bad, resp,
-                    grp_slot, grp_pq, grp_o, grp_y)
+                groups, bad_seen, broken, applied = _pair_agents(
+                    rng, n_states, ell, ini, res, rows, w, det, code, out_ptr, out_c, out_d,
+                    out_p, label, bad, resp, grp_slot, grp_pq, grp_o, grp_y, c)
             else:
+                applied = 0
                 groups, bad_seen, broken = _pair_cells(
                     rng, n_states, ell, ini, pool, rows, nn_ptr, nn_q, res_ptr, res_q, w, det,
                     out_ptr, out_p, label, bad, grp_pq, grp_o, grp_y)
             n_a = 0
             n_b = 0
             found_here = False
-            batch_events = 0
+            batch_events = applied
+            if applied > 0:
+                for s in range(n_states):
+                    touched[s] = c[s] - untouched[s]
             # apply and classify the groups of this batch
             for g in range(groups):
                 pq = grp_pq[g]
@@ -956,12 +1083,14 @@ def run_batched(net: Network, *, until: float, times=None, rng=None,
                          f"n * until must stay below 2**62, got {n} * {until}")
     rng = np.random.default_rng(rng)
     counts, first, first_time, last, events, end_time, status = _kernel(
-        rng, len(net.species), tables["w"], tables["det"], tables["out_ptr"], tables["out_c"],
+        rng, len(net.species), tables["w"], tables["det"], tables["code"], tables["out_ptr"],
+        tables["out_c"],
         tables["out_d"], tables["out_p"], tables["nn_ptr"], tables["nn_q"], tables["rows"],
         tables["res_ptr"], tables["res_q"],
         np.ascontiguousarray(net.species_label, dtype=np.int64),
         np.ascontiguousarray(net.initial, dtype=np.int64), times * scale, until * scale,
-        bool(stop_at_consensus), discrete, float(batch_threshold), float(_AGENT_FACTOR))
+        bool(stop_at_consensus), discrete, float(batch_threshold), float(_AGENT_FACTOR),
+        int(_JOINT_FROM_STATES))
     outcome = RunOutcome.from_indices(net, int(first), float(first_time) / scale, int(last))
     return Trajectory(times=times, counts=counts, outcome=outcome, events=int(events),
                       end_time=float(end_time) / scale, status=_STATUS[status])

@@ -14,7 +14,6 @@ from __future__ import annotations
 
 import numba
 import numpy as np
-import scipy.sparse as sp
 
 from ..network import Network
 from ..outcome import RunOutcome
@@ -25,6 +24,9 @@ __all__ = ["run_direct", "dependency_graph"]
 _STATUS = ("horizon", "silent", "consensus")
 _EXACT_SUM_BELOW = 64  # reactions: below this the total propensity is re-summed at every event
 _REFRESH_EVERY = 1024  # events between exact re-sums of the total otherwise
+# Up to this many reactions the tables are built by the kernels' plain Python versions:
+# quicker than loading compiled code for them, which a short command would wait for.
+_PYTHON_TABLES_UP_TO = 64
 
 
 def dependency_graph(net: Network) -> tuple[np.ndarray, np.ndarray]:
@@ -40,25 +42,116 @@ def dependency_graph(net: Network) -> tuple[np.ndarray, np.ndarray]:
     -------
     indptr, indices : ndarray of int64
         CSR layout: the reactions affected by reaction i are
-        ``indices[indptr[i]:indptr[i + 1]]``.
+        ``indices[indptr[i]:indptr[i + 1]]``, in increasing order.
 
     References
     ----------
     Gibson, Bruck, J. Phys. Chem. A 104:1876, 2000 (the dependency graph);
     Cao, Li, Petzold, J. Chem. Phys. 121:4059, 2004.
     """
-    changed = (net.stoichiometry != 0).astype(np.int64)
-    uses = (net.reactant_matrix != 0).astype(np.int64)
-    dep = sp.csr_matrix(changed.T @ uses)
-    dep.sort_indices()
-    return dep.indptr.astype(np.int64), dep.indices.astype(np.int64)
+    ch_ptr, ch_sp, _ = _changes(net)
+    args = (ch_ptr, ch_sp, np.ascontiguousarray(net.reactant_species),
+            np.ascontiguousarray(net.reactant_counts), net.n_species)
+    if net.n_reactions <= _PYTHON_TABLES_UP_TO:
+        return _dependencies.py_func(*args)
+    return _dependencies(*args)
 
 
 def _changes(net: Network) -> tuple[np.ndarray, np.ndarray, np.ndarray]:
-    st = sp.csc_matrix(net.stoichiometry)
-    st.sort_indices()
-    return (st.indptr.astype(np.int64), st.indices.astype(np.int64),
-            np.rint(st.data).astype(np.int64))
+    """Net change of each reaction, CSR by reaction: species in increasing order, change."""
+    args = (np.ascontiguousarray(net.reactant_species), np.ascontiguousarray(net.reactant_counts),
+            np.ascontiguousarray(net.product_species), np.ascontiguousarray(net.product_counts),
+            net.n_species)
+    if net.n_reactions <= _PYTHON_TABLES_UP_TO:
+        return _net_changes.py_func(*args)
+    return _net_changes(*args)
+
+
+# Both tables are built in compiled code rather than with scipy.sparse, whose import
+# would cost more than a short run of the command line.
+@numba.njit(cache=True)
+def _net_changes(rs, rc, ps, pc, n_species):
+    n_reactions = rs.shape[0]
+    delta = np.zeros(n_species, dtype=np.int64)
+    seen = np.zeros(n_species, dtype=np.bool_)
+    touched = np.empty(rs.shape[1] + ps.shape[1], dtype=np.int64)
+    ptr = np.zeros(n_reactions + 1, dtype=np.int64)
+    sp_out = np.empty(n_reactions * touched.shape[0], dtype=np.int64)
+    d_out = np.empty(n_reactions * touched.shape[0], dtype=np.int64)
+    k = 0
+    for j in range(n_reactions):
+        m = 0
+        for col in range(rs.shape[1]):
+            s = rs[j, col]
+            if s >= 0:
+                delta[s] -= rc[j, col]
+                if not seen[s]:
+                    seen[s] = True
+                    touched[m] = s
+                    m += 1
+        for col in range(ps.shape[1]):
+            s = ps[j, col]
+            if s >= 0:
+                delta[s] += pc[j, col]
+                if not seen[s]:
+                    seen[s] = True
+                    touched[m] = s
+                    m += 1
+        order = np.sort(touched[:m])
+        for i in range(m):
+            s = order[i]
+            if delta[s] != 0:
+                sp_out[k] = s
+                d_out[k] = delta[s]
+                k += 1
+            delta[s] = 0
+            seen[s] = False
+        ptr[j + 1] = k
+    return ptr, sp_out[:k].copy(), d_out[:k].copy()
+
+
+@numba.njit(cache=True)
+def _dependencies(ch_ptr, ch_sp, rs, rc, n_species):
+    n_reactions = rs.shape[0]
+    # reactions using each species as a reactant, CSR by species
+    use_ptr = np.zeros(n_species + 1, dtype=np.int64)
+    for j in range(n_reactions):
+        for col in range(rs.shape[1]):
+            if rs[j, col] >= 0 and rc[j, col] != 0:
+                use_ptr[rs[j, col] + 1] += 1
+    for s in range(n_species):
+        use_ptr[s + 1] += use_ptr[s]
+    fill = use_ptr[:-1].copy()
+    users = np.empty(use_ptr[-1], dtype=np.int64)
+    for j in range(n_reactions):
+        for col in range(rs.shape[1]):
+            s = rs[j, col]
+            if s >= 0 and rc[j, col] != 0:
+                users[fill[s]] = j
+                fill[s] += 1
+    mark = np.full(n_reactions, -1, dtype=np.int64)
+    ptr = np.zeros(n_reactions + 1, dtype=np.int64)
+    out = np.empty(0, dtype=np.int64)
+    k = 0
+    found = np.empty(n_reactions, dtype=np.int64)
+    for i in range(n_reactions):
+        m = 0
+        for a in range(ch_ptr[i], ch_ptr[i + 1]):
+            s = ch_sp[a]
+            for b in range(use_ptr[s], use_ptr[s + 1]):
+                j = users[b]
+                if mark[j] != i:
+                    mark[j] = i
+                    found[m] = j
+                    m += 1
+        if k + m > out.shape[0]:
+            grown = np.empty(max(2 * out.shape[0], k + m), dtype=np.int64)
+            grown[:k] = out[:k]
+            out = grown
+        out[k:k + m] = np.sort(found[:m])
+        k += m
+        ptr[i + 1] = k
+    return ptr, out[:k].copy()
 
 
 @numba.njit(cache=True)
@@ -90,7 +183,7 @@ def _label_now(present, unlabeled, n_labels):
     return found
 
 
-@numba.njit(cache=True)
+@numba.njit(cache=True, nogil=True)  # nogil: Ctrl-C is seen during a run
 def _kernel(rs, rc, c, ch_ptr, ch_sp, ch_d, dep_ptr, dep_idx, species_label, n_labels,
             x0, times, until, stop_at_consensus, rng):
     n_species = x0.shape[0]

@@ -1,4 +1,4 @@
-"""The JSON contract object of a network (DESIGN.md, ``crn translate --json``) and its reader.
+"""The JSON contract object of a network (docs/design.md, ``crn translate --json``) and its reader.
 
 The object holds at least ``species``, ``initial``, ``volume`` and
 ``reactions`` (each ``{reactants: {name: mult}, products: {name: mult},
@@ -196,4 +196,7 @@ def network_from_json(text: str, *, source: str = "<json>") -> Network:
         data = json.loads(text)
     except json.JSONDecodeError as err:
         raise ModelError(f"malformed JSON: {err.msg}", file=source, line=err.lineno) from err
+    except RecursionError as err:
+        raise ModelError("malformed JSON: arrays or objects nested too deeply",
+                         file=source) from err
     return network_from_dict(data, source=source)

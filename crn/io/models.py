@@ -2,7 +2,9 @@
 
 from __future__ import annotations
 
+import contextlib
 import runpy
+import signal
 from collections.abc import Mapping
 from pathlib import Path
 
@@ -12,7 +14,14 @@ from ..network import Network
 from ..protocol import Protocol
 from ..translate import protocol_to_network
 
-__all__ = ["load_model"]
+__all__ = ["load_model", "MAX_MODEL_BYTES", "PYTHON_MODEL_TIMEOUT"]
+
+MAX_MODEL_BYTES = 64 * 2**20
+"""Model files above this size are refused before they are read (the largest published
+SBML models are a few MB)."""
+
+PYTHON_MODEL_TIMEOUT = 60.0
+"""Seconds a Python model file may take to run and build its network."""
 
 
 def load_model(path, overrides=None) -> Model:
@@ -21,7 +30,7 @@ def load_model(path, overrides=None) -> Model:
     Parameters
     ----------
     path : str or Path
-        A ``.toml`` model (DESIGN.md format, never runs code), a network
+        A ``.toml`` model (docs/design.md format, never runs code), a network
         exported as ``.json`` (the contract object) or SBML (``.xml``,
         ``.sbml``), or a ``.py`` model. A Python model file is ordinary
         trusted Python: it is run, so load only files you trust. It defines
@@ -44,6 +53,10 @@ def load_model(path, overrides=None) -> Model:
     if not path.is_file():
         raise ModelError("no such model file", file=path)
     try:
+        size = path.stat().st_size
+        if size > MAX_MODEL_BYTES:
+            raise ModelError(f"the file has {size / 2**20:,.0f} MiB, more than a model file "
+                             f"may have ({MAX_MODEL_BYTES // 2**20} MiB)", file=path)
         text = path.read_text(encoding="utf-8")
     except (OSError, UnicodeDecodeError) as err:
         raise ModelError(f"cannot read the file: {err}", file=path) from err
@@ -62,15 +75,60 @@ def _load_network(path: Path, text: str, overrides) -> Model:
     if overrides:
         raise ModelError(f"--set names unknown parameter {next(iter(overrides))!r} "
                          "(parameters: none)", file=path, field="--set")
+    if path.suffix != ".json" and "<!entity" in text.lower():
+        # entity declarations can expand without bound ("billion laughs"); SBML needs none
+        raise ModelError("XML entity declarations (<!ENTITY ...>) are not accepted in SBML",
+                         file=path)
     reader = network_from_json if path.suffix == ".json" else network_from_sbml
     net = reader(text, source=str(path))
     return Model(net.name, net.about, str(path), {}, net)
 
 
+class _TimedOut(BaseException):
+    """Raised into a Python model that runs past PYTHON_MODEL_TIMEOUT."""
+
+
+@contextlib.contextmanager
+def _time_limit(path: Path, seconds: float):
+    """Stop the block after ``seconds`` (main thread only; elsewhere no limit)."""
+    def expire(signum, frame):
+        raise _TimedOut
+
+    try:
+        previous = signal.signal(signal.SIGALRM, expire)
+    except ValueError:  # not the main thread
+        yield
+        return
+    signal.setitimer(signal.ITIMER_REAL, seconds)
+    try:
+        yield
+    except _TimedOut as err:
+        raise ModelError(f"the Python model did not finish within {seconds:g} s (an endless "
+                         "loop?); it was stopped", file=path) from err
+    finally:
+        signal.setitimer(signal.ITIMER_REAL, 0)
+        signal.signal(signal.SIGALRM, previous)
+
+
+def _own_interrupt(err: BaseException) -> bool:
+    """A KeyboardInterrupt the model raised itself (no Ctrl-C or SIGTERM arrived)."""
+    from .. import interrupts
+
+    return isinstance(err, KeyboardInterrupt) and interrupts.received() is None
+
+
 def _load_python(path: Path, overrides) -> Model:
+    with _time_limit(path, PYTHON_MODEL_TIMEOUT):
+        return _run_python(path, overrides)
+
+
+def _run_python(path: Path, overrides) -> Model:
     try:
         namespace = runpy.run_path(str(path))
-    except (Exception, SystemExit) as err:  # a trusted file: report what it raised, in one line
+    except (Exception, SystemExit, KeyboardInterrupt) as err:
+        # a trusted file: report what it raised, in one line
+        if isinstance(err, KeyboardInterrupt) and not _own_interrupt(err):
+            raise
         raise ModelError(f"running the Python model failed: {type(err).__name__}: {err}",
                          file=path) from err
     build = namespace.get("build")

@@ -9,25 +9,39 @@ import numpy as np
 
 from .atomic import write_atomic
 
-__all__ = ["runs_csv", "write_runs_csv"]
+__all__ = ["runs_csv", "write_runs_csv", "PARTIAL_MARK"]
 
 _COLUMNS = ("run", "label", "consensus_time", "final_label", "held", "events", "end_time",
             "status")
 
 
-def runs_csv(ensemble) -> str:
+PARTIAL_MARK = "# partial:"
+"""Start of the first line of a CSV that holds only the runs finished before a stop."""
+
+
+def runs_csv(ensemble, note: str | None = None) -> str:
     """One CSV row per run: run index, first consensus label (``none``) and time, final label,
     whether it held, events fired, end time, status, then the final count of each species.
+
+    An ensemble with fewer runs than requested starts with a comment line
+    ``# partial: K of N runs (NOTE); ...`` so a reader knows the table is
+    incomplete (``pandas.read_csv(..., comment="#")`` skips it).
 
     Parameters
     ----------
     ensemble : crn.simulate.Ensemble
+    note : str, optional
+        Why the ensemble is incomplete (``"interrupted"``).
 
     Returns
     -------
     str
     """
     out = io.StringIO()
+    if ensemble.runs < ensemble.requested:
+        why = f" ({note})" if note else ""
+        out.write(f"{PARTIAL_MARK} {ensemble.runs} of {ensemble.requested} runs{why}; "
+                  "the rows are the finished runs\n")
     writer = csv.writer(out, lineterminator="\n")
     writer.writerow([*_COLUMNS, *(f"final_{s}" for s in ensemble.species)])
     for r in range(ensemble.runs):
@@ -47,12 +61,14 @@ def runs_csv(ensemble) -> str:
     return out.getvalue()
 
 
-def write_runs_csv(ensemble, path) -> None:
+def write_runs_csv(ensemble, path, note: str | None = None) -> None:
     """Write :func:`runs_csv` to ``path`` atomically (temporary file and rename).
 
     Parameters
     ----------
     ensemble : crn.simulate.Ensemble
+    note : str, optional
+        Why the ensemble is incomplete, for the ``# partial`` line.
     path : str or Path
         The CSV file to create or replace.
 
@@ -61,4 +77,4 @@ def write_runs_csv(ensemble, path) -> None:
     CRNError
         When the file cannot be written.
     """
-    write_atomic(path, runs_csv(ensemble))
+    write_atomic(path, runs_csv(ensemble, note))

@@ -27,7 +27,6 @@ from __future__ import annotations
 import math
 import re
 import xml.etree.ElementTree as ET
-from xml.sax.saxutils import quoteattr
 
 from ..errors import ModelError
 from ..network import Network, Reaction
@@ -66,6 +65,8 @@ def _model_id(name: str) -> str:
 
 
 def _annotation(tag: str, attributes: dict[str, str], text: str | None = None) -> str:
+    from xml.sax.saxutils import quoteattr  # imports urllib: only when writing SBML
+
     attrs = "".join(f" {k}={quoteattr(v)}" for k, v in attributes.items())
     body = "" if text is None else f"<{_PREFIX}:about>{_escape(text)}</{_PREFIX}:about>"
     return (f"<annotation><{_PREFIX}:{tag} xmlns:{_PREFIX}=\"{NAMESPACE}\"{attrs}>{body}"
@@ -344,6 +345,10 @@ def _to_sympy(node, symbols):
             raise _NeedsSize(value.message)
         return value
     args = [_to_sympy(child, symbols) for child in children]
+    binary = (libsbml.AST_DIVIDE, libsbml.AST_POWER, libsbml.AST_FUNCTION_POWER)
+    if (kind in binary and len(args) != 2) or (kind == libsbml.AST_MINUS
+                                               and len(args) not in (1, 2)):
+        raise _NotMassAction("an operator with missing or extra operands")
     if kind == libsbml.AST_PLUS:
         return sympy.Add(*args)
     if kind == libsbml.AST_TIMES:
@@ -355,14 +360,23 @@ def _to_sympy(node, symbols):
     if kind in (libsbml.AST_POWER, libsbml.AST_FUNCTION_POWER):
         if not args[1].is_Integer:
             raise _NotMassAction("a power that is not a whole number")
+        if abs(args[1]) > _MAX_STOICHIOMETRY:
+            raise _NotMassAction(f"a power above {_MAX_STOICHIOMETRY}")
         return args[0] ** args[1]
     raise _NotMassAction(f"the operator {libsbml.formulaToL3String(node)!r}")
+
+
+_MAX_STOICHIOMETRY = 1000
+"""Larger stoichiometries are refused: mass-action laws of that order are not chemistry, and
+expanding them symbolically would not finish."""
 
 
 def _q(x):
     """A float as the exact sympy rational it stands for."""
     import sympy
 
+    if not math.isfinite(float(x)):
+        return sympy.nan  # makes the law's rate constant non-real: refused as not mass action
     return sympy.Rational(*float(x).as_integer_ratio())
 
 
@@ -377,7 +391,7 @@ def _rate_constant(expr, reactants, volume):
     """Rate constant k of a mass-action law (a sympy expression over amounts), or raise.
 
     The law must equal ``c * prod_s x_s (x_s - 1) ... (x_s - r_s + 1)`` (the propensity
-    convention of DESIGN.md: ``2 A`` counts a (a - 1), no 1/2) or ``c * prod_s x_s^r_s`` (the
+    convention of docs/design.md: ``2 A`` counts a (a - 1), no 1/2) or ``c * prod_s x_s^r_s`` (the
     deterministic form, read with the same constant) for a number c >= 0, in any
     algebraically equivalent form; then ``k = c * volume^(order - 1)``.
     """
@@ -573,7 +587,7 @@ def network_from_sbml(text: str, *, source: str = "<sbml>") -> Network:
     ``hasOnlySubstanceUnits`` is false stands for ``x_s / size``), so
     ``k * X * (X - 1) / 2``, ``k * X / 2 / 0.5`` and ``cell * k * X`` are all
     read. The rate constant is ``c * volume^(order - 1)`` under this project's
-    propensity convention (DESIGN.md): ``k * X * (X - 1) / 2`` for ``2 X`` gives
+    propensity convention (docs/design.md): ``k * X * (X - 1) / 2`` for ``2 X`` gives
     ``k / 2``.
 
     References
@@ -671,6 +685,9 @@ def network_from_sbml(text: str, *, source: str = "<sbml>") -> Network:
                 if not math.isfinite(m) or not float(m).is_integer() or m < 0:
                     raise refuse(f"reaction {rid}: stoichiometry {m} of {ref.getSpecies()} is "
                                  "not a whole number", rid)
+                if m > _MAX_STOICHIOMETRY:
+                    raise refuse(f"reaction {rid}: stoichiometry {m:g} of {ref.getSpecies()} "
+                                 f"is above {_MAX_STOICHIOMETRY}", rid)
                 if m:
                     side[ref.getSpecies()] = side.get(ref.getSpecies(), 0) + int(m)
             sides.append(side)
@@ -692,6 +709,12 @@ def network_from_sbml(text: str, *, source: str = "<sbml>") -> Network:
             rate = _rate_constant(_to_sympy(law.getMath(), local), reactants, volume)
         except _NeedsSize as err:
             raise refuse(f"reaction {rid}: {err}", rid) from None
+        except (TypeError, ValueError, ZeroDivisionError, OverflowError) as err:
+            # a law sympy cannot reduce to a real constant (k / 0, ...): not mass action
+            formula = libsbml.formulaToL3String(law.getMath())
+            raise refuse(f"reaction {rid}: kinetic law {formula!r} is not mass action "
+                         f"(no real rate constant: {type(err).__name__}); only mass-action "
+                         "laws are imported", rid) from None
         except _NotMassAction as err:
             formula = libsbml.formulaToL3String(law.getMath())
             hint = ("; write a reversible reaction as two irreversible ones"

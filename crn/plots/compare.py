@@ -24,7 +24,8 @@ def ensemble_fractions(ensemble) -> np.ndarray:
     return np.divide(counts, total, out=np.zeros_like(counts), where=total > 0)
 
 
-def plot_compare(ode, ensemble, *, ax=None, title: str | None = None, disagreement=None):
+def plot_compare(ode, ensemble, *, ax=None, title: str | None = None, disagreement=None,
+                 seconds_per_time: float | None = None):
     """Plot the ODE's share of each species over the ensemble's mean and 5-95% band.
 
     Parameters
@@ -37,12 +38,16 @@ def plot_compare(ode, ensemble, *, ax=None, title: str | None = None, disagreeme
     title : str, optional
     disagreement : (p, low, high), optional
         Probability that a run's label differs from the ODE's, shown in the legend.
+    seconds_per_time : float, optional
+        Seconds in one unit of time; adds a second time axis in minutes.
 
     Returns
     -------
     matplotlib.axes.Axes
     """
     import matplotlib.pyplot as plt
+
+    from .time_axis import label_time_axis
 
     if ax is None:
         _, ax = plt.subplots(figsize=(9, 5), layout="constrained")
@@ -74,8 +79,7 @@ def plot_compare(ode, ensemble, *, ax=None, title: str | None = None, disagreeme
         handles.append(Line2D([], [], ls="", label=f"P(run's label differs from ODE)\n"
                                                    f"= {p:.3f}, 95% [{low:.3f}, {high:.3f}]"))
     protocol = ode.units == "fraction"
-    ax.set_xlabel("parallel time (interactions per agent)" if protocol
-                  else "time (network time units)")
+    label_time_axis(ax, protocol, seconds_per_time)
     ax.set_ylabel("fraction of the population" if protocol else "fraction of all molecules")
     ax.set_xlim(0, float(ensemble.times[-1]) if ensemble.times.size else 1.0)
     ax.set_ylim(-0.02, 1.02)

@@ -5,7 +5,8 @@ from __future__ import annotations
 __all__ = ["plot_mean_field"]
 
 
-def plot_mean_field(result, *, ax=None, title: str | None = None):
+def plot_mean_field(result, *, ax=None, title: str | None = None,
+                    seconds_per_time: float | None = None):
     """Plot each species' fraction of the population against time.
 
     Parameters
@@ -15,12 +16,16 @@ def plot_mean_field(result, *, ax=None, title: str | None = None):
         Axes to draw on; a new figure when None.
     title : str, optional
         Default ``"Mean-field ODE"`` (with the consensus, if any).
+    seconds_per_time : float, optional
+        Seconds in one unit of time; adds a second time axis in minutes.
 
     Returns
     -------
     matplotlib.axes.Axes
     """
     import matplotlib.pyplot as plt
+
+    from .time_axis import label_time_axis
 
     if ax is None:
         _, ax = plt.subplots(figsize=(7, 4.5), layout="constrained")
@@ -31,8 +36,7 @@ def plot_mean_field(result, *, ax=None, title: str | None = None):
         ax.axvline(outcome.time, color="0.3", ls="--", lw=1,
                    label=f"consensus on {outcome.label} at t = {outcome.time:.4g}")
     protocol = result.units == "fraction"
-    ax.set_xlabel("parallel time (interactions per agent)" if protocol
-                  else "time (network time units)")
+    label_time_axis(ax, protocol, seconds_per_time)
     ax.set_ylabel("fraction of the population" if protocol
                   else "fraction of all molecules (concentration / total)")
     ax.set_ylim(-0.02, 1.02)

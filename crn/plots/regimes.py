@@ -67,8 +67,9 @@ def plot_regime_map(regime_map, *, ax=None, title: str | None = None):
     if boundary.exponent is not None:
         grid = np.geomspace(ns.min(), ns.max(), 50)
         ax.plot(grid, boundary.prefactor * grid ** boundary.exponent, "--", c=PALETTE[4],
-                label=f"fit: gap ~ n^{boundary.exponent:.2f} "
-                      f"[{boundary.low:.2f}, {boundary.high:.2f}]")
+                label=f"fit: gap ~ n^{boundary.exponent:.2f}"
+                      + ("" if boundary.low is None else
+                         f" (95% CI {boundary.low:.2f} .. {boundary.high:.2f})"))
     ax.set_xscale("log")
     ax.set_yscale("log")
     ax.set_xlabel("n (agents / molecules of the two inputs)")
@@ -81,21 +82,24 @@ def plot_regime_map(regime_map, *, ax=None, title: str | None = None):
 
 
 def plot_feasibility(rows, *, ax=None, title: str | None = None, chosen=None,
-                     risk: float | None = None, deadline_hours: float | None = None):
-    """Droplet volume against concentration with the feasible region shaded.
+                     risk: float | None = None, deadline_hours: float | None = None,
+                     note: str | None = None):
+    """Droplet volume (fL) against concentration (nM) with the feasible region shaded.
 
     Parameters
     ----------
     rows : sequence of dict
         One per concentration: ``concentration_molar``, ``volume_liters``
         (smallest feasible droplet volume, None when no volume meets the
-        deadline), ``copies``.
+        deadline), ``copies``. Values are in SI units; the axes show nM and fL.
     ax : matplotlib.axes.Axes, optional
     title : str, optional
     chosen : dict, optional
         The recommended row, starred.
     risk, deadline_hours : float, optional
         For the title.
+    note : str, optional
+        A footnote under the axes (the wet-lab caution).
 
     Returns
     -------
@@ -104,35 +108,37 @@ def plot_feasibility(rows, *, ax=None, title: str | None = None, chosen=None,
     import matplotlib.pyplot as plt
     import numpy as np
 
-    from ..units import AVOGADRO
+    from ..units import CONCENTRATION_UNITS, VOLUME_UNITS, volume_for
 
+    nano, femto = CONCENTRATION_UNITS["nM"], VOLUME_UNITS["fL"]
     if ax is None:
-        _, ax = plt.subplots(figsize=(7, 5), layout="constrained")
+        _, ax = plt.subplots(figsize=(7, 5.4 if note else 5), layout="constrained")
     feasible = [r for r in rows if r.get("volume_liters")]
     infeasible = [r for r in rows if not r.get("volume_liters")]
     conc_all = np.array([r["concentration_molar"] for r in rows])
-    top = max([r["volume_liters"] for r in feasible], default=1e-12) * 100
+    top = max([r["volume_liters"] for r in feasible], default=1e-12) * 100 / femto
     if feasible:
-        c = np.array([r["concentration_molar"] for r in feasible])
-        v = np.array([r["volume_liters"] for r in feasible])
+        c = np.array([r["concentration_molar"] for r in feasible]) / nano
+        v = np.array([r["volume_liters"] for r in feasible]) / femto
         ax.fill_between(c, v, top, color="tab:green", alpha=0.25,
                         label="feasible: meets risk and deadline")
         ax.plot(c, v, "o-", c="tab:green", label="smallest droplet volume")
     if infeasible:
-        c = np.array([r["concentration_molar"] for r in infeasible])
+        c = np.array([r["concentration_molar"] for r in infeasible]) / nano
         ax.axvspan(c.min() / 1.3, c.max() * 1.3, color="0.85",
                    label="too slow for the deadline at any volume")
     for n in (1e3, 1e4, 1e5):
-        ax.plot(conc_all, n / (conc_all * AVOGADRO), ":", c="0.5", lw=0.8)
-        ax.annotate(f"{n:.0e} copies", (conc_all[-1], n / (conc_all[-1] * AVOGADRO)),
+        ax.plot(conc_all / nano, [volume_for(n, c) / femto for c in conc_all], ":", c="0.5",
+                lw=0.8)
+        ax.annotate(f"{n:.0e} copies", (conc_all[-1] / nano, volume_for(n, conc_all[-1]) / femto),
                     fontsize=7, color="0.4", ha="right", va="bottom")
     if chosen is not None and chosen.get("volume_liters"):
-        ax.scatter([chosen["concentration_molar"]], [chosen["volume_liters"]], marker="*",
-                   s=250, c="tab:red", zorder=5, label="smallest droplet")
+        ax.scatter([chosen["concentration_molar"] / nano], [chosen["volume_liters"] / femto],
+                   marker="*", s=250, c="tab:red", zorder=5, label="smallest droplet")
     ax.set_xscale("log")
     ax.set_yscale("log")
-    ax.set_xlabel("total strand concentration (M)")
-    ax.set_ylabel("droplet volume (L)")
+    ax.set_xlabel("total strand concentration (nM)")
+    ax.set_ylabel("droplet volume (fL)")
     parts = []
     if risk is not None:
         parts.append(f"risk {risk:g}")
@@ -144,4 +150,12 @@ def plot_feasibility(rows, *, ax=None, title: str | None = None, chosen=None,
     if not math.isfinite(top):
         ax.autoscale()
     ax.legend(fontsize=7, loc="lower left")
+    if note:
+        import textwrap
+
+        ax.figure.text(0.01, 0.005, "\n".join(textwrap.wrap(note, 130)), fontsize=6,
+                       color="0.3", ha="left", va="bottom")
+        engine = ax.figure.get_layout_engine()
+        if engine is not None and hasattr(engine, "set"):
+            engine.set(rect=(0, 0.09, 1, 0.91))
     return ax

@@ -278,7 +278,17 @@ def _copies(networks, settings, seed) -> dict:
     return {"n": {"estimate": result.estimate, "low": result.low, "high": result.high},
             "gap": result.gap_estimate, "risk": settings.risk, "deadline": result.deadline,
             "deadline_seconds": settings.deadline_seconds, "median_time": result.median_time,
-            "method": result.method, "seed": result.seed_entropy, **phys}
+            "method": result.method, "seed": result.seed_entropy,
+            "bracket": {"passes": result.estimate, "fails": result.below},
+            "p_wrong": _p_wrong(result.at_estimate), **phys}
+
+
+def _p_wrong(probe) -> dict | None:
+    if probe is None:
+        return None
+    p, low, high = probe.p_wrong
+    return {"estimate": p, "low": low, "high": high, "runs": probe.trials,
+            "method": probe.method}
 
 
 def _as_regime_map(obj):
@@ -294,9 +304,11 @@ def _as_regime_map(obj):
         boundary = Boundary(
             exponent=b.get("estimate"), low=b.get("low"), high=b.get("high"),
             prefactor=b.get("prefactor"),
-            critical_gaps=tuple((c["n"], c["gap"]) for c in b.get("critical_gaps", ())))
+            critical_gaps=tuple((c["n"], c["gap"]) for c in b.get("critical_gaps", ())),
+            grid_low=b.get("grid_low"), grid_high=b.get("grid_high"), note=b.get("note") or "")
         return RegimeMap(cells=cells, boundary=boundary, risk=float(obj["risk"]),
                          time_factor=float(obj.get("time_factor", 2.0)),
-                         seed_entropy=int(obj.get("seed") or 0))
+                         seed_entropy=int(obj.get("seed") or 0),
+                         merged=tuple(obj.get("merged") or ()))
     except (KeyError, TypeError, ValueError) as err:
         raise CRNError(f"regimes.json: not a saved regime map ({err})") from err

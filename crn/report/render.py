@@ -133,7 +133,18 @@ def _copies_view(copies):
                      else format_time(copies["deadline_seconds"])),
         "median_time": _g(copies.get("median_time")),
         "method": copies.get("method") or "-",
+        "p_wrong": _p_wrong_text(copies.get("p_wrong")),
+        "fails": (copies.get("bracket") or {}).get("fails"),
     }
+
+
+def _p_wrong_text(p):
+    if not p:
+        return None
+    if p.get("method") == "exact":
+        return f"{_g(p['estimate'], '.3g')} (exact)"
+    return (f"{_g(p['estimate'], '.3g')} (95% interval {_g(p['low'], '.3g')} to "
+            f"{_g(p['high'], '.3g')}, {p.get('runs') or 0:,} runs)")
 
 
 def render_report(data, *, command_line: str = "", created: str | None = None) -> str:
