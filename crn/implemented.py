@@ -305,7 +305,9 @@ class Diagnosis:
     def text(self) -> str:
         """One sentence for the designer."""
         if self.reason == "decides":
-            return f"the implementation decides {self.label} at {self.time:.4g}"
+            return (f"its mean field decides {self.label} at {self.time:.4g}, so the risk stays "
+                    "above the target through stochastic error alone up to the largest n "
+                    "searched: raise --n-max or relax the risk")
         low = min(self.fuel_left.values()) if self.fuel_left else None
         if self.reason == "fuel runs out":
             return (f"fuel runs out (least fuel left {low:.1%}) before the signals decide: "
