@@ -53,7 +53,7 @@ from .probes import (
 from .units import concentration_for, to_seconds, volume_for
 
 __all__ = ["Probe", "CopiesResult", "Prober", "Lattice", "lattice", "smallest_n",
-           "physical_outputs"]
+           "physical_outputs", "p_wrong_summary"]
 
 _TIMING_RUNS = 200
 
@@ -680,3 +680,22 @@ def physical_outputs(n: int | None, *, concentration_molar: float | None = None,
         seconds = to_seconds(parallel_time, rate, conc)
     return {"concentration_molar": conc, "volume_liters": vol, "seconds": seconds,
             "hours": None if seconds is None else seconds / 3600.0}
+
+
+def p_wrong_summary(probe) -> dict | None:
+    """P(no correct decision by the deadline) at a probe, with its 95% interval.
+
+    Parameters
+    ----------
+    probe : Probe or None
+
+    Returns
+    -------
+    dict or None
+        ``{estimate, low, high, runs, method}``; None without a probe.
+    """
+    if probe is None:
+        return None
+    p, low, high = probe.p_wrong
+    return {"estimate": p, "low": low, "high": high, "runs": probe.trials,
+            "method": probe.method}

@@ -82,7 +82,7 @@ def copies(model, sets, gap_fraction, gap, risk, deadline, concentration, volume
     With --implement the search runs on the DNA implementation, beside the formal answer:
     more copies, a later decision, or no droplet size at all and why (fuel runs out, leak
     dominates)."""
-    from ..copies import physical_outputs, smallest_n
+    from ..copies import p_wrong_summary, physical_outputs, smallest_n
 
     settings = dna_settings(implement, fuel=fuel, max_rate=max_rate, toehold=toehold,
                             leak=leak, rate=rate, concentration=concentration)
@@ -153,8 +153,8 @@ def copies(model, sets, gap_fraction, gap, risk, deadline, concentration, volume
             "method": result.method,
             "loading": result.loading,
             "bracket": {"passes": result.estimate, "fails": result.below},
-            "p_wrong": _p_wrong(result.at_estimate),
-            "p_wrong_below": _p_wrong(result.at_below),
+            "p_wrong": p_wrong_summary(result.at_estimate),
+            "p_wrong_below": p_wrong_summary(result.at_below),
             "risk_parts": _risk_parts(result.at_estimate),
             "seed": result.seed_entropy,
             "probes": [p.__dict__ for p in result.probes],
@@ -209,15 +209,6 @@ def _implementation_text(answer, settings) -> str:
     if answer.diagnosis is not None:
         lines.append(f"  no droplet size works: {answer.diagnosis.text()}")
     return "\n".join(lines)
-
-
-def _p_wrong(probe) -> dict | None:
-    """P(no correct decision by the deadline) at a probe, with its 95% interval."""
-    if probe is None:
-        return None
-    p, low, high = probe.p_wrong
-    return {"estimate": p, "low": low, "high": high, "runs": probe.trials,
-            "method": probe.method}
 
 
 def _risk_parts(probe) -> dict | None:

@@ -261,7 +261,7 @@ def _exact(net):
 
 
 def _copies(networks, settings, seed) -> dict:
-    from ..copies import physical_outputs, smallest_n
+    from ..copies import p_wrong_summary, physical_outputs, smallest_n
     from ..units import to_parallel_time
 
     deadline = None
@@ -280,15 +280,8 @@ def _copies(networks, settings, seed) -> dict:
             "deadline_seconds": settings.deadline_seconds, "median_time": result.median_time,
             "method": result.method, "seed": result.seed_entropy,
             "bracket": {"passes": result.estimate, "fails": result.below},
-            "p_wrong": _p_wrong(result.at_estimate), **phys}
+            "p_wrong": p_wrong_summary(result.at_estimate), **phys}
 
-
-def _p_wrong(probe) -> dict | None:
-    if probe is None:
-        return None
-    p, low, high = probe.p_wrong
-    return {"estimate": p, "low": low, "high": high, "runs": probe.trials,
-            "method": probe.method}
 
 
 def _as_regime_map(obj):
