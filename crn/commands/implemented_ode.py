@@ -75,28 +75,15 @@ def run_implemented_ode(loaded, settings, *, until, times, method, plot_file, cs
     """Solve the implementation's mean field and print or write it (the ``ode`` command)."""
     from ..implemented import formal_ode_horizon, fuel_left_ode
     from ..ode import solve_mean_field
-    from .ode import _print_equations, mean_field_json
+    from .ode import _print_equations, mean_field_json, sample_times
 
     formal = loaded.network
     impl = implement_network(formal, settings)
     if equations or latex:
         _print_equations(impl.network, latex, as_json)
         return
-    if times is not None and until is not None and times[-1] > until:
-        raise click.BadParameter(f"time {times[-1]:g} is beyond --until {until:g}",
-                                 param_hint="--at")
-    if every is not None:
-        from .options import sample_times_option_value
-
-        if times is not None:
-            raise click.BadParameter("give either --at or --every, not both",
-                                     param_hint="--every")
-        times = sample_times_option_value(
-            every, formal_ode_horizon(formal) if until is None else until, force)
-        until = float(times[-1])
-    elif in_counts:
-        raise click.BadParameter("--counts applies to the time course of --every",
-                                 param_hint="--counts")
+    times, until = sample_times(times, until, every, force, in_counts,
+                                lambda: formal_ode_horizon(formal))
     horizon = until if until is not None else (
         float(times[-1]) if times is not None and times[-1] > 0 else formal_ode_horizon(formal))
     result = solve_mean_field(impl.network, until=horizon, times=times, method=method,

@@ -169,22 +169,10 @@ def ode(model, sets, until, at, plot_file, csv_file, as_json, equations, latex, 
     if equations or latex:
         _print_equations(net, latex, as_json)
         return
-    times = _parse_times(at)
-    if times is not None and until is not None and times[-1] > until:
-        raise click.BadParameter(f"time {times[-1]:g} is beyond --until {until:g}",
-                                 param_hint="--at")
-    if every is not None:
-        if times is not None:
-            raise click.BadParameter("give either --at or --every, not both",
-                                     param_hint="--every")
-        from ..ode import default_horizon
+    from ..ode import default_horizon
 
-        times = sample_times_option_value(every, default_horizon(net) if until is None
-                                          else until, force)
-        until = float(times[-1])
-    elif in_counts:
-        raise click.BadParameter("--counts applies to the time course of --every",
-                                 param_hint="--counts")
+    times, until = sample_times(_parse_times(at), until, every, force, in_counts,
+                                lambda: default_horizon(net))
     result = solve_mean_field(net, until=until, times=times, method=method,
                               stop_at_consensus=times is None)
     course = None
@@ -218,6 +206,39 @@ def ode(model, sets, until, at, plot_file, csv_file, as_json, equations, latex, 
         text += (f"\ntime course: {course.times.size} samples every {every:g} up to "
                  f"{course.times[-1]:.6g}, in {course.units} (--json or --csv to see it)")
     click.echo(text)
+
+
+def sample_times(times, until, every, force, in_counts, horizon):
+    """Check ``--at``/``--every``/``--counts`` together and give the sample times and horizon.
+
+    Parameters
+    ----------
+    times : ndarray or None
+        Parsed ``--at`` times.
+    until : float or None
+    every : float or None
+    force : bool
+    in_counts : bool
+    horizon : callable () -> float
+        The default horizon, used by ``--every`` without ``--until``.
+
+    Returns
+    -------
+    (ndarray or None, float or None)
+    """
+    if times is not None and until is not None and times[-1] > until:
+        raise click.BadParameter(f"time {times[-1]:g} is beyond --until {until:g}",
+                                 param_hint="--at")
+    if every is not None:
+        if times is not None:
+            raise click.BadParameter("give either --at or --every, not both",
+                                     param_hint="--every")
+        times = sample_times_option_value(every, horizon() if until is None else until, force)
+        until = float(times[-1])
+    elif in_counts:
+        raise click.BadParameter("--counts applies to the time course of --every",
+                                 param_hint="--counts")
+    return times, until
 
 
 def _print_equations(net, latex: bool, as_json: bool) -> None:
