@@ -18,7 +18,7 @@ __all__ = ["DNA_SETTINGS", "dna_section"]
 DNA_SETTINGS = {
     "full": dict(concentration="10nM", slow_rate="1e5/M/s", leaks=[10.0],
                  stochastic_fuel="100nM", gap_fraction=0.2, risk=0.01, copies_runs_max=400,
-                 tolerance_n=60, tolerance_gap=30, tolerance_runs_max=400, n_max=2000),
+                 tolerance_n=60, tolerance_gap=30, tolerance_runs_max=400, n_max=1000),
     "quick": dict(concentration="10nM", slow_rate="1e5/M/s", leaks=[10.0],
                   stochastic_fuel="100nM", gap_fraction=0.4, risk=0.05, copies_runs_max=100,
                   tolerance_n=30, tolerance_gap=16, tolerance_runs_max=100, n_max=200),
