@@ -34,11 +34,11 @@ from pathlib import Path
 
 import numpy as np
 
+from crn.core.generate import protocol_from_rule
+from crn.core.translate import protocol_to_network
 from crn.engines.batched import run_batched
 from crn.engines.direct import run_direct
-from crn.generate import protocol_from_rule
 from crn.io.models import load_model
-from crn.translate import protocol_to_network
 
 MODEL = Path(__file__).resolve().parent.parent / "models" / "approximate_majority.toml"
 

@@ -16,9 +16,9 @@ import resource
 import time
 import tracemalloc
 
-from crn.configurations import enumerate_configurations
-from crn.exact import exact_outcomes, solve_absorption
 from crn.io.models import load_model
+from crn.solvers.configurations import enumerate_configurations
+from crn.solvers.exact import exact_outcomes, solve_absorption
 
 GOAL_SECONDS = 30.0
 GOAL_BYTES = 4 * 2**30

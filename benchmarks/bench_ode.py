@@ -23,9 +23,9 @@ import warnings
 
 import numpy as np
 
-from crn.generate import protocol_from_rule
-from crn.ode import initial_state, mean_field_system, solve_mean_field
-from crn.translate import protocol_to_network
+from crn.core.generate import protocol_from_rule
+from crn.core.translate import protocol_to_network
+from crn.solvers.ode import initial_state, mean_field_system, solve_mean_field
 
 BIG_LEVELS, BIG_WIDTH = 334, 40
 GILLESPY2_BUDGET = 60.0

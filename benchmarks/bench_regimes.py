@@ -43,9 +43,9 @@ import argparse
 import time
 from pathlib import Path
 
+from crn.analyses.probes import InitialSplit
+from crn.analyses.regimes import regime_map
 from crn.io.models import load_model
-from crn.probes import InitialSplit
-from crn.regimes import regime_map
 
 ROOT = Path(__file__).resolve().parent.parent
 NS = [100, 1_000, 10_000, 100_000, 1_000_000, 10_000_000]

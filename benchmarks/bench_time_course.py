@@ -19,8 +19,8 @@ import tracemalloc
 import numpy as np
 
 from crn.io.models import load_model
-from crn.simulate import simulate
-from crn.time_course import TimeCourseAccumulator, sample_times
+from crn.solvers.simulate import simulate
+from crn.solvers.time_course import TimeCourseAccumulator, sample_times
 
 
 def main() -> None:

@@ -22,7 +22,7 @@ from pathlib import Path
 import atheris
 
 with atheris.instrument_imports():
-    from crn.errors import CRNError
+    from crn.core.errors import CRNError
     from crn.io.contract import network_to_json
     from crn.io.models import load_model
     from crn.io.sbml import network_to_sbml

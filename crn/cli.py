@@ -12,8 +12,8 @@ import sys
 
 import click
 
-from . import __version__
-from .errors import CRNError, WorkerError
+from crn import __version__
+from crn.core.errors import CRNError, WorkerError
 
 __all__ = ["cli", "main"]
 
@@ -30,7 +30,7 @@ def cli():
 
 
 def _register():
-    from .commands import COMMANDS
+    from crn.commands import COMMANDS
 
     for command in COMMANDS:
         cli.add_command(command)
@@ -44,11 +44,11 @@ def main(argv=None) -> int:
 
     Exit 0; 1 when the work itself failed (lost worker processes); 2 with a
     one-line error for bad input; 130 after Ctrl-C and 143 after SIGTERM (both
-    stop the command the same way, see :mod:`crn.interrupts`).
+    stop the command the same way, see :mod:`crn.runtime.interrupts`).
     """
     import warnings
 
-    from . import interrupts
+    from crn.runtime import interrupts
 
     with warnings.catch_warnings(), interrupts.handling():
         warnings.showwarning = _show_warning
@@ -70,7 +70,7 @@ def main(argv=None) -> int:
 
 def _show_warning(message, category, filename, lineno, file=None, line=None):
     """Our own warnings as one line on standard error; other libraries' warnings stay quiet."""
-    from .model import ModelWarning
+    from crn.core.model import ModelWarning
 
     if issubclass(category, ModelWarning) or filename.startswith(_PACKAGE_DIR):
         click.echo(f"crn: warning: {_one_line(str(message))}", err=True)
@@ -80,7 +80,7 @@ def _run(argv) -> int:
     try:
         code = cli.main(args=argv, prog_name="crn", standalone_mode=False)
     except (click.exceptions.Abort, KeyboardInterrupt):
-        from . import interrupts
+        from crn.runtime import interrupts
 
         click.echo(f"crn: {interrupts.reason()}", err=True)
         return interrupts.exit_status()

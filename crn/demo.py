@@ -16,15 +16,11 @@ from pathlib import Path
 
 import numpy as np
 
-from .copies import Prober, smallest_n
-from .io.atomic import atomic_path, write_atomic
-from .io.jsonable import to_jsonable
-from .io.models import load_model
-from .io.regime_tables import table_csv
-from .probes import InitialSplit, gap_for_fraction, ode_decision, stochastic_decisions
-from .regimes import regime_map
-from .stats import wilson_interval
-from .units import (
+from crn.analyses.copies import Prober, smallest_n
+from crn.analyses.probes import InitialSplit, gap_for_fraction, ode_decision, stochastic_decisions
+from crn.analyses.regimes import regime_map
+from crn.core.stats import wilson_interval
+from crn.core.units import (
     WET_LAB_CAUTION,
     format_concentration,
     format_time,
@@ -37,13 +33,17 @@ from .units import (
     to_seconds,
     volume_for,
 )
+from crn.io.atomic import atomic_path, write_atomic
+from crn.io.jsonable import to_jsonable
+from crn.io.models import load_model
+from crn.io.regime_tables import table_csv
 
 __all__ = ["run_demo", "main", "SETTINGS", "REPORT"]
 
 #: The printed report, saved in the output directory too.
 REPORT = "report.txt"
 
-MODEL = Path(__file__).resolve().parent.parent / "models" / "droplet_assay.toml"
+MODEL = Path(__file__).resolve().parent / "data" / "droplet_assay.toml"
 
 #: Full settings (``make demo``) and a small, fast variant for the test suite.
 SETTINGS = {
@@ -102,8 +102,8 @@ def _trajectory_figure(cell, ode_time, seed, runs=5):
     matplotlib.use("Agg")
     import matplotlib.pyplot as plt
 
-    from .ode import solve_mean_field
-    from .simulate import simulate
+    from crn.solvers.ode import solve_mean_field
+    from crn.solvers.simulate import simulate
 
     horizon = 2.5 * ode_time
     mean_field = solve_mean_field(cell, until=horizon, stop_at_consensus=False,
@@ -149,7 +149,7 @@ def run_demo(out, *, quick: bool = False, seed: int = 20261201, workers: int = 2
     import matplotlib
 
     matplotlib.use("Agg")
-    from .plots.regimes import plot_feasibility, plot_regime_map
+    from crn.plots.regimes import plot_feasibility, plot_regime_map
 
     started = time.perf_counter()
     report: list[str] = []
@@ -334,7 +334,7 @@ def _verdict(rows, chosen, s, echo) -> None:
 
 def _write_report(out: Path, model, rmap, chosen, summary, seed) -> Path:
     """``out/report.html``: the demo's page, reusing its regime map and copies answer."""
-    from .report import ReportSettings, collect_report, render_report
+    from crn.report import ReportSettings, collect_report, render_report
 
     copies = None
     if chosen is not None:
@@ -361,7 +361,7 @@ def _write_report(out: Path, model, rmap, chosen, summary, seed) -> Path:
 
 def _dna(out, net, s, rate, deadline_s, quick, root, echo) -> dict:
     """The DNA-implementation section (crn.demo_dna): fuel, leak, copies on the circuit."""
-    from .demo_dna import dna_section
+    from crn.demo_dna import dna_section
 
     gap = gap_for_fraction(s["compare_n"], s["gap_fraction"])
     return dna_section(out, net, n=s["compare_n"], gap=gap, rate=rate,

@@ -31,8 +31,8 @@ def _figure(out: Path, impl, formal_result, result) -> Path:
     matplotlib.use("Agg")
     import matplotlib.pyplot as plt
 
-    from .io.atomic import atomic_path
-    from .plots.implementation import plot_implementation
+    from crn.io.atomic import atomic_path
+    from crn.plots.implementation import plot_implementation
 
     ax = plot_implementation(impl, formal_result, result,
                              title="Droplet assay: formal network vs its DNA implementation "
@@ -68,12 +68,17 @@ def dna_section(out, net, *, n: int, gap: int, rate: float, deadline_seconds: fl
     dict
         The ``dna`` record of ``summary.json``.
     """
-    from .design_questions import fuel_for_time, implementation_copies, leak_tolerance
-    from .dna import DnaParameters
-    from .implemented import formal_ode_horizon, fuel_left_ode, implementation_of
-    from .ode import solve_mean_field
-    from .probes import InitialSplit, gap_for_fraction
-    from .units import format_concentration, format_time, parse_concentration, parse_rate_constant
+    from crn.analyses.design_questions import fuel_for_time, implementation_copies, leak_tolerance
+    from crn.analyses.implemented import formal_ode_horizon, fuel_left_ode, implementation_of
+    from crn.analyses.probes import InitialSplit, gap_for_fraction
+    from crn.core.units import (
+        format_concentration,
+        format_time,
+        parse_concentration,
+        parse_rate_constant,
+    )
+    from crn.dna import DnaParameters
+    from crn.solvers.ode import solve_mean_field
 
     s = DNA_SETTINGS["quick" if quick else "full"]
     conc = parse_concentration(s["concentration"])

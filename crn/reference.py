@@ -34,10 +34,10 @@ from pathlib import Path
 
 import numpy as np
 
-from .engines.base import Trajectory
-from .errors import CRNError
-from .network import Network
-from .outcome import RunOutcome, consensus_index
+from crn.core.errors import CRNError
+from crn.core.network import Network
+from crn.core.outcome import RunOutcome, consensus_index
+from crn.engines.base import Trajectory
 
 __all__ = ["to_gillespy2", "run_reference", "reference_propensities"]
 
@@ -289,7 +289,7 @@ def run_reference(net: Network, *, until: float, times=None, rng=None,
             first, first_time = k, float(t)
             break
     last = consensus_index(net.species_label, counts[-1]) if len(counts) else -1
-    from .network import propensities
+    from crn.core.network import propensities
 
     silent = not propensities(net, counts[-1]).sum() > 0
     status = "silent" if silent else "horizon"

@@ -28,8 +28,8 @@ Being Python, this file runs code when loaded: load only files you trust.
 
 from dataclasses import dataclass
 
-from crn.errors import ModelError
-from crn.generate import protocol_from_rule
+from crn.core.errors import ModelError
+from crn.core.generate import protocol_from_rule
 
 PARAMETERS = {"n": 100, "gap": 2, "levels": 1, "broken": 0}
 

@@ -16,8 +16,8 @@ Load it like any model (``crn translate models/exact_majority_records.py
 
 from dataclasses import dataclass
 
-from crn.errors import ModelError
-from crn.generate import protocol_from_rule
+from crn.core.errors import ModelError
+from crn.core.generate import protocol_from_rule
 
 PARAMETERS = {"n": 100, "gap": 2}
 

@@ -159,11 +159,11 @@ def test_output_into_a_missing_folder_fails_before_any_work(argv, capsys):
     [
         ("PARAMETERS = [1, 2]\ndef build(p):\n    return None\n", "PARAMETERS must be a dict"),
         ("import sys\nsys.exit(3)\n", "SystemExit"),
-        ("from crn.generate import protocol_from_rule\n"
+        ("from crn.core.generate import protocol_from_rule\n"
          "def build(p):\n"
          "    return protocol_from_rule('x', lambda a, b: (0.5, (b, a)), {'A': 2})\n",
          "wrap randomized outcomes in a list"),
-        ("from crn.generate import protocol_from_rule\n"
+        ("from crn.core.generate import protocol_from_rule\n"
          "def build(p):\n"
          "    return protocol_from_rule('x', lambda a, b: None, {'A': 2}, majority=('A', 'C'))\n",
          "never reaches"),

@@ -10,12 +10,12 @@ from scipy.linalg import expm
 from seeds import seed
 
 import crn.engines.batched as batched_module
+from crn.core.errors import CRNError, ModelError
+from crn.core.network import Network, Reaction, propensities
+from crn.core.protocol import Outcome, Protocol
+from crn.core.translate import protocol_to_network
 from crn.engines.batched import _collision_free_length, protocol_tables, run_batched
-from crn.errors import CRNError, ModelError
 from crn.io.models import load_model
-from crn.network import Network, Reaction, propensities
-from crn.protocol import Outcome, Protocol
-from crn.translate import protocol_to_network
 
 ALPHA = 0.001  # significance of every statistical test in this file
 MODELS = "models"
@@ -202,7 +202,7 @@ def _linear_noise(net, times):
     volume v) and moves ``y = x / n`` by ``nu_R / n``. To first order in ``n**-1/2`` the
     mean follows ``y' = sum_R lam_R nu_R / n`` and the covariance, zero at a fixed start,
     follows ``C' = J C + C J^T + sum_R lam_R nu_R nu_R^T / n**2`` with ``J`` the Jacobian of
-    the mean's right-hand side. Written here from the network's arrays, apart from crn.ode.
+    the mean's right-hand side. Written here from the network's arrays, apart from crn.solvers.ode.
     """
     from scipy.integrate import solve_ivp
 
@@ -257,7 +257,7 @@ def _mean_field_check(n=10**8, runs=4):
     two-sided at ``ALPHA / comparisons``: the whole check fails a correct engine with
     probability at most ALPHA (the LNA being exact to first order at this n).
     """
-    from crn.ode import solve_mean_field
+    from crn.solvers.ode import solve_mean_field
 
     net = _am(n, 0).with_initial({"X": n // 2, "Y": 2 * n // 5, "B": n // 10})
     times = np.linspace(0.0, 6.0, 13)
@@ -284,7 +284,7 @@ def test_mean_field_check_detects_a_one_percent_rate_error(reaction):
     # from the true ODE by at least 6.5e-3 by t = 6 (each of the four reactions; computed
     # from the two ODEs), 27 to 50 linear-noise sd at n = 1e8, far beyond the 4.5 sd bound:
     # the check above fails such an engine (with probability ~1 for any seed)
-    from crn.ode import solve_mean_field
+    from crn.solvers.ode import solve_mean_field
 
     net, times, ode, var, bound = _mean_field_check()
     rates = np.array(net.rates, dtype=float)
@@ -303,7 +303,7 @@ def test_batched_ensemble_has_the_linear_noise_mean_and_variance():
     # sqrt(runs)), and the sample variance must pass the two-sided chi-square test
     # (runs - 1) s^2 / var ~ chi2(runs - 1) against the linear-noise variance; 24 tests,
     # overall level ALPHA. derived: the next-order corrections are O(1/n) relative.
-    from crn.ode import solve_mean_field
+    from crn.solvers.ode import solve_mean_field
 
     n, runs = 10**6, 1000
     net = _am(n, 0).with_initial({"X": n // 2, "Y": 2 * n // 5, "B": n // 10})
@@ -346,8 +346,8 @@ def test_two_to_the_sixty_agents_fire_the_expected_number_of_events():
     # rates in fractions); for t = 1e-6 the count is Poisson-like, so 6 sqrt(E) bounds it
     from scipy.integrate import quad
 
-    from crn.network import deterministic_rates
-    from crn.ode import solve_mean_field
+    from crn.core.network import deterministic_rates
+    from crn.solvers.ode import solve_mean_field
 
     n = 2**60
     net = _am(n, 0).with_initial({"X": n // 2, "Y": 3 * n // 8, "B": n // 8})

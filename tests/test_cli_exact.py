@@ -7,8 +7,8 @@ import pytest
 from click.testing import CliRunner
 
 from crn.cli import cli, main
-from crn.exact import exact_outcomes
 from crn.io.models import load_model
+from crn.solvers.exact import exact_outcomes
 
 MODELS = Path(__file__).resolve().parents[1] / "models"
 AM = str(MODELS / "approximate_majority.toml")

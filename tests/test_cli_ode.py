@@ -12,7 +12,7 @@ from click.testing import CliRunner
 
 from crn.cli import cli, main
 from crn.io.models import load_model
-from crn.ode import solve_mean_field
+from crn.solvers.ode import solve_mean_field
 
 ROOT = Path(__file__).resolve().parent.parent
 AM = str(ROOT / "models" / "approximate_majority.toml")

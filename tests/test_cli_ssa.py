@@ -12,7 +12,7 @@ from seeds import seed
 
 from crn.cli import cli, main
 from crn.commands.compare import compare_window, disagreement
-from crn.simulate import SimulationInterrupted
+from crn.solvers.simulate import SimulationInterrupted
 
 AM = "models/approximate_majority.toml"
 SMALL = ["--set", "n=80", "--set", "gap=4"]
@@ -84,7 +84,7 @@ def test_ssa_bad_input_exits_2(capsys):
 
 
 def test_ssa_ctrl_c_reports_finished_runs(monkeypatch, capsys):
-    module = importlib.import_module("crn.simulate")  # the command imports it when it runs
+    module = importlib.import_module("crn.solvers.simulate")  # the command imports it when it runs
 
     real = module.simulate
 
@@ -143,7 +143,7 @@ def assert_compare_ode_contract(ode):
 
 
 def test_disagreement_and_window():
-    # no consensus counts as disagreement; Wilson interval (crn.stats) around 2/3
+    # no consensus counts as disagreement; Wilson interval (crn.core.stats) around 2/3
     p, low, high = disagreement(["X", "Y", None], "X")
     assert p == pytest.approx(2 / 3) and low < p < high
     assert disagreement(["X", "X"], None)[0] == 1.0

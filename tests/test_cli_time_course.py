@@ -9,8 +9,8 @@ from click.testing import CliRunner
 
 from crn.cli import cli, main
 from crn.io.models import load_model
-from crn.simulate import simulate
-from crn.time_course import TimeCourseAccumulator, sample_times
+from crn.solvers.simulate import simulate
+from crn.solvers.time_course import TimeCourseAccumulator, sample_times
 
 BD = "models/birth_death.toml"  # immigration-death network, no labels
 AM = "models/approximate_majority.toml"
@@ -118,9 +118,9 @@ def test_interrupted_time_course_reports_the_finished_runs(monkeypatch, capsys):
     import dataclasses
     import importlib
 
-    from crn.simulate import SimulationInterrupted
+    from crn.solvers.simulate import SimulationInterrupted
 
-    module = importlib.import_module("crn.simulate")  # the command imports it when it runs
+    module = importlib.import_module("crn.solvers.simulate")  # the command imports it when it runs
     real = module.simulate
 
     def interrupted(net, **kw):  # two runs finish (and reach the reduction), then Ctrl-C

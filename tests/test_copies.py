@@ -1,4 +1,4 @@
-"""Copy numbers: smallest population for a risk and deadline (crn.copies, crn copies)."""
+"""Copy numbers: smallest population for a risk and deadline (crn.analyses.copies, crn copies)."""
 
 import functools
 import json
@@ -8,15 +8,15 @@ import pytest
 from click.testing import CliRunner
 from seeds import seed
 
+from crn.analyses.copies import Prober, lattice, physical_outputs, smallest_n
+from crn.analyses.probes import InitialSplit, stochastic_decisions
 from crn.cli import cli, main
-from crn.copies import Prober, lattice, physical_outputs, smallest_n
-from crn.errors import CRNError
-from crn.exact import exact_outcomes, transient_outcomes
+from crn.core.errors import CRNError
+from crn.core.outcome import correct_label
+from crn.core.stats import wilson_interval
+from crn.core.units import AVOGADRO
 from crn.io.models import load_model
-from crn.outcome import correct_label
-from crn.probes import InitialSplit, stochastic_decisions
-from crn.stats import wilson_interval
-from crn.units import AVOGADRO
+from crn.solvers.exact import exact_outcomes, transient_outcomes
 
 AM = "models/approximate_majority.toml"
 
@@ -174,7 +174,7 @@ def test_reported_n_meets_the_risk_exactly_where_the_chain_fits():
 def test_regime_map_never_flags_misleading_above_the_reported_n():
     # a cell flagged misleading (P(disagree) surely above the risk) at the same gap fraction
     # cannot lie at or above the n that copies reports as surely within the risk
-    from crn.regimes import regime_map
+    from crn.analyses.regimes import regime_map
 
     nets = InitialSplit(load_model(DROPLET).network)
     fraction, risk = 0.2, 0.05

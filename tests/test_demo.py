@@ -6,8 +6,8 @@ import pytest
 from scipy.stats import skellam
 
 import crn.plots.regimes
+from crn.core.units import AVOGADRO, WET_LAB_CAUTION
 from crn.demo import REPORT, SETTINGS, run_demo
-from crn.units import AVOGADRO, WET_LAB_CAUTION
 
 
 @pytest.fixture(scope="module")

@@ -8,8 +8,8 @@ import pytest
 from click.testing import CliRunner
 
 from crn.cli import cli
+from crn.core.model import parse_model
 from crn.io.text import network_to_text
-from crn.model import parse_model
 
 ROOT = Path(__file__).resolve().parents[1]
 DESIGN = (ROOT / "docs" / "design.md").read_text(encoding="utf-8")

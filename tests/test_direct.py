@@ -10,10 +10,10 @@ from scipy.linalg import expm
 from seeds import seed
 from ssa_checks import chi_square_pvalue
 
+from crn.core.model import parse_model
+from crn.core.network import Network, Reaction, propensities
 from crn.engines.direct import dependency_graph, run_direct
 from crn.io.models import load_model
-from crn.model import parse_model
-from crn.network import Network, Reaction, propensities
 
 ALPHA = 0.001  # significance level of every goodness-of-fit test in this file
 

@@ -3,13 +3,13 @@
 import numpy as np
 import pytest
 
+from crn.core.network import IGNORED, Network, Reaction
+from crn.core.outcome import consensus_index, mean_field_consensus_index
 from crn.dna import SCHEMES, DnaParameterError, DnaParameters, implement, toehold_rate
 from crn.engines.direct import run_direct
 from crn.io.contract import network_from_dict, network_to_dict
 from crn.io.models import load_model
-from crn.network import IGNORED, Network, Reaction
-from crn.ode import solve_mean_field
-from crn.outcome import consensus_index, mean_field_consensus_index
+from crn.solvers.ode import solve_mean_field
 
 
 def _am(n=100, gap=10):
@@ -50,7 +50,7 @@ def test_ignored_species_in_the_engines_and_the_json_contract():
 
 
 def test_an_ignored_species_cannot_report_a_label():
-    from crn.errors import ModelError
+    from crn.core.errors import ModelError
 
     with pytest.raises(ModelError, match="cannot be ignored"):
         Network.from_reactions("bad", ["X"], [], output={"X": "x"}, ignore=["X"])

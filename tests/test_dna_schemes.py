@@ -3,13 +3,13 @@
 import numpy as np
 import pytest
 
+from crn.core.errors import CRNError
+from crn.core.network import Network, Reaction
 from crn.dna import SCHEMES, DnaParameters, implement
 from crn.dna.budget import decision_fuel, inventory
 from crn.engines.direct import run_direct
-from crn.errors import CRNError
 from crn.io.models import load_model
-from crn.network import Network, Reaction
-from crn.ode import mean_field_system, molecules_per_unit, solve_mean_field
+from crn.solvers.ode import mean_field_system, molecules_per_unit, solve_mean_field
 
 C = 1e-8  # 10 nM of signal
 RATE = 1e5  # /M/s per unit of formal rate

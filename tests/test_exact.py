@@ -8,18 +8,18 @@ import pytest
 from scipy import stats
 from seeds import seed
 
-from crn.configurations import (
+from crn.core.errors import CRNError
+from crn.core.network import Network, Reaction, propensities
+from crn.core.protocol import Outcome, Protocol
+from crn.core.stats import wilson_interval
+from crn.core.translate import protocol_to_network
+from crn.io.models import load_model
+from crn.solvers.configurations import (
     enumerate_configurations,
     estimate_configurations,
 )
-from crn.errors import CRNError
-from crn.exact import exact_outcomes, transient_outcomes
-from crn.io.models import load_model
-from crn.network import Network, Reaction, propensities
-from crn.protocol import Outcome, Protocol
-from crn.simulate import simulate
-from crn.stats import wilson_interval
-from crn.translate import protocol_to_network
+from crn.solvers.exact import exact_outcomes, transient_outcomes
+from crn.solvers.simulate import simulate
 
 MODELS = Path(__file__).resolve().parents[1] / "models"
 
@@ -32,7 +32,7 @@ def model_net(name, **params):
 
 def test_generator_rows_are_the_network_propensities():
     # the generator must be the network's own chain: Q[i, j] is the summed propensity
-    # (crn.network.propensities) of the reactions taking configuration i to j
+    # (crn.core.network.propensities) of the reactions taking configuration i to j
     net = Network.from_reactions(
         "dimers", ("A", "B", "C"),
         [Reaction({"A": 1, "B": 1}, {"C": 1}, 1.5), Reaction({"C": 1}, {"A": 1, "B": 1}, 0.7),
@@ -142,7 +142,7 @@ def test_iterative_solver_agrees_with_factorisation():
 
 
 def test_exact_agrees_with_stochastic_simulation_at_n_50():
-    from crn.simulate import simulate
+    from crn.solvers.simulate import simulate
 
     net = model_net("approximate_majority", n=50, gap=2)
     exact = exact_outcomes(net)

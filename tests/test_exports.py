@@ -7,7 +7,8 @@ import pytest
 from hypothesis import given, settings
 from hypothesis import strategies as st
 
-from crn.errors import CRNError, ModelError
+from crn.core.errors import CRNError, ModelError
+from crn.core.network import Network, Reaction, propensities
 from crn.io.atomic import write_atomic
 from crn.io.contract import network_from_json, network_to_dict, network_to_json
 from crn.io.exports import export_network
@@ -15,7 +16,6 @@ from crn.io.latex import network_to_latex
 from crn.io.models import load_model
 from crn.io.sbml import network_from_sbml, network_to_sbml, sbml_consistency
 from crn.io.text import network_to_text
-from crn.network import Network, Reaction, propensities
 
 MODELS = Path(__file__).resolve().parent.parent / "models"
 TOML_MODELS = sorted(MODELS.glob("*.toml"))

@@ -4,8 +4,8 @@ import math
 
 import pytest
 
-from crn.errors import ExpressionError
-from crn.expr import evaluate, names_in
+from crn.core.errors import ExpressionError
+from crn.core.expr import evaluate, names_in
 
 
 @pytest.mark.parametrize(

@@ -8,11 +8,11 @@ import numpy as np
 import pytest
 import sympy
 
-from crn.equations import conservation_laws, format_equations, mean_field_equations
-from crn.fixed_points import classify, conservation_basis, find_fixed_points
+from crn.core.equations import conservation_laws, format_equations, mean_field_equations
+from crn.core.protocol import Outcome, Protocol
+from crn.core.translate import protocol_to_network
 from crn.io.models import load_model
-from crn.protocol import Outcome, Protocol
-from crn.translate import protocol_to_network
+from crn.solvers.fixed_points import classify, conservation_basis, find_fixed_points
 
 ROOT = Path(__file__).resolve().parent.parent
 

@@ -19,13 +19,13 @@ from hypothesis import strategies as st
 
 import crn.io.models as models
 from crn.cli import main
-from crn.errors import CRNError, ExpressionError
-from crn.expr import FUNCTIONS, evaluate
+from crn.core.errors import CRNError, ExpressionError
+from crn.core.expr import FUNCTIONS, evaluate
+from crn.core.network import Network
+from crn.core.units import parse_concentration, parse_rate_constant, parse_time, parse_volume
 from crn.io.contract import network_from_dict, network_from_json, network_to_dict
 from crn.io.models import load_model
 from crn.io.sbml import network_from_sbml, network_to_sbml
-from crn.network import Network
-from crn.units import parse_concentration, parse_rate_constant, parse_time, parse_volume
 
 AM_TEXT = Path("models/approximate_majority.toml").read_text()
 BD_TEXT = Path("models/birth_death.toml").read_text()

@@ -4,9 +4,9 @@ from dataclasses import dataclass
 
 import pytest
 
-from crn.errors import ModelError
-from crn.generate import protocol_from_rule, state_name
-from crn.protocol import Outcome
+from crn.core.errors import ModelError
+from crn.core.generate import protocol_from_rule, state_name
+from crn.core.protocol import Outcome
 
 
 @dataclass(frozen=True)

@@ -8,16 +8,16 @@ import pytest
 from click.testing import CliRunner
 
 from crn.cli import cli, main
-from crn.errors import CRNError
-from crn.guards import (
+from crn.core.errors import CRNError
+from crn.io.models import load_model
+from crn.runtime.guards import (
     WORK_LIMIT_SECONDS,
     default_max_memory,
     ensemble_estimate,
     exact_estimate,
     parse_memory,
 )
-from crn.io.models import load_model
-from crn.simulate import simulate
+from crn.solvers.simulate import simulate
 
 AM = "models/approximate_majority.toml"
 EM = "models/exact_majority.toml"

@@ -7,13 +7,13 @@ import math
 import numpy as np
 import pytest
 
+from crn.analyses.design_questions import fuel_for_time, implementation_copies, leak_tolerance
+from crn.analyses.implemented import ImplementedCells, diagnose, fuel_left_ode
+from crn.analyses.probes import InitialSplit, exact_absorption, stochastic_decisions
 from crn.cli import main
-from crn.design_questions import fuel_for_time, implementation_copies, leak_tolerance
 from crn.dna import DnaParameters
-from crn.implemented import ImplementedCells, diagnose, fuel_left_ode
 from crn.io.models import load_model
-from crn.ode import solve_mean_field
-from crn.probes import InitialSplit, exact_absorption, stochastic_decisions
+from crn.solvers.ode import solve_mean_field
 
 AM = "models/approximate_majority.toml"
 C = 1e-8  # 10 nM of signal
@@ -46,7 +46,7 @@ def test_ode_implement_runs_in_the_formal_time_unit(capsys):
     where Y is first reactant of two reactions), so each bimolecular rate is scaled by
     f^2 with f = 1 / (1 + lambda / q_max): the decision time, in the formal time unit, is
     the formal one times (1 + lambda / q_max)^2 = (1 + 2e6 / 6e6)^2 = 16 / 9 at 1e6 /M/s.
-    Consensus counts the signals the gates hold (crn.implemented.held_labels), so the
+    Consensus counts the signals the gates hold (crn.analyses.implemented.held_labels), so the
     threshold is the formal one. The fuel excess of 1000 makes the remaining finite-fuel
     error ~0.1%; tolerance 1%."""
     args = ["ode", AM, "--set", "n=1000", "--set", "gap=100", "--implement", "ssw",
@@ -185,7 +185,7 @@ def test_leak_zero_large_fuel_decides_like_the_formal_network():
     """Soloveichik, Seelig & Winfree 2010 (the implementation converges to the formal
     kinetics as fuel grows): at leak 0 and fuel 100x the signals, the probability that the
     implementation's runs reach consensus on the majority equals the formal network's exact
-    probability (crn.exact, first consensus). Tolerance: 99.9% two-sided binomial band for
+    probability (crn.solvers.exact, first consensus). Tolerance: 99.9% two-sided binomial band for
     800 runs, 3.29 sqrt(p (1 - p) / 800), plus 0.01 for the finite fuel (derived: rates are
     off by ~ signal / fuel = 1% and the decision probability moves by less)."""
     n, gap, runs = 12, 2, 800
@@ -225,7 +225,7 @@ def test_fuel_runs_out_is_diagnosed():
     """derived: X -> Y needs one gate per X; 200 X in volume 100 (twice the unit
     concentration C) against gates at 1.5 C (150 molecules) leave 50 X unconverted, so no
     consensus is ever reached (and no leak is to blame), while the formal network decides y."""
-    from crn.network import Network, Reaction
+    from crn.core.network import Network, Reaction
 
     net = Network.from_reactions("convert", ["X", "Y"], [Reaction({"X": 1}, {"Y": 1}, 1.0)],
                                  volume=100, initial={"X": 200, "Y": 1},
@@ -304,7 +304,7 @@ def test_a_minority_molecule_held_in_a_gate_still_counts():
     """The last Y bound to the first gate of Y + X -> Y + B (H_r2 carries the Y strand)
     keeps the implementation out of consensus, as the formal state (X = 3, Y = 1) is;
     ignored, it would let a run reach a false consensus on X."""
-    from crn.outcome import consensus_index
+    from crn.core.outcome import consensus_index
 
     cells = ImplementedCells(InitialSplit(_am(4, 2)), "ssw",
                              DnaParameters(rate=RATE, concentration=C))
@@ -327,7 +327,7 @@ def test_two_domain_decisions_ignore_released_strands(capsys):
     releases none with a fuel, so it stays ignored (it accumulates, one per firing); the
     join output A, which a fork turns into products, stands for them. So the mean field
     decides as the formal network does (it would never decide if R2 blocked consensus)."""
-    from crn.network import IGNORED
+    from crn.core.network import IGNORED
 
     cells = ImplementedCells(InitialSplit(_am(100, 20)), "two-domain",
                              DnaParameters(rate=RATE, concentration=C))

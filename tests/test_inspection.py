@@ -1,8 +1,8 @@
 """Static inspection (crn check) as a library call."""
 
-from crn.inspection import check_model, reachable_species
-from crn.model import Model
-from crn.network import Network, Reaction
+from crn.analyses.inspection import check_model, reachable_species
+from crn.core.model import Model
+from crn.core.network import Network, Reaction
 
 
 def test_reachability_is_the_closure_under_reactions_with_positive_rate():

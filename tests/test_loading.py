@@ -1,4 +1,4 @@
-"""Poisson loading of droplets (crn.loading, copies --loading poisson)."""
+"""Poisson loading of droplets (crn.core.loading, copies --loading poisson)."""
 
 import json
 
@@ -7,11 +7,10 @@ import pytest
 from click.testing import CliRunner
 from scipy.stats import poisson, skellam
 
+from crn.analyses.copies import Prober, smallest_n
+from crn.analyses.probes import InitialSplit
 from crn.cli import cli
-from crn.copies import Prober, smallest_n
-from crn.exact import exact_outcomes, transient_outcomes
-from crn.io.models import load_model
-from crn.loading import (
+from crn.core.loading import (
     draw_droplets,
     droplet_network,
     loading_grid,
@@ -19,8 +18,9 @@ from crn.loading import (
     reversal_probability,
     split_decisions,
 )
-from crn.probes import InitialSplit
-from crn.stats import wilson_interval
+from crn.core.stats import wilson_interval
+from crn.io.models import load_model
+from crn.solvers.exact import exact_outcomes, transient_outcomes
 
 DROPLET = "models/droplet_assay.toml"
 
@@ -65,7 +65,7 @@ def test_droplet_network_swaps_inputs_when_the_minority_wins(nets):
 
 
 def test_split_decisions_match_the_exact_engine_per_split(nets):
-    # reference: crn.exact solved once per starting split (absorption and transient analysis)
+    # reference: crn.solvers.exact solved once per starting split (absorption, transient)
     total, majors = 31, [9, 15, 16, 22, 31]
     eventual = split_decisions(nets, total, majors, "R")
     by_deadline = split_decisions(nets, total, majors, "R", deadline=6.0)

@@ -5,10 +5,10 @@ from pathlib import Path
 import numpy as np
 import pytest
 
-from crn.errors import ModelError
+from crn.core.errors import ModelError
+from crn.core.model import parse_model
+from crn.core.network import propensities
 from crn.io.models import load_model
-from crn.model import parse_model
-from crn.network import propensities
 
 MODELS = Path(__file__).resolve().parent.parent / "models"
 
@@ -126,7 +126,7 @@ def test_json_and_sbml_exports_load_as_models(tmp_path):
 
 
 def test_rules_and_reactions_that_never_fire_are_warned_about():
-    from crn.model import ModelWarning, parse_model
+    from crn.core.model import ModelWarning, parse_model
 
     protocol = ('name = "p"\n[initial]\nX = 2\nY = 2\n[protocol]\n'
                 'transitions = [{ rule = "X, Y -> X, X", p = 0 }]\n')

@@ -10,17 +10,17 @@ import pytest
 from hypothesis import given, settings
 from hypothesis import strategies as st
 
-from crn.errors import CRNError
+from crn.core.errors import CRNError
+from crn.core.network import Network, Reaction
+from crn.core.protocol import Outcome, Protocol
+from crn.core.translate import protocol_to_network
 from crn.io.models import load_model
-from crn.network import Network, Reaction
-from crn.ode import (
+from crn.solvers.ode import (
     initial_state,
     mean_field_jacobian,
     mean_field_rhs,
     solve_mean_field,
 )
-from crn.protocol import Outcome, Protocol
-from crn.translate import protocol_to_network
 
 MODELS = sorted((Path(__file__).resolve().parent.parent / "models").glob("*.toml"))
 

@@ -2,8 +2,7 @@
 
 import numpy as np
 
-from crn.io.models import load_model
-from crn.outcome import (
+from crn.core.outcome import (
     TIE,
     RunOutcome,
     consensus_index,
@@ -11,6 +10,7 @@ from crn.outcome import (
     mean_field_consensus_index,
     tally,
 )
+from crn.io.models import load_model
 
 MODELS = "models"
 

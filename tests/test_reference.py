@@ -4,9 +4,9 @@ import numpy as np
 import pytest
 from seeds import seed
 
-from crn.errors import CRNError
+from crn.core.errors import CRNError
+from crn.core.network import Network, Reaction, propensities
 from crn.io.models import load_model
-from crn.network import Network, Reaction, propensities
 from crn.reference import reference_propensities, run_reference, to_gillespy2
 
 

@@ -1,4 +1,4 @@
-"""Regime maps: where the mean field's decision can be trusted (crn.regimes)."""
+"""Regime maps: where the mean field's decision can be trusted (crn.analyses.regimes)."""
 
 import math
 
@@ -6,8 +6,7 @@ import numpy as np
 import pytest
 from seeds import seed
 
-from crn.io.models import load_model
-from crn.probes import (
+from crn.analyses.probes import (
     InitialSplit,
     gap_for_fraction,
     late_consensus_bound,
@@ -15,7 +14,7 @@ from crn.probes import (
     sample_until_decided,
     simultaneous_interval,
 )
-from crn.regimes import (
+from crn.analyses.regimes import (
     evaluate_cell,
     fit_boundary,
     plan_cells,
@@ -23,6 +22,7 @@ from crn.regimes import (
     risk_flag,
     time_flag,
 )
+from crn.io.models import load_model
 
 AM = "models/approximate_majority.toml"
 VOTER = "models/voter.toml"
@@ -78,7 +78,7 @@ def _am_minority_wins(n):
     X + B -> 2 X at x b and Y + B -> 2 Y at y b (ordered pairs, one rate constant); the
     absorption probability h solves h(s) = sum_s' rate(s, s') h(s') / total(s) with
     h = 1 on x = 0 < y and h = 0 on y = 0 < x. Written here from the rules, apart from
-    crn.exact.
+    crn.solvers.exact.
     """
     import scipy.sparse as sp
     from scipy.sparse.linalg import spsolve
@@ -150,7 +150,7 @@ def _synthetic_cells(rng, exponent, runs=1000, risk=0.01):
     interpolated crossing of the true probabilities is gap_c exactly: the only error of
     the fitted exponent is the sampling error of the runs, which the interval must cover.
     """
-    from crn.regimes import RegimeCell
+    from crn.analyses.regimes import RegimeCell
 
     cells = []
     for n in (100, 1000, 10_000, 100_000):
@@ -196,7 +196,7 @@ def test_bootstrap_crossings_equal_the_scalar_crossings():
     # the bootstrap finds crossings for all replicates at once; on one replicate it must give
     # exactly the critical gaps of the scalar scan (same rule: the uppermost crossing, none
     # when even the largest gap exceeds the risk), here on maps with small and large counts
-    from crn.regimes import _critical_gaps, _critical_gaps_many
+    from crn.analyses.regimes import _critical_gaps, _critical_gaps_many
 
     rng = np.random.default_rng(seed(18))
     for _ in range(50):
@@ -322,7 +322,7 @@ def test_four_state_exact_majority_never_misleads_and_slows_with_smaller_gap():
 def test_fit_boundary_recovers_a_planted_exponent():
     # derived: with p(n, gap) = exp(-gap^2 / n), the gap where p = risk is sqrt(n ln(1/risk)),
     # an exponent of exactly 1/2
-    from crn.regimes import RegimeCell
+    from crn.analyses.regimes import RegimeCell
 
     risk = 0.01
     cells = []

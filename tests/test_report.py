@@ -13,8 +13,8 @@ from click.testing import CliRunner
 
 from crn.cli import cli
 from crn.commands.options import load
-from crn.exact import exact_outcomes
 from crn.report import SECTIONS, ReportSettings, collect_report, render_report
+from crn.solvers.exact import exact_outcomes
 
 ROOT = Path(__file__).resolve().parent.parent
 AM = ROOT / "models" / "approximate_majority.toml"

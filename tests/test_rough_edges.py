@@ -45,9 +45,9 @@ def block(monkeypatch, target):
 # --plot: the extension is checked before any work ---------------------------------------------
 
 @pytest.mark.parametrize("command, target, extra", [
-    ("ode", "crn.ode.solve_mean_field", []),
+    ("ode", "crn.solvers.ode.solve_mean_field", []),
     ("compare", "crn.commands.compare.run_ensemble", ["--runs", "2"]),
-    ("regimes", "crn.regimes.regime_map", ["--n", "20", "--gap", "2"]),
+    ("regimes", "crn.analyses.regimes.regime_map", ["--n", "20", "--gap", "2"]),
     ("ssa", "crn.commands.ssa.run_ensemble", ["--runs", "2"]),
 ])
 @pytest.mark.parametrize("name", ["ode.txt", "c.jpgx", "r.foo"])
@@ -93,8 +93,8 @@ def test_every_accepted_figure_format_is_one_matplotlib_writes(tmp_path):
 ])
 def test_a_bad_cluster_address_is_one_line_at_once(capsys, monkeypatch, command, extra,
                                                    address, says):
-    for target in ("crn.simulate.simulate", "crn.commands.compare.run_ensemble",
-                   "crn.regimes.regime_map"):
+    for target in ("crn.solvers.simulate.simulate", "crn.commands.compare.run_ensemble",
+                   "crn.analyses.regimes.regime_map"):
         block(monkeypatch, target)
     start = time.monotonic()
     line = one_line_error([command, AM, *extra, "--cluster", address], capsys)
@@ -104,8 +104,8 @@ def test_a_bad_cluster_address_is_one_line_at_once(capsys, monkeypatch, command,
 
 
 def test_the_library_refuses_a_malformed_address_too():
-    from crn.errors import CRNError
-    from crn.simulate import probe_scheduler
+    from crn.core.errors import CRNError
+    from crn.solvers.simulate import probe_scheduler
 
     with pytest.raises(CRNError, match="not a scheduler address"):
         probe_scheduler("notanaddress")
@@ -143,7 +143,7 @@ def test_no_output_fraction_is_negative(model):
 
 
 def test_clipping_leaves_a_real_undershoot_visible():
-    from crn.ode import _clip_roundoff
+    from crn.solvers.ode import _clip_roundoff
 
     values = np.array([[0.5, -1e-17, 0.5], [0.7, -0.2, -0.0]])
     clipped = _clip_roundoff(values, rtol=1e-10, atol=1e-12)
@@ -243,7 +243,7 @@ def test_undeclared_and_dead_end_states_are_one_warning_each(tmp_path, capsys):
 
 
 def test_a_reaction_naming_a_species_nothing_makes_is_warned_about():
-    from crn.model import ModelWarning, parse_model
+    from crn.core.model import ModelWarning, parse_model
 
     text = ('name = "n"\n[initial]\nX = 2\n[network]\n'
             'reactions = [{ reaction = "X + Z -> 0", rate = 1 }, { reaction = "X -> W", '
@@ -257,8 +257,8 @@ def test_a_reaction_naming_a_species_nothing_makes_is_warned_about():
                                    "undecided_state", "cancel_spread", "voter", "epidemic",
                                    "birth_death"])
 def test_shipped_models_load_without_warnings(model, recwarn):
+    from crn.core.model import ModelWarning
     from crn.io.models import load_model
-    from crn.model import ModelWarning
 
     load_model(f"models/{model}.toml")
     assert not [w for w in recwarn if issubclass(w.category, ModelWarning)]
@@ -316,10 +316,10 @@ def test_ode_and_compare_figures_label_parallel_time_with_minutes_on_top(tmp_pat
     import matplotlib.pyplot as plt
 
     from crn.io.models import load_model
-    from crn.ode import solve_mean_field
     from crn.plots.compare import plot_compare
     from crn.plots.ode import plot_mean_field
-    from crn.simulate import simulate
+    from crn.solvers.ode import solve_mean_field
+    from crn.solvers.simulate import simulate
 
     net = load_model(AM, {"n": 60, "gap": 6}).network
     result = solve_mean_field(net, times=np.linspace(0, 10, 21))

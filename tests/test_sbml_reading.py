@@ -6,9 +6,9 @@ KineticLaw; section numbers from memory), and the export read back by an indepen
 import numpy as np
 import pytest
 
-from crn.errors import ModelError
+from crn.core.errors import ModelError
+from crn.core.network import Network, Reaction, propensities
 from crn.io.sbml import network_from_sbml, network_to_sbml, sbml_consistency
-from crn.network import Network, Reaction, propensities
 
 NS = {(2, 1): "http://www.sbml.org/sbml/level2",
       (2, 4): "http://www.sbml.org/sbml/level2/version4",

@@ -7,9 +7,9 @@ import pytest
 from seeds import seed
 from ssa_checks import two_sample_chi_square_pvalue
 
-from crn.errors import CRNError
+from crn.core.errors import CRNError
 from crn.io.models import load_model
-from crn.simulate import (
+from crn.solvers.simulate import (
     AUTO_BATCHED_FROM,
     SimulationInterrupted,
     choose_engine,

@@ -62,7 +62,7 @@ def test_translate_loads_numpy_only():
 
 def test_import_crn_is_light_and_names_load_on_use():
     loaded = loaded_after("import crn\nassert crn.Network.__name__ == 'Network'\n"
-                          "assert crn.CRNError.__module__ == 'crn.errors'")
+                          "assert crn.CRNError.__module__ == 'crn.core.errors'")
     assert loaded.isdisjoint(HEAVY), sorted(loaded & set(HEAVY))
 
 
@@ -70,11 +70,11 @@ def test_choices_kept_for_start_up_match_the_library():
     from crn.commands.copies import LOADINGS as cli_loadings
     from crn.commands.ode import METHODS as cli_methods
     from crn.commands.translate import FORMATS as cli_formats
+    from crn.core.loading import LOADINGS
     from crn.engines import ENGINES
     from crn.io.exports import FORMATS
-    from crn.loading import LOADINGS
-    from crn.ode import METHODS
-    from crn.simulate import ENGINES as simulate_engines
+    from crn.solvers.ode import METHODS
+    from crn.solvers.simulate import ENGINES as simulate_engines
 
     assert tuple(cli_methods) == tuple(METHODS)
     assert tuple(cli_formats) == tuple(FORMATS)
@@ -83,11 +83,12 @@ def test_choices_kept_for_start_up_match_the_library():
 
 
 def test_consensus_kernels_are_the_ones_outcome_names():
-    import crn.consensus
-    import crn.outcome
+    import crn.core.consensus
+    import crn.core.outcome
 
-    assert crn.outcome.consensus_index is crn.consensus.consensus_index
-    assert crn.outcome.mean_field_consensus_index is crn.consensus.mean_field_consensus_index
+    assert crn.core.outcome.consensus_index is crn.core.consensus.consensus_index
+    core = crn.core
+    assert core.outcome.mean_field_consensus_index is core.consensus.mean_field_consensus_index
 
 
 def test_a_short_ssa_run_needs_neither_scipy_stats_nor_sparse():

@@ -3,7 +3,7 @@
 import numpy as np
 import pytest
 
-from crn.stats import time_summary, wilson_interval
+from crn.core.stats import time_summary, wilson_interval
 
 
 @pytest.mark.parametrize(
@@ -52,7 +52,7 @@ def test_stored_normal_quantiles_are_scipys_to_the_last_bit():
     from scipy.special import ndtri
     from scipy.stats import norm
 
-    from crn.stats import _NORMAL_QUANTILES
+    from crn.core.stats import _NORMAL_QUANTILES
 
     for confidence, z in _NORMAL_QUANTILES.items():
         assert z == float(ndtri(0.5 + confidence / 2)) == float(norm.ppf(0.5 + confidence / 2))

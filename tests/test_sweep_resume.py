@@ -11,7 +11,7 @@ import pytest
 from click.testing import CliRunner
 
 from crn.cli import cli, main
-from crn.errors import CRNError
+from crn.core.errors import CRNError
 from crn.io.atomic import atomic_path, write_atomic
 from crn.io.sweep_store import SweepStore
 

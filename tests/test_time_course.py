@@ -8,11 +8,11 @@ import pytest
 import scipy.sparse.linalg as spla
 from scipy.linalg import expm
 
-from crn.configurations import enumerate_configurations
-from crn.network import Network, Reaction
-from crn.ode import solve_mean_field
-from crn.simulate import simulate
-from crn.time_course import (
+from crn.core.network import Network, Reaction
+from crn.solvers.configurations import enumerate_configurations
+from crn.solvers.ode import solve_mean_field
+from crn.solvers.simulate import simulate
+from crn.solvers.time_course import (
     TimeCourse,
     TimeCourseAccumulator,
     quantile_rank_error,

@@ -9,10 +9,10 @@ import pytest
 from hypothesis import given, settings
 from hypothesis import strategies as st
 
-from crn.errors import ModelError
-from crn.network import Network, Reaction, propensities
-from crn.protocol import Outcome, Protocol
-from crn.translate import network_to_protocol, protocol_to_network
+from crn.core.errors import ModelError
+from crn.core.network import Network, Reaction, propensities
+from crn.core.protocol import Outcome, Protocol
+from crn.core.translate import network_to_protocol, protocol_to_network
 
 
 @st.composite

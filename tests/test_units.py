@@ -1,12 +1,12 @@
-"""Physical quantities: strict parsing, copy numbers and time scales (crn.units)."""
+"""Physical quantities: strict parsing, copy numbers and time scales (crn.core.units)."""
 
 import math
 
 import pytest
 
 from crn.cli import main
-from crn.errors import CRNError
-from crn.units import (
+from crn.core.errors import CRNError
+from crn.core.units import (
     AVOGADRO,
     concentration_for,
     copies,

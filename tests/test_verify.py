@@ -5,10 +5,10 @@ from pathlib import Path
 
 import pytest
 
-from crn.errors import CRNError
+from crn.analyses.verify import verify
+from crn.core.errors import CRNError
+from crn.core.protocol import Outcome, Protocol
 from crn.io.models import load_model
-from crn.protocol import Outcome, Protocol
-from crn.verify import verify
 
 MODELS = Path(__file__).resolve().parents[1] / "models"
 

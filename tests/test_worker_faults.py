@@ -9,10 +9,10 @@ import signal
 import numpy as np
 import pytest
 
-import crn.simulate
+import crn.solvers.simulate
 from crn.cli import main
 from crn.io.models import load_model
-from crn.simulate import simulate
+from crn.solvers.simulate import simulate
 
 AM = "models/approximate_majority.toml"
 
@@ -57,8 +57,8 @@ def test_local_worker_killed_mid_ensemble_gives_the_same_ensemble(net):
 def test_pool_that_keeps_dying_exits_1_with_the_finished_runs_saved(tmp_path, monkeypatch,
                                                                     capsys):
     # the worker running run 37 kills itself every time, so the pool cannot recover
-    monkeypatch.setenv(crn.simulate.KILL_WORKER_HOOK, "37")
-    monkeypatch.setattr(crn.simulate, "POOL_RESTARTS", 1)
+    monkeypatch.setenv(crn.solvers.simulate.KILL_WORKER_HOOK, "37")
+    monkeypatch.setattr(crn.solvers.simulate, "POOL_RESTARTS", 1)
     out = tmp_path / "runs.csv"
     code = main(["ssa", AM, "--set", "n=60", "--set", "gap=4", "--runs", "200", "--workers",
                  "2", "--seed", "3", "--csv", str(out)])

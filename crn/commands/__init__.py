@@ -3,17 +3,17 @@
 Add a command by writing its module and listing its click command in ``COMMANDS``.
 """
 
-from .check import check
-from .compare import compare
-from .copies import copies
-from .exact import exact
-from .implement import implement
-from .ode import ode
-from .regimes import regimes
-from .report import report
-from .ssa import ssa
-from .translate import translate
-from .verify import verify
+from crn.commands.check import check
+from crn.commands.compare import compare
+from crn.commands.copies import copies
+from crn.commands.exact import exact
+from crn.commands.implement import implement
+from crn.commands.ode import ode
+from crn.commands.regimes import regimes
+from crn.commands.report import report
+from crn.commands.ssa import ssa
+from crn.commands.translate import translate
+from crn.commands.verify import verify
 
 COMMANDS = [translate, check, exact, verify, ode, ssa, compare, regimes, copies, implement,
             report]

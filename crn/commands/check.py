@@ -4,7 +4,7 @@ from __future__ import annotations
 
 import click
 
-from .options import emit_json, json_option, load, model_argument, set_option
+from crn.commands.options import emit_json, json_option, load, model_argument, set_option
 
 __all__ = ["check"]
 
@@ -20,7 +20,7 @@ def _names(items) -> str:
 def check(model, sets, as_json):
     """Inspect MODEL without running it: reachable states, rules that keep the
     number of agents, rules that can never fire, labels no state can report."""
-    from ..inspection import check_model
+    from crn.analyses.inspection import check_model
 
     report = check_model(load(model, sets))
     if as_json:

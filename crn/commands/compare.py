@@ -4,8 +4,8 @@ from __future__ import annotations
 
 import click
 
-from .implementing import dna_options, dna_settings, implement_option
-from .options import (
+from crn.commands.implementing import dna_options, dna_settings, implement_option
+from crn.commands.options import (
     FIGURE_FILE,
     emit_json,
     json_option,
@@ -16,7 +16,7 @@ from .options import (
     seed_option,
     set_option,
 )
-from .ssa import (
+from crn.commands.ssa import (
     _finish_interrupted,
     ensemble_options,
     ensemble_summary,
@@ -41,7 +41,7 @@ def compare_window(ode_time: float | None, until: float) -> float:
 def disagreement(labels, ode_label) -> tuple[float, float, float]:
     """Probability that a run's first-consensus label differs from the ODE's label (a run
     without consensus counts as differing), with its 95% Wilson interval."""
-    from ..stats import wilson_interval
+    from crn.core.stats import wilson_interval
 
     differ = sum(1 for label in labels if label is None or label != ode_label)
     return wilson_interval(differ, len(labels))
@@ -67,17 +67,17 @@ def compare(model, sets, runs, until, engine, workers, cluster, max_memory, forc
     the formal ODE, the DNA implementation's ODE and its stochastic runs side by side."""
     import numpy as np
 
-    from ..fixed_points import find_fixed_points
-    from ..ode import solve_mean_field
-    from ..simulate import default_horizon
-    from ..stats import wilson_interval
-    from .ode import mean_field_json
+    from crn.commands.ode import mean_field_json
+    from crn.core.stats import wilson_interval
+    from crn.solvers.fixed_points import find_fixed_points
+    from crn.solvers.ode import solve_mean_field
+    from crn.solvers.simulate import default_horizon
 
     settings = dna_settings(implement, fuel=fuel, max_rate=max_rate, toehold=toehold,
                             leak=leak, rate=rate, concentration=concentration)
     loaded = load(model, sets)
     if settings is not None:
-        from .implemented_compare import compare_implemented
+        from crn.commands.implemented_compare import compare_implemented
 
         compare_implemented(loaded, settings, runs=runs, until=until, engine=engine,
                             workers=workers, cluster=cluster, seed=seed, as_json=as_json,
@@ -141,8 +141,8 @@ def _write_plot(path, ode, ensemble, differ, name, seconds=None):
     matplotlib.use("Agg")
     import matplotlib.pyplot as plt
 
-    from ..io.atomic import save_figure
-    from ..plots.compare import plot_compare
+    from crn.io.atomic import save_figure
+    from crn.plots.compare import plot_compare
 
     ax = plot_compare(ode, ensemble, disagreement=differ,
                       title=f"{name}\nmean field vs {ensemble.runs} exact stochastic runs "

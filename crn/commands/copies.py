@@ -4,8 +4,18 @@ from __future__ import annotations
 
 import click
 
-from ..errors import CRNError
-from ..units import (
+from crn.commands.implementing import dna_only_options, dna_settings, implement_option
+from crn.commands.options import (
+    emit_json,
+    json_option,
+    model_argument,
+    seed_notice,
+    seed_option,
+    set_option,
+)
+from crn.commands.regimes import cell_networks
+from crn.core.errors import CRNError
+from crn.core.units import (
     WET_LAB_CAUTION,
     concentration_for,
     format_concentration,
@@ -17,13 +27,10 @@ from ..units import (
     parse_volume,
     to_parallel_time,
 )
-from .implementing import dna_only_options, dna_settings, implement_option
-from .options import emit_json, json_option, model_argument, seed_notice, seed_option, set_option
-from .regimes import cell_networks
 
 __all__ = ["copies", "parse_deadline"]
 
-#: :data:`crn.loading.LOADINGS`, repeated here so that start-up imports no numpy (tested).
+#: :data:`crn.core.loading.LOADINGS`, repeated here so that start-up imports no numpy (tested).
 LOADINGS = ("fixed", "poisson")
 
 
@@ -82,7 +89,7 @@ def copies(model, sets, gap_fraction, gap, risk, deadline, concentration, volume
     With --implement the search runs on the DNA implementation, beside the formal answer:
     more copies, a later decision, or no droplet size at all and why (fuel runs out, leak
     dominates)."""
-    from ..copies import p_wrong_summary, physical_outputs, smallest_n
+    from crn.analyses.copies import p_wrong_summary, physical_outputs, smallest_n
 
     settings = dna_settings(implement, fuel=fuel, max_rate=max_rate, toehold=toehold,
                             leak=leak, rate=rate, concentration=concentration)
@@ -113,8 +120,8 @@ def copies(model, sets, gap_fraction, gap, risk, deadline, concentration, volume
                                 runs_max=runs_max, rng=seed, workers=1, loading=loading,
                                 scale_deadline=deadline_seconds is not None)
         else:
-            from ..design_questions import implementation_copies
-            from .implementing import implementation_errors
+            from crn.analyses.design_questions import implementation_copies
+            from crn.commands.implementing import implementation_errors
 
             answer = implementation_errors(
                 implementation_copies, networks, *settings,
@@ -123,7 +130,7 @@ def copies(model, sets, gap_fraction, gap, risk, deadline, concentration, volume
                 runs_max=runs_max, rng=seed, workers=1)
             result = answer.implemented
     except KeyboardInterrupt:
-        from .options import stop_interrupted
+        from crn.commands.options import stop_interrupted
 
         stop_interrupted("before the search finished; no answer (an unfinished search has no "
                          "safe n to report)")

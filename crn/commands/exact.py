@@ -4,8 +4,8 @@ from __future__ import annotations
 
 import click
 
-from .implementing import dna_options, dna_settings, implement_option
-from .options import (
+from crn.commands.implementing import dna_options, dna_settings, implement_option
+from crn.commands.options import (
     emit_json,
     guard,
     guard_options,
@@ -43,16 +43,16 @@ def exact(model, sets, until, max_states, max_memory, force, as_json, implement,
     continuous-time Markov chain over every reachable configuration. With --implement,
     of the DNA implementation (small populations and little fuel only: every fuel
     molecule multiplies the configurations)."""
-    from ..exact import exact_outcomes, transient_outcomes
-    from ..guards import exact_estimate
-    from ..interrupts import call_interruptibly
+    from crn.runtime.guards import exact_estimate
+    from crn.runtime.interrupts import call_interruptibly
+    from crn.solvers.exact import exact_outcomes, transient_outcomes
 
     settings = dna_settings(implement, fuel=fuel, max_rate=max_rate, toehold=toehold,
                             leak=leak, rate=rate, concentration=concentration)
     net = load(model, sets).network
     impl = None
     if settings is not None:
-        from .implementing import implement_network
+        from crn.commands.implementing import implement_network
 
         impl = implement_network(net, settings)
         net = impl.network
@@ -86,7 +86,7 @@ def _counting(bar, seen):
 
 
 def _print(net, result, transient, until, as_json, impl=None):
-    from ..outcome import NO_CONSENSUS
+    from crn.core.outcome import NO_CONSENSUS
 
     if as_json:
         obj = {
@@ -109,7 +109,7 @@ def _print(net, result, transient, until, as_json, impl=None):
                 "lost": transient["lost"],
             }
         if impl is not None:
-            from .implementing import implementation_json
+            from crn.commands.implementing import implementation_json
 
             obj["implementation"] = implementation_json(impl)
         emit_json(obj)

@@ -4,8 +4,7 @@ from __future__ import annotations
 
 import click
 
-from ..io.atomic import write_atomic
-from .options import (
+from crn.commands.options import (
     OUTPUT_FILE,
     build_implementation,
     dna_options,
@@ -16,7 +15,8 @@ from .options import (
     model_argument,
     set_option,
 )
-from .translate import FORMATS  # the export formats, without importing the exporters
+from crn.commands.translate import FORMATS  # the export formats, without importing the exporters
+from crn.io.atomic import write_atomic
 
 __all__ = ["implement"]
 
@@ -43,9 +43,9 @@ def implement(model, sets, scheme, fuel, max_rate, toehold, leak, rate, concentr
     The summary line counts fuel complexes and strands per formal reaction and
     compares the fuel a decision consumes with the fuel supplied.
     """
-    from ..dna.budget import decision_fuel, inventory
-    from ..io.exports import export_network
-    from ..io.implementation import implementation_to_dict, implementation_to_text
+    from crn.dna.budget import decision_fuel, inventory
+    from crn.io.exports import export_network
+    from crn.io.implementation import implementation_to_dict, implementation_to_text
 
     if as_json and output is None and fmt not in (None, "json"):
         raise click.UsageError(f"--json prints the JSON object; give -o FILE for --to {fmt}")
@@ -60,7 +60,7 @@ def implement(model, sets, scheme, fuel, max_rate, toehold, leak, rate, concentr
     elif fmt == "json":
         import json
 
-        from ..io.jsonable import to_jsonable
+        from crn.io.jsonable import to_jsonable
 
         text = json.dumps(to_jsonable(implementation_to_dict(impl, budget, inv)), indent=2) + "\n"
     else:

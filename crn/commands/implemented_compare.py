@@ -7,11 +7,11 @@ from types import SimpleNamespace
 import click
 import numpy as np
 
-from .compare import _SAMPLES, compare_window, disagreement
-from .implemented_ode import save_implementation_plot
-from .implementing import format_fuel, implement_network, implementation_json
-from .options import emit_json
-from .ssa import _finish_interrupted, ensemble_summary, run_ensemble
+from crn.commands.compare import _SAMPLES, compare_window, disagreement
+from crn.commands.implemented_ode import save_implementation_plot
+from crn.commands.implementing import format_fuel, implement_network, implementation_json
+from crn.commands.options import emit_json
+from crn.commands.ssa import _finish_interrupted, ensemble_summary, run_ensemble
 
 __all__ = ["compare_implemented"]
 
@@ -19,11 +19,11 @@ __all__ = ["compare_implemented"]
 def compare_implemented(loaded, settings, *, runs, until, engine, workers, cluster, seed,
                         as_json, plot_path) -> None:
     """Run and print the three-way comparison (the ``compare --implement`` command)."""
-    from ..implemented import fuel_left_ode, fuel_left_runs
-    from ..ode import solve_mean_field
-    from ..simulate import default_horizon
-    from ..stats import wilson_interval
-    from .ode import mean_field_json
+    from crn.analyses.implemented import fuel_left_ode, fuel_left_runs
+    from crn.commands.ode import mean_field_json
+    from crn.core.stats import wilson_interval
+    from crn.solvers.ode import solve_mean_field
+    from crn.solvers.simulate import default_horizon
 
     formal = loaded.network
     impl = implement_network(formal, settings)

@@ -7,8 +7,8 @@ from types import SimpleNamespace
 import click
 import numpy as np
 
-from .implementing import format_fuel, implement_network, implementation_json
-from .options import emit_json
+from crn.commands.implementing import format_fuel, implement_network, implementation_json
+from crn.commands.options import emit_json
 
 __all__ = ["run_implemented_ode", "signal_fractions", "consensus_json", "fuel_answer_json"]
 
@@ -20,7 +20,7 @@ def signal_fractions(impl, result) -> dict[str, np.ndarray]:
     signals are rescaled to molecules / the formal network's molecules per
     unit, the unit of the formal solve, so the two compare directly.
     """
-    from ..ode import molecules_per_unit
+    from crn.solvers.ode import molecules_per_unit
 
     scale = float(result.molecules_per_unit) / molecules_per_unit(impl.formal)
     index = impl.network.index
@@ -29,8 +29,8 @@ def signal_fractions(impl, result) -> dict[str, np.ndarray]:
 
 def held_fractions(impl, result) -> dict[str, np.ndarray]:
     """Each formal species free plus held in gates, in the unit of :func:`signal_fractions`."""
-    from ..implemented import held_matrix
-    from ..ode import molecules_per_unit
+    from crn.analyses.implemented import held_matrix
+    from crn.solvers.ode import molecules_per_unit
 
     scale = float(result.molecules_per_unit) / molecules_per_unit(impl.formal)
     totals = np.asarray(result.values) @ held_matrix(impl) * scale
@@ -43,7 +43,7 @@ def consensus_json(outcome) -> dict | None:
 
 
 def fuel_answer_json(answer) -> dict:
-    """The JSON object of a :class:`crn.design_questions.FuelAnswer`."""
+    """The JSON object of a :class:`crn.analyses.design_questions.FuelAnswer`."""
     return {"excess": answer.excess, "fuel_molar": answer.fuel_molar,
             "formal_time": answer.formal_time, "time": answer.time,
             "tolerance": answer.tolerance, "reason": answer.reason,
@@ -52,7 +52,7 @@ def fuel_answer_json(answer) -> dict:
 
 def fuel_answer_text(answer, concentration: float) -> str:
     """One line answering "how much fuel excess for a decision within the tolerance"."""
-    from ..units import format_concentration
+    from crn.core.units import format_concentration
 
     if answer.reason == "formal undecided":
         return "fuel needed: the formal network reaches no consensus to compare with"
@@ -73,9 +73,9 @@ def run_implemented_ode(loaded, settings, *, until, times, method, plot_file, cs
                         equations, latex, fuel_needed, within, every=None, in_counts=False,
                         force=False) -> None:
     """Solve the implementation's mean field and print or write it (the ``ode`` command)."""
-    from ..implemented import formal_ode_horizon, fuel_left_ode
-    from ..ode import solve_mean_field
-    from .ode import _print_equations, mean_field_json, sample_times
+    from crn.analyses.implemented import formal_ode_horizon, fuel_left_ode
+    from crn.commands.ode import _print_equations, mean_field_json, sample_times
+    from crn.solvers.ode import solve_mean_field
 
     formal = loaded.network
     impl = implement_network(formal, settings)
@@ -92,21 +92,21 @@ def run_implemented_ode(loaded, settings, *, until, times, method, plot_file, cs
     fuel = fuel_left_ode(impl, result)
     answer = None
     if fuel_needed:
-        from ..design_questions import fuel_for_time
+        from crn.analyses.design_questions import fuel_for_time
 
         scheme, params = settings
         answer = fuel_for_time(formal, scheme, params, tolerance=within)
     course = None
     if every is not None:
-        from ..time_course import TimeCourse
+        from crn.solvers.time_course import TimeCourse
 
         course = TimeCourse.from_mean_field(result, counts=in_counts)
     if csv_file and course is not None:
-        from ..io.time_course import write_time_course_csv
+        from crn.io.time_course import write_time_course_csv
 
         write_time_course_csv(csv_file, course)
     elif csv_file:
-        from ..io.ode_files import write_mean_field_csv
+        from crn.io.ode_files import write_mean_field_csv
 
         write_mean_field_csv(csv_file, result)
     if plot_file:
@@ -137,7 +137,7 @@ def _outcome_text(outcome, end) -> str:
 
 def _text(name, impl, result, formal_result, fuel, answer) -> str:
     p = impl.params
-    from ..units import format_concentration, format_rate_constant
+    from crn.core.units import format_concentration, format_rate_constant
 
     end = float(result.times[-1]) if result.times.size else 0.0
     lines = [f"{name}: mean-field ODE of its {impl.scheme} DNA implementation "
@@ -175,8 +175,8 @@ def save_implementation_plot(path, impl, formal_result, result, ensemble, *, tit
     matplotlib.use("Agg")
     import matplotlib.pyplot as plt
 
-    from ..io.atomic import save_figure
-    from ..plots.implementation import plot_implementation
+    from crn.io.atomic import save_figure
+    from crn.plots.implementation import plot_implementation
 
     ax = plot_implementation(impl, formal_result, result, ensemble, title=title,
                              disagreement=disagreement)

@@ -10,8 +10,8 @@ from __future__ import annotations
 
 import click
 
-from ..errors import CRNError
-from . import options as _options
+from crn.commands import options as _options
+from crn.core.errors import CRNError
 
 __all__ = ["implement_option", "dna_options", "dna_only_options", "dna_settings",
            "implementation_json", "format_fuel", "DNA_OPTIONS"]
@@ -69,7 +69,7 @@ def dna_settings(implement: str | None, **given):
             if given.get(name) is not None:
                 raise CRNError(f"{DNA_OPTIONS[name]} needs --implement SCHEME")
         return None
-    from ..dna import SCHEMES
+    from crn.dna import SCHEMES
 
     if implement not in SCHEMES:
         raise CRNError(f"--implement: unknown scheme {implement!r}; choose "
@@ -79,7 +79,7 @@ def dna_settings(implement: str | None, **given):
 
 def implementation_errors(func, *args, **kwargs):
     """Call ``func``; a DNA parameter error becomes a one-line error naming the option."""
-    from ..dna import DnaParameterError
+    from crn.dna import DnaParameterError
 
     try:
         return func(*args, **kwargs)
@@ -91,11 +91,11 @@ def implement_network(formal, settings):
     """The :class:`crn.dna.Implementation` of ``formal`` for ``(scheme, params)``, for analysis.
 
     Errors name ``--implement SCHEME`` or the parameter's option; the network's
-    intermediates report what they hold (:func:`crn.implemented.decision_network`).
+    intermediates report what they hold (:func:`crn.analyses.implemented.decision_network`).
     """
     import dataclasses
 
-    from ..implemented import decision_network
+    from crn.analyses.implemented import decision_network
 
     scheme, params = settings
     impl = _options.build_implementation(formal, scheme, params, option="--implement")

@@ -6,8 +6,8 @@ import math
 
 import click
 
-from .implementing import dna_options, dna_settings, implement_option
-from .options import (
+from crn.commands.implementing import dna_options, dna_settings, implement_option
+from crn.commands.options import (
     FIGURE_FILE,
     OUTPUT_FILE,
     emit_json,
@@ -25,7 +25,7 @@ from .options import (
 __all__ = ["mean_field_json", "ode"]
 
 #: The integrators of scipy's ``solve_ivp`` offered by ``--method``; the same as
-#: :data:`crn.ode.METHODS` (kept here so that ``crn --help`` needs no scipy).
+#: :data:`crn.solvers.ode.METHODS` (kept here so that ``crn --help`` needs no scipy).
 METHODS = ("LSODA", "BDF", "Radau", "RK45", "DOP853")
 
 
@@ -148,7 +148,7 @@ def ode(model, sets, until, at, plot_file, csv_file, as_json, equations, latex, 
     consensus (the agents not reporting the leading label make fewer than one
     molecule) and the fixed points with their stability. With --implement the ODE
     of the DNA implementation is solved instead, in the same time unit."""
-    from ..ode import solve_mean_field
+    from crn.solvers.ode import solve_mean_field
 
     settings = dna_settings(implement, fuel=fuel, max_rate=max_rate, toehold=toehold,
                             leak=leak, rate=rate, concentration=concentration)
@@ -156,7 +156,7 @@ def ode(model, sets, until, at, plot_file, csv_file, as_json, equations, latex, 
         raise click.UsageError("--fuel-needed needs --implement SCHEME")
     loaded = load(model, sets)
     if settings is not None:
-        from .implemented_ode import run_implemented_ode
+        from crn.commands.implemented_ode import run_implemented_ode
 
         run_implemented_ode(loaded, settings, until=until, times=_parse_times(at),
                             method=method, plot_file=plot_file, csv_file=csv_file,
@@ -169,7 +169,7 @@ def ode(model, sets, until, at, plot_file, csv_file, as_json, equations, latex, 
     if equations or latex:
         _print_equations(net, latex, as_json)
         return
-    from ..ode import default_horizon
+    from crn.solvers.ode import default_horizon
 
     times, until = sample_times(_parse_times(at), until, every, force, in_counts,
                                 lambda: default_horizon(net))
@@ -177,20 +177,20 @@ def ode(model, sets, until, at, plot_file, csv_file, as_json, equations, latex, 
                               stop_at_consensus=times is None)
     course = None
     if every is not None:
-        from ..time_course import TimeCourse
+        from crn.solvers.time_course import TimeCourse
 
         course = TimeCourse.from_mean_field(result, counts=in_counts)
     points = None
     if with_fixed_points:
-        from ..fixed_points import find_fixed_points
+        from crn.solvers.fixed_points import find_fixed_points
 
         points = find_fixed_points(net)
     if csv_file and course is not None:
-        from ..io.time_course import write_time_course_csv
+        from crn.io.time_course import write_time_course_csv
 
         write_time_course_csv(csv_file, course)
     elif csv_file:
-        from ..io.ode_files import write_mean_field_csv
+        from crn.io.ode_files import write_mean_field_csv
 
         write_mean_field_csv(csv_file, result)
     if plot_file:
@@ -242,7 +242,7 @@ def sample_times(times, until, every, force, in_counts, horizon):
 
 
 def _print_equations(net, latex: bool, as_json: bool) -> None:
-    from ..equations import format_equations, mean_field_equations
+    from crn.core.equations import format_equations, mean_field_equations
 
     if as_json:
         import sympy
@@ -263,8 +263,8 @@ def _plot(result, name: str, path, seconds=None) -> None:
     matplotlib.use("Agg")
     import matplotlib.pyplot as plt
 
-    from ..io.atomic import save_figure
-    from ..plots.ode import plot_mean_field
+    from crn.io.atomic import save_figure
+    from crn.plots.ode import plot_mean_field
 
     ax = plot_mean_field(result, title=f"{name}\nmean-field ODE", seconds_per_time=seconds)
     try:
@@ -278,13 +278,13 @@ def mean_field_json(model, result, fixed_points, *, consensus=None) -> dict:
 
     Parameters
     ----------
-    model : crn.model.Model
+    model : crn.core.model.Model
         The loaded model (its ``name`` and ``network`` are used).
     result : MeanFieldResult
         The solve whose ``times`` and ``fractions`` (shape ``(n_times,)`` per
         species) are reported.
     fixed_points : list of FixedPoint or None
-        From :func:`crn.fixed_points.find_fixed_points`; None when not searched
+        From :func:`crn.solvers.fixed_points.find_fixed_points`; None when not searched
         (reported as null).
     consensus : RunOutcome, optional
         The consensus to report instead of ``result.consensus`` (``crn compare``
@@ -299,7 +299,7 @@ def mean_field_json(model, result, fixed_points, *, consensus=None) -> dict:
         ``held``, ``correct`` and, for a network, ``concentrations``. Values may be
         numpy arrays: pass it through ``emit_json``/``to_jsonable``.
     """
-    from ..outcome import correct_label
+    from crn.core.outcome import correct_label
 
     net = model.network
     outcome = result.consensus if consensus is None else consensus

@@ -142,8 +142,8 @@ def seconds_per_time(net, rate: str | None, concentration: str | None) -> float 
     CRNError
         When only one is given, a value cannot be read, or the model is not a protocol.
     """
-    from ..errors import CRNError
-    from ..units import parse_concentration, parse_rate_constant
+    from crn.core.errors import CRNError
+    from crn.core.units import parse_concentration, parse_rate_constant
 
     if rate is None and concentration is None:
         return None
@@ -191,15 +191,15 @@ def load(model: str, sets):
     ModelError
         When the file is missing, unreadable or invalid, or an override is malformed.
     """
-    from ..io.models import load_model
-    from ..model import parse_overrides
+    from crn.core.model import parse_overrides
+    from crn.io.models import load_model
 
     return load_model(model, parse_overrides(sets))
 
 
 def to_jsonable(value):
     """:func:`crn.io.jsonable.to_jsonable`, imported on first use (it needs numpy)."""
-    from ..io.jsonable import to_jsonable as convert
+    from crn.io.jsonable import to_jsonable as convert
 
     return convert(value)
 
@@ -330,8 +330,8 @@ class ClusterAddress(click.ParamType):
     def convert(self, value, param, ctx):
         from urllib.parse import urlsplit
 
-        from ..errors import CRNError
-        from ..simulate import probe_scheduler
+        from crn.core.errors import CRNError
+        from crn.solvers.simulate import probe_scheduler
 
         parts = urlsplit(value if "://" in value else f"tcp://{value}")
         try:
@@ -418,8 +418,8 @@ def _bad(option: str, message: str):
 
 
 def _leak(text: str) -> float:
-    from ..errors import CRNError
-    from ..units import parse_rate_constant
+    from crn.core.errors import CRNError
+    from crn.core.units import parse_rate_constant
 
     try:
         return parse_rate_constant(text)
@@ -438,8 +438,8 @@ def _leak(text: str) -> float:
 
 
 def _is_rate_unit(unit: str) -> bool:
-    from ..errors import CRNError
-    from ..units import parse_rate_constant
+    from crn.core.errors import CRNError
+    from crn.core.units import parse_rate_constant
 
     try:
         parse_rate_constant("1" + unit)
@@ -471,9 +471,9 @@ def dna_parameters(*, rate=None, concentration=None, fuel=None, max_rate=None, t
         Naming the option, for a unit that is not a rate or concentration or an
         impossible value.
     """
-    from ..dna import DnaParameterError, DnaParameters
-    from ..errors import CRNError
-    from ..units import parse_concentration, parse_rate_constant
+    from crn.core.errors import CRNError
+    from crn.core.units import parse_concentration, parse_rate_constant
+    from crn.dna import DnaParameterError, DnaParameters
 
     def read(value, option, parse, default=None):
         if value is None:
@@ -510,7 +510,7 @@ def dna_errors():
 
     @contextmanager
     def guard():
-        from ..dna import DnaParameterError
+        from crn.dna import DnaParameterError
 
         try:
             yield
@@ -539,8 +539,8 @@ def build_implementation(formal, scheme: str, params, option: str = "--scheme"):
     -------
     Implementation
     """
-    from ..dna import DnaParameterError, implement
-    from ..errors import CRNError
+    from crn.core.errors import CRNError
+    from crn.dna import DnaParameterError, implement
 
     with dna_errors():
         try:
@@ -605,10 +605,10 @@ def sample_times_option_value(every: float, until: float, force: bool):
     ------
     click.BadParameter
         For an interval that is not positive, longer than the horizon, or
-        makes more sample times than :data:`crn.time_course.MAX_SAMPLES`
+        makes more sample times than :data:`crn.solvers.time_course.MAX_SAMPLES`
         without ``--force``.
     """
-    from ..time_course import sample_times
+    from crn.solvers.time_course import sample_times
 
     try:
         return sample_times(every, until, force=force)
@@ -624,7 +624,7 @@ def stop_interrupted(finished: str):
     finished : str
         What the command had finished, e.g. ``"after n = 2..7 (no counterexample so far)"``.
     """
-    from .. import interrupts
+    from crn.runtime import interrupts
 
     click.echo(f"crn: {interrupts.reason()} {finished}", err=True)
     click.get_current_context().exit(interrupts.exit_status())
@@ -636,8 +636,8 @@ class MemorySize(click.ParamType):
     name = "size"
 
     def convert(self, value, param, ctx):
-        from ..errors import CRNError
-        from ..guards import parse_memory
+        from crn.core.errors import CRNError
+        from crn.runtime.guards import parse_memory
 
         try:
             return parse_memory(value)
@@ -646,7 +646,7 @@ class MemorySize(click.ParamType):
 
 
 def guard_options(func):
-    """Add ``--max-memory SIZE`` and ``--force`` (see :mod:`crn.guards`) to a click command.
+    """Add ``--max-memory SIZE`` and ``--force`` (see :mod:`crn.runtime.guards`) to a click command.
 
     Parameters
     ----------
@@ -671,7 +671,7 @@ def guard(estimate, max_memory, force, *, announce: bool = True,
 
     Parameters
     ----------
-    estimate : crn.guards.Estimate
+    estimate : crn.runtime.guards.Estimate
     max_memory : int or None
         ``--max-memory`` in bytes (None: half the RAM).
     force : bool
@@ -681,7 +681,7 @@ def guard(estimate, max_memory, force, *, announce: bool = True,
     announce_from : float, default 10
         Print the estimate on standard error from this many seconds.
     """
-    from ..guards import enforce
+    from crn.runtime.guards import enforce
 
     enforce(estimate, max_memory=max_memory, force=force)
     if announce and estimate.seconds >= announce_from:

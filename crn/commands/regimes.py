@@ -11,11 +11,8 @@ from typing import TYPE_CHECKING
 
 import click
 
-from ..errors import CRNError
-from ..io.atomic import save_figure, write_atomic
-from ..io.regime_tables import table_csv
-from .implementing import dna_options, dna_settings, implement_option
-from .options import (
+from crn.commands.implementing import dna_options, dna_settings, implement_option
+from crn.commands.options import (
     CLUSTER_ADDRESS,
     FIGURE_FILE,
     OUTPUT_FILE,
@@ -31,9 +28,12 @@ from .options import (
     set_option,
     to_jsonable,
 )
+from crn.core.errors import CRNError
+from crn.io.atomic import save_figure, write_atomic
+from crn.io.regime_tables import table_csv
 
 if TYPE_CHECKING:
-    from ..regimes import RegimeMap
+    from crn.analyses.regimes import RegimeMap
 
 __all__ = ["regimes", "parse_int_list", "parse_float_list", "cell_networks"]
 
@@ -66,8 +66,8 @@ def parse_float_list(text: str, what: str) -> list[float]:
 
 def cell_networks(model_path: str, sets):
     """The per-cell network builder: model parameters n and gap when the TOML model has both."""
-    from ..model import parse_overrides
-    from ..probes import InitialSplit, ModelParameters
+    from crn.analyses.probes import InitialSplit, ModelParameters
+    from crn.core.model import parse_overrides
 
     model = load(model_path, sets)
     path = Path(model_path)
@@ -150,8 +150,8 @@ def regimes(model, sets, n_list, gap_list, fraction_list, risk, until, runs_max,
     the DNA implementation of its network (same time unit, decisions from the signals)."""
     import numpy as np
 
-    from ..io.sweep_store import SweepStore
-    from ..regimes import RegimeCell, plan_cells, regime_map
+    from crn.analyses.regimes import RegimeCell, plan_cells, regime_map
+    from crn.io.sweep_store import SweepStore
 
     settings = dna_settings(implement, fuel=fuel, max_rate=max_rate, toehold=toehold,
                             leak=leak, rate=rate, concentration=concentration)
@@ -171,15 +171,15 @@ def regimes(model, sets, n_list, gap_list, fraction_list, risk, until, runs_max,
     model_obj, networks = cell_networks(model, sets)
     formal_networks = networks
     if settings is not None:
-        from ..implemented import ImplementedCells
-        from .implementing import implement_network
+        from crn.analyses.implemented import ImplementedCells
+        from crn.commands.implementing import implement_network
 
         networks = ImplementedCells(networks, *settings)
         implement_network(model_obj.network, settings)  # parameter errors before any cell
     for n, g in skipped:
         click.echo(f"crn: skipping n={n}, gap={g}: (n + gap) / 2 is not whole", err=True)
-    from ..guards import regime_map_estimate
-    from ..regimes import DEFAULT_EXACT_MAX
+    from crn.analyses.regimes import DEFAULT_EXACT_MAX
+    from crn.runtime.guards import regime_map_estimate
 
     guard(regime_map_estimate(networks, cells, runs_max=runs_max, until=until, method=method,
                               exact_max=DEFAULT_EXACT_MAX, workers=workers or 1),
@@ -255,7 +255,7 @@ def regimes(model, sets, n_list, gap_list, fraction_list, risk, until, runs_max,
 
 def _leak_tolerances(formal_networks, result, settings, *, risk, runs_max, until, entropy,
                      as_json):
-    from ..design_questions import leak_tolerance
+    from crn.analyses.design_questions import leak_tolerance
 
     scheme, params = settings
     out = []
@@ -283,7 +283,7 @@ def _tolerance_text(tolerances, risk) -> str:
 
 def _report_interrupted(finished, total, out_dir):
     """After Ctrl-C or SIGTERM: the finished cells, where they are kept, and the exit status."""
-    from .. import interrupts
+    from crn.runtime import interrupts
 
     lines = [f"{c.n:>10} {c.gap:>8} {c.p_wrong:>12.4g} [{c.low:8.3g}, {c.high:8.3g}] "
              f"{c.flag:>10}" for c in finished]
@@ -303,7 +303,7 @@ def _save_plot(result, path, name):
     matplotlib.use("Agg")
     import matplotlib.pyplot as plt
 
-    from ..plots.regimes import plot_regime_map
+    from crn.plots.regimes import plot_regime_map
 
     ax = plot_regime_map(result, title=f"{name}: where the mean field misleads "
                                        f"(risk {result.risk:g})")

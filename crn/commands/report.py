@@ -9,8 +9,7 @@ from pathlib import Path
 
 import click
 
-from ..errors import CRNError
-from .options import (
+from crn.commands.options import (
     OUTPUT_FILE,
     build_implementation,
     dna_options,
@@ -22,6 +21,7 @@ from .options import (
     seed_option,
     set_option,
 )
+from crn.core.errors import CRNError
 
 __all__ = ["report", "read_saved"]
 
@@ -42,7 +42,7 @@ def read_saved(folder) -> dict:
     CRNError
         When the folder does not exist or a results file is not a JSON object.
     """
-    from ..report import SAVED_NAMES
+    from crn.report import SAVED_NAMES
 
     folder = Path(folder)
     if not folder.is_dir():
@@ -63,13 +63,13 @@ def read_saved(folder) -> dict:
 
 
 def _floats(text, what):
-    from .regimes import parse_float_list
+    from crn.commands.regimes import parse_float_list
 
     return tuple(parse_float_list(text, what)) if text else ()
 
 
 def _ints(text, what):
-    from .regimes import parse_int_list
+    from crn.commands.regimes import parse_int_list
 
     return tuple(parse_int_list(text, what)) if text else ()
 
@@ -117,10 +117,10 @@ def report(model, sets, output, from_dir, runs, regime_n, regime_gap_fraction, r
     mean field with fixed points, stochastic runs with bands next to the ODE, exact results
     when small, the regime map, the copies answer, cautions and the commands that reproduce
     every number. Figures are embedded as SVG; the page needs no network and no scripts."""
-    from ..io.atomic import write_atomic
-    from ..report import ReportSettings, collect_report, render_report
-    from ..units import parse_concentration, parse_rate_constant, parse_time
-    from .regimes import cell_networks
+    from crn.commands.regimes import cell_networks
+    from crn.core.units import parse_concentration, parse_rate_constant, parse_time
+    from crn.io.atomic import write_atomic
+    from crn.report import ReportSettings, collect_report, render_report
 
     saved = read_saved(from_dir) if from_dir else {}
     settings = ReportSettings(
@@ -162,7 +162,7 @@ def report(model, sets, output, from_dir, runs, regime_n, regime_gap_fraction, r
     html = render_report(data, command_line=line)
     write_atomic(output, html)
     if as_json:
-        from ..report import SECTIONS
+        from crn.report import SECTIONS
 
         emit_json({"path": str(Path(output).resolve()),
                    "sections": [sid for sid, _ in SECTIONS]})

@@ -6,9 +6,8 @@ from typing import TYPE_CHECKING
 
 import click
 
-from ..engines import ENGINES
-from .implementing import dna_options, dna_settings, implement_option
-from .options import (
+from crn.commands.implementing import dna_options, dna_settings, implement_option
+from crn.commands.options import (
     CLUSTER_ADDRESS,
     FIGURE_FILE,
     OUTPUT_FILE,
@@ -25,9 +24,10 @@ from .options import (
     seed_option,
     set_option,
 )
+from crn.engines import ENGINES
 
 if TYPE_CHECKING:
-    from ..simulate import Ensemble
+    from crn.solvers.simulate import Ensemble
 
 __all__ = ["ssa", "ensemble_options", "run_ensemble", "ensemble_summary", "format_ensemble",
            "horizon_text", "format_horizon"]
@@ -55,17 +55,17 @@ def ensemble_options(func):
 
 def run_ensemble(net, *, runs, until, engine, seed, workers, cluster, as_json, times=None,
                  description="stochastic runs", reduce=None, max_memory=None, force=False):
-    """Run :func:`crn.simulate.simulate` under a progress bar; report the seed and Ctrl-C.
+    """Run :func:`crn.solvers.simulate.simulate` under a progress bar; report the seed and Ctrl-C.
 
     First the work is estimated from the engine's cost model
-    (:func:`crn.guards.ensemble_estimate`): printed when long, refused (exit 2)
+    (:func:`crn.runtime.guards.ensemble_estimate`): printed when long, refused (exit 2)
     beyond the limits unless ``force``.
 
     Returns
     -------
     (Ensemble, bool)
         The ensemble (the finished runs after Ctrl-C or SIGTERM) and whether it
-        was interrupted. With ``reduce`` (see :func:`crn.simulate.simulate`)
+        was interrupted. With ``reduce`` (see :func:`crn.solvers.simulate.simulate`)
         every run's counts go to it.
 
     Raises
@@ -77,8 +77,8 @@ def run_ensemble(net, *, runs, until, engine, seed, workers, cluster, as_json, t
 
     import numpy as np
 
-    from ..guards import ensemble_estimate
-    from ..simulate import SimulationInterrupted, choose_engine, default_horizon, simulate
+    from crn.runtime.guards import ensemble_estimate
+    from crn.solvers.simulate import SimulationInterrupted, choose_engine, default_horizon, simulate
 
     horizon = default_horizon(net) if until is None else float(until)
     estimate = ensemble_estimate(net, runs=runs, until=horizon, engine=choose_engine(net, engine),
@@ -87,7 +87,7 @@ def run_ensemble(net, *, runs, until, engine, seed, workers, cluster, as_json, t
     if reduce is not None:  # the runs' counts are reduced as they come: bounded memory
         from dataclasses import replace
 
-        from ..time_course import reduction_memory
+        from crn.solvers.time_course import reduction_memory
 
         estimate = replace(estimate, memory=float(reduction_memory(
             len(times), net.n_species, runs)))
@@ -135,7 +135,7 @@ def _number(x) -> str:
 def format_ensemble(ensemble: Ensemble, correct=None) -> list[str]:
     """Table lines: each label's runs and probability with its 95% Wilson interval, then the
     consensus-time quantiles."""
-    from ..stats import wilson_interval
+    from crn.core.stats import wilson_interval
 
     if ensemble.runs == 0:
         return ["no run finished"]
@@ -155,7 +155,7 @@ def format_ensemble(ensemble: Ensemble, correct=None) -> list[str]:
 
 
 def _finish_interrupted(ensemble: Ensemble):
-    from .. import interrupts
+    from crn.runtime import interrupts
 
     click.echo(f"crn: {interrupts.reason()} after {ensemble.runs} of {ensemble.requested} runs",
                err=True)
@@ -194,11 +194,11 @@ def ssa(model, sets, runs, until, engine, workers, cluster, max_memory, force, s
     """
     import numpy as np
 
-    from ..errors import WorkerError
-    from ..io.runs import write_runs_csv
-    from ..outcome import correct_label
-    from ..simulate import default_horizon
-    from ..time_course import TimeCourseAccumulator, time_course_of_counts
+    from crn.core.errors import WorkerError
+    from crn.core.outcome import correct_label
+    from crn.io.runs import write_runs_csv
+    from crn.solvers.simulate import default_horizon
+    from crn.solvers.time_course import TimeCourseAccumulator, time_course_of_counts
 
     settings = dna_settings(implement, fuel=fuel, max_rate=max_rate, toehold=toehold,
                             leak=leak, rate=rate, concentration=concentration)
@@ -206,8 +206,8 @@ def ssa(model, sets, runs, until, engine, workers, cluster, max_memory, force, s
     net = loaded.network
     impl = None
     if settings is not None:
-        from ..implemented import formal_horizon
-        from .implementing import implement_network
+        from crn.analyses.implemented import formal_horizon
+        from crn.commands.implementing import implement_network
 
         impl = implement_network(net, settings)
         until = formal_horizon(net) if until is None else until
@@ -242,7 +242,7 @@ def ssa(model, sets, runs, until, engine, workers, cluster, max_memory, force, s
                                        time_units=time_units)
     if csv_path is not None and ensemble.runs:
         if accumulator is not None:
-            from ..io.time_course import write_time_course_csv
+            from crn.io.time_course import write_time_course_csv
 
             write_time_course_csv(csv_path, course)
         else:
@@ -251,7 +251,7 @@ def ssa(model, sets, runs, until, engine, workers, cluster, max_memory, force, s
         _plot(net, course, loaded.name, plot_path)
     fuel_left = None
     if impl is not None:
-        from ..implemented import fuel_left_runs
+        from crn.analyses.implemented import fuel_left_runs
 
         fuel_left = fuel_left_runs(impl, ensemble)
         if not fuel_left and course is not None:
@@ -264,7 +264,7 @@ def ssa(model, sets, runs, until, engine, workers, cluster, max_memory, force, s
         if course is not None and not net.labels:
             summary["at_horizon"] = course.at(-1)
         if impl is not None:
-            from .implementing import implementation_json
+            from crn.commands.implementing import implementation_json
 
             summary.update(fuel=fuel_left, implementation=implementation_json(impl))
         emit_json(summary)
@@ -280,7 +280,7 @@ def ssa(model, sets, runs, until, engine, workers, cluster, max_memory, force, s
         if course is not None:
             lines.extend(format_horizon(course))
         if impl is not None:
-            from .implementing import format_fuel
+            from crn.commands.implementing import format_fuel
 
             lines.append(format_fuel(fuel_left) + " (mean over runs, at the horizon)")
         click.echo("\n".join(lines))
@@ -303,7 +303,7 @@ def format_horizon(course) -> list[str]:
         lines.append(f"  {name:<{width}} " + " ".join(
             f"{cell(getattr(course, k), i):>10}" for k in ("mean", "sd", "q05", "q95")))
     if course.quantile_runs < course.runs:
-        from ..time_course import quantile_rank_error
+        from crn.solvers.time_course import quantile_rank_error
 
         eps = quantile_rank_error(course.quantile_runs)
         lines.append(f"  quantiles from {course.quantile_runs} runs drawn at random "
@@ -317,10 +317,10 @@ def _plot(net, course, name: str, path) -> None:
     matplotlib.use("Agg")
     import matplotlib.pyplot as plt
 
-    from ..io.atomic import save_figure
-    from ..ode import molecules_per_unit, solve_mean_field
-    from ..plots.time_course import plot_time_course
-    from ..time_course import TimeCourse
+    from crn.io.atomic import save_figure
+    from crn.plots.time_course import plot_time_course
+    from crn.solvers.ode import molecules_per_unit, solve_mean_field
+    from crn.solvers.time_course import TimeCourse
 
     result = solve_mean_field(net, times=course.times, until=float(course.times[-1]),
                               stop_at_consensus=False)

@@ -4,9 +4,16 @@ from __future__ import annotations
 
 import click
 
-from ..errors import CRNError
-from ..io.atomic import write_atomic
-from .options import OUTPUT_FILE, emit_json, json_option, load, model_argument, set_option
+from crn.commands.options import (
+    OUTPUT_FILE,
+    emit_json,
+    json_option,
+    load,
+    model_argument,
+    set_option,
+)
+from crn.core.errors import CRNError
+from crn.io.atomic import write_atomic
 
 __all__ = ["translate"]
 
@@ -31,14 +38,14 @@ def translate(model, sets, fmt, output, as_json):
     """
     if as_json and output is None and fmt not in (None, "json"):
         raise click.UsageError(f"--json prints the JSON object; give -o FILE for --to {fmt}")
-    from ..io.contract import network_to_dict
-    from ..io.exports import export_network
+    from crn.io.contract import network_to_dict
+    from crn.io.exports import export_network
 
     fmt = fmt or "text"
     net = load(model, sets).network
     text = export_network(net, fmt)
     if fmt == "sbml":
-        from ..io.sbml import sbml_consistency
+        from crn.io.sbml import sbml_consistency
 
         errors, _ = sbml_consistency(text)
         if errors:

@@ -4,7 +4,7 @@ from __future__ import annotations
 
 import click
 
-from .options import (
+from crn.commands.options import (
     emit_json,
     guard,
     guard_options,
@@ -53,9 +53,9 @@ def verify(model, sets, max_n, max_states, max_memory, force, as_json):
     Exit status: 0 when every case is correct, 1 on a counterexample (so scripts
     can rely on it), 2 on bad input.
     """
-    from ..guards import verify_estimate
-    from ..interrupts import call_interruptibly
-    from ..verify import verify as verify_model
+    from crn.analyses.verify import verify as verify_model
+    from crn.runtime.guards import verify_estimate
+    from crn.runtime.interrupts import call_interruptibly
 
     loaded = load(model, sets)
     if loaded.network.inputs is not None:

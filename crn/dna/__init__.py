@@ -8,8 +8,8 @@ each (a new scheme is one file and one entry here).
 
 from __future__ import annotations
 
-from .implementation import ROLES, Implementation, Module
-from .parameters import (
+from crn.dna.implementation import ROLES, Implementation, Module
+from crn.dna.parameters import (
     DEFAULT_FUEL_EXCESS,
     DEFAULT_TOEHOLD,
     LEAK_TYPICAL,
@@ -17,7 +17,7 @@ from .parameters import (
     DnaParameters,
     toehold_rate,
 )
-from .schemes import SCHEMES, implement
+from crn.dna.schemes import SCHEMES, implement
 
 __all__ = ["DnaParameters", "DnaParameterError", "Implementation", "Module", "implement",
            "SCHEMES", "ROLES", "toehold_rate", "DEFAULT_FUEL_EXCESS", "DEFAULT_TOEHOLD",

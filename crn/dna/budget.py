@@ -15,8 +15,8 @@ from dataclasses import dataclass
 
 import numpy as np
 
-from ..network import Network, Reaction
-from .implementation import Implementation
+from crn.core.network import Network, Reaction
+from crn.dna.implementation import Implementation
 
 __all__ = ["FuelBudget", "decision_fuel", "Inventory", "inventory"]
 
@@ -100,13 +100,13 @@ def decision_fuel(impl: Implementation, until: float | None = None) -> FuelBudge
     ----------
     impl : Implementation
     until : float, optional
-        Horizon in formal time; default that of :func:`crn.ode.solve_mean_field`.
+        Horizon in formal time; default that of :func:`crn.solvers.ode.solve_mean_field`.
 
     Returns
     -------
     FuelBudget
     """
-    from ..ode import molecules_per_unit, solve_mean_field
+    from crn.solvers.ode import molecules_per_unit, solve_mean_field
 
     net, counters = _with_counters(impl.formal)
     result = solve_mean_field(net, until=until)

@@ -4,7 +4,7 @@ A scheme describes its implementation in lab units: species with a role
 (``signal``, ``fuel``, ``intermediate``, ``waste``), the strands each species is
 made of, initial fuel concentrations in M, and reactions with physical rate
 constants (/s for unimolecular, /M/s for bimolecular). :class:`Builder` turns
-that description into a :class:`~crn.network.Network` in the formal network's
+that description into a :class:`~crn.core.network.Network` in the formal network's
 own units, so every engine's times compare directly with the formal run:
 
 * counts: the formal volume v stands for the signal concentration C, so one
@@ -16,7 +16,7 @@ own units, so every engine's times compare directly with the formal run:
   one k (/s) becomes ``k / (rate C)``.
 
 Signal species keep their formal names, labels and question; every other
-species is ignored by the consensus rule (:data:`crn.network.IGNORED`), so a
+species is ignored by the consensus rule (:data:`crn.core.network.IGNORED`), so a
 formal species held inside an intermediate counts toward no label until a
 later step releases it.
 """
@@ -30,10 +30,10 @@ from dataclasses import dataclass, field
 
 import numpy as np
 
-from ..errors import CRNError
-from ..network import MAX_COUNT, Network, Reaction
-from ..protocol import is_identifier
-from .parameters import DnaParameterError, DnaParameters
+from crn.core.errors import CRNError
+from crn.core.network import MAX_COUNT, Network, Reaction
+from crn.core.protocol import is_identifier
+from crn.dna.parameters import DnaParameterError, DnaParameters
 
 __all__ = ["ROLES", "Implementation", "Module", "Builder", "formal_reactions", "signal_strands",
            "add_strands", "buffer_modules", "order_reactants"]

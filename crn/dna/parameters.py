@@ -13,7 +13,7 @@ from __future__ import annotations
 import math
 from dataclasses import dataclass
 
-from ..errors import CRNError
+from crn.core.errors import CRNError
 
 __all__ = [
     "DnaParameters",

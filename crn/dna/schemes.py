@@ -4,12 +4,12 @@ from __future__ import annotations
 
 from collections.abc import Callable
 
-from ..errors import CRNError
-from ..network import Network
-from .implementation import Implementation
-from .parameters import DnaParameters
-from .ssw import implement_ssw
-from .two_domain import implement_two_domain
+from crn.core.errors import CRNError
+from crn.core.network import Network
+from crn.dna.implementation import Implementation
+from crn.dna.parameters import DnaParameters
+from crn.dna.ssw import implement_ssw
+from crn.dna.two_domain import implement_two_domain
 
 __all__ = ["SCHEMES", "implement"]
 

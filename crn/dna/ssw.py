@@ -47,8 +47,8 @@ strand and the translator bottom strand.
 
 from __future__ import annotations
 
-from ..network import Network
-from .implementation import (
+from crn.core.network import Network
+from crn.dna.implementation import (
     Builder,
     Implementation,
     Module,
@@ -58,7 +58,7 @@ from .implementation import (
     order_reactants,
     signal_strands,
 )
-from .parameters import DnaParameters
+from crn.dna.parameters import DnaParameters
 
 __all__ = ["implement_ssw"]
 

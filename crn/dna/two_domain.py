@@ -37,9 +37,9 @@ per reaction, the join and fork bottom strands, the two released top strands
 
 from __future__ import annotations
 
-from ..errors import CRNError
-from ..network import Network
-from .implementation import (
+from crn.core.errors import CRNError
+from crn.core.network import Network
+from crn.dna.implementation import (
     Builder,
     Implementation,
     Module,
@@ -48,7 +48,7 @@ from .implementation import (
     formal_reactions,
     order_reactants,
 )
-from .parameters import DnaParameters
+from crn.dna.parameters import DnaParameters
 
 __all__ = ["implement_two_domain"]
 

@@ -6,7 +6,7 @@ from dataclasses import dataclass
 
 import numpy as np
 
-from ..outcome import RunOutcome
+from crn.core.outcome import RunOutcome
 
 __all__ = ["Trajectory"]
 

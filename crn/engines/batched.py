@@ -45,12 +45,12 @@ import math
 import numba
 import numpy as np
 
-from ..errors import CRNError
-from ..network import Network
-from ..outcome import RunOutcome, consensus_index
-from ..translate import network_to_protocol
-from .base import Trajectory
-from .hypergeometric import (
+from crn.core.errors import CRNError
+from crn.core.network import Network
+from crn.core.outcome import RunOutcome, consensus_index
+from crn.core.translate import network_to_protocol
+from crn.engines.base import Trajectory
+from crn.engines.hypergeometric import (
     MAX_POPULATION,
     _lgamma_excess,
     hypergeometric_draw,
@@ -84,7 +84,7 @@ _PACK = 1 << 16  # packed outcome codes a * _PACK + b need fewer states than thi
 def protocol_tables(net: Network) -> dict:
     """Transition tables of the protocol a network runs as, for the kernels.
 
-    The network is converted with :func:`crn.translate.network_to_protocol`.
+    The network is converted with :func:`crn.core.translate.network_to_protocol`.
     Outcomes that leave the counts unchanged are dropped, and for each
     unordered pair {p, q} the outcome probabilities of (p, q) and (q, p) are
     repacked greedily into the two orders (capacity one each). Only the sum over
@@ -1014,7 +1014,7 @@ def run_batched(net: Network, *, until: float, times=None, rng=None,
     net : Network
         A protocol's network (``from_protocol``) or a network whose reactions
         all have two reactants and two products; it is run as the protocol
-        :func:`crn.translate.network_to_protocol` gives. At most 2**60 agents.
+        :func:`crn.core.translate.network_to_protocol` gives. At most 2**60 agents.
     until : float
         Horizon in network time (parallel time for a protocol's network);
         ``math.inf`` runs until consensus (with ``stop_at_consensus``) or silence.

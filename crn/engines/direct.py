@@ -7,7 +7,7 @@ and the linear search for the next reaction runs over reactions ordered by how
 often they fire. The order is kept up to date during the run by moving a fired
 reaction one place forward (the sorting variant of McCollum et al. 2006), so no
 pre-simulation is needed. Consensus is tracked incrementally from the species
-whose counts cross zero, with the rule of :func:`crn.outcome.consensus_index`.
+whose counts cross zero, with the rule of :func:`crn.core.outcome.consensus_index`.
 """
 
 from __future__ import annotations
@@ -15,9 +15,9 @@ from __future__ import annotations
 import numba
 import numpy as np
 
-from ..network import Network
-from ..outcome import RunOutcome
-from .base import Trajectory
+from crn.core.network import Network
+from crn.core.outcome import RunOutcome
+from crn.engines.base import Trajectory
 
 __all__ = ["run_direct", "dependency_graph"]
 

@@ -26,7 +26,7 @@ import secrets
 import signal
 from pathlib import Path
 
-from ..errors import CRNError
+from crn.core.errors import CRNError
 
 __all__ = ["atomic_open", "atomic_path", "write_atomic", "save_figure", "file_mode",
            "TEMP_MARK", "PAUSE_HOOK"]

@@ -13,8 +13,8 @@ import json
 import math
 from collections.abc import Mapping
 
-from ..errors import ModelError
-from ..network import Network, Reaction
+from crn.core.errors import ModelError
+from crn.core.network import Network, Reaction
 
 __all__ = ["network_to_dict", "network_from_dict", "network_to_json", "network_from_json"]
 

@@ -5,13 +5,13 @@ Reading network files (JSON, SBML) goes through :func:`crn.io.models.load_model`
 
 from __future__ import annotations
 
-from ..errors import CRNError
-from ..network import Network
-from .atomic import write_atomic
-from .contract import network_to_json
-from .latex import network_to_latex
-from .sbml import network_to_sbml
-from .text import network_to_text
+from crn.core.errors import CRNError
+from crn.core.network import Network
+from crn.io.atomic import write_atomic
+from crn.io.contract import network_to_json
+from crn.io.latex import network_to_latex
+from crn.io.sbml import network_to_sbml
+from crn.io.text import network_to_text
 
 __all__ = ["FORMATS", "export_network", "write_network"]
 

@@ -10,10 +10,10 @@ or /s), ``seconds_per_time_unit``, ``summary`` and ``caution``.
 
 from __future__ import annotations
 
-from ..dna.budget import FuelBudget, Inventory
-from ..dna.implementation import ROLES, Implementation
-from ..units import format_concentration, format_time
-from .contract import network_to_dict
+from crn.core.units import format_concentration, format_time
+from crn.dna.budget import FuelBudget, Inventory
+from crn.dna.implementation import ROLES, Implementation
+from crn.io.contract import network_to_dict
 
 __all__ = ["implementation_to_dict", "implementation_to_text", "summary_line", "CAUTION"]
 

@@ -4,8 +4,8 @@ from __future__ import annotations
 
 from collections.abc import Mapping
 
-from ..network import Network
-from .text import format_number
+from crn.core.network import Network
+from crn.io.text import format_number
 
 __all__ = ["network_to_latex", "latex_number"]
 

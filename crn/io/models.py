@@ -8,11 +8,11 @@ import signal
 from collections.abc import Mapping
 from pathlib import Path
 
-from ..errors import CRNError, ModelError
-from ..model import Model, parse_model
-from ..network import Network
-from ..protocol import Protocol
-from ..translate import protocol_to_network
+from crn.core.errors import CRNError, ModelError
+from crn.core.model import Model, parse_model
+from crn.core.network import Network
+from crn.core.protocol import Protocol
+from crn.core.translate import protocol_to_network
 
 __all__ = ["load_model", "MAX_MODEL_BYTES", "PYTHON_MODEL_TIMEOUT"]
 
@@ -35,8 +35,8 @@ def load_model(path, overrides=None) -> Model:
         ``.sbml``), or a ``.py`` model. A Python model file is ordinary
         trusted Python: it is run, so load only files you trust. It defines
         ``PARAMETERS`` (a dict of defaults, optional) and ``build(parameters)`` returning a
-        :class:`~crn.protocol.Protocol` or a :class:`~crn.network.Network`
-        (see :func:`crn.generate.protocol_from_rule`).
+        :class:`~crn.core.protocol.Protocol` or a :class:`~crn.core.network.Network`
+        (see :func:`crn.core.generate.protocol_from_rule`).
     overrides : mapping of str to number, optional
         Parameter values replacing the file's (``--set``).
 
@@ -69,8 +69,8 @@ def load_model(path, overrides=None) -> Model:
 
 def _load_network(path: Path, text: str, overrides) -> Model:
     """A network exported as JSON (the contract object) or SBML; it has no parameters."""
-    from .contract import network_from_json
-    from .sbml import network_from_sbml
+    from crn.io.contract import network_from_json
+    from crn.io.sbml import network_from_sbml
 
     if overrides:
         raise ModelError(f"--set names unknown parameter {next(iter(overrides))!r} "
@@ -112,7 +112,7 @@ def _time_limit(path: Path, seconds: float):
 
 def _own_interrupt(err: BaseException) -> bool:
     """A KeyboardInterrupt the model raised itself (no Ctrl-C or SIGTERM arrived)."""
-    from .. import interrupts
+    from crn.runtime import interrupts
 
     return isinstance(err, KeyboardInterrupt) and interrupts.received() is None
 

@@ -5,7 +5,7 @@ from __future__ import annotations
 import csv
 import io
 
-from .atomic import write_atomic
+from crn.io.atomic import write_atomic
 
 __all__ = ["write_mean_field_csv", "mean_field_csv"]
 
@@ -15,7 +15,7 @@ def mean_field_csv(result) -> str:
 
     Parameters
     ----------
-    result : crn.ode.MeanFieldResult
+    result : crn.solvers.ode.MeanFieldResult
 
     Returns
     -------
@@ -37,7 +37,7 @@ def write_mean_field_csv(path, result) -> None:
     ----------
     path : str or Path
         The CSV file to create or replace.
-    result : crn.ode.MeanFieldResult
+    result : crn.solvers.ode.MeanFieldResult
 
     Raises
     ------

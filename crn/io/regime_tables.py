@@ -16,7 +16,7 @@ def table_csv(cells) -> str:
 
     Parameters
     ----------
-    cells : iterable of crn.regimes.RegimeCell
+    cells : iterable of crn.analyses.regimes.RegimeCell
 
     Returns
     -------

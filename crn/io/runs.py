@@ -7,7 +7,7 @@ import io
 
 import numpy as np
 
-from .atomic import write_atomic
+from crn.io.atomic import write_atomic
 
 __all__ = ["runs_csv", "write_runs_csv", "PARTIAL_MARK"]
 
@@ -29,7 +29,7 @@ def runs_csv(ensemble, note: str | None = None) -> str:
 
     Parameters
     ----------
-    ensemble : crn.simulate.Ensemble
+    ensemble : crn.solvers.simulate.Ensemble
     note : str, optional
         Why the ensemble is incomplete (``"interrupted"``).
 
@@ -66,7 +66,7 @@ def write_runs_csv(ensemble, path, note: str | None = None) -> None:
 
     Parameters
     ----------
-    ensemble : crn.simulate.Ensemble
+    ensemble : crn.solvers.simulate.Ensemble
     note : str, optional
         Why the ensemble is incomplete, for the ``# partial`` line.
     path : str or Path

@@ -28,8 +28,8 @@ import math
 import re
 import xml.etree.ElementTree as ET
 
-from ..errors import ModelError
-from ..network import Network, Reaction
+from crn.core.errors import ModelError
+from crn.core.network import Network, Reaction
 
 __all__ = ["network_to_sbml", "network_from_sbml", "sbml_consistency", "NAMESPACE"]
 

@@ -16,9 +16,9 @@ import os
 import warnings
 from pathlib import Path
 
-from ..errors import CRNError
-from .atomic import write_atomic
-from .jsonable import to_jsonable
+from crn.core.errors import CRNError
+from crn.io.atomic import write_atomic
+from crn.io.jsonable import to_jsonable
 
 __all__ = ["SweepStore"]
 

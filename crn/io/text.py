@@ -2,7 +2,7 @@
 
 from __future__ import annotations
 
-from ..network import Network
+from crn.core.network import Network
 
 __all__ = ["network_to_text", "format_number"]
 

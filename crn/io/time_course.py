@@ -6,7 +6,7 @@ import csv
 import io
 import math
 
-from .atomic import write_atomic
+from crn.io.atomic import write_atomic
 
 __all__ = ["time_course_csv", "write_time_course_csv", "COLUMNS"]
 
@@ -26,7 +26,7 @@ def time_course_csv(course) -> str:
 
     Parameters
     ----------
-    course : crn.time_course.TimeCourse
+    course : crn.solvers.time_course.TimeCourse
 
     Returns
     -------
@@ -52,7 +52,7 @@ def write_time_course_csv(path, course) -> None:
     Parameters
     ----------
     path : str or Path
-    course : crn.time_course.TimeCourse
+    course : crn.solvers.time_course.TimeCourse
 
     Raises
     ------

@@ -12,7 +12,7 @@ def ensemble_fractions(ensemble) -> np.ndarray:
 
     Parameters
     ----------
-    ensemble : crn.simulate.Ensemble
+    ensemble : crn.solvers.simulate.Ensemble
 
     Returns
     -------
@@ -30,9 +30,9 @@ def plot_compare(ode, ensemble, *, ax=None, title: str | None = None, disagreeme
 
     Parameters
     ----------
-    ode : crn.ode.MeanFieldResult
+    ode : crn.solvers.ode.MeanFieldResult
         Solved on (about) the ensemble's time window.
-    ensemble : crn.simulate.Ensemble
+    ensemble : crn.solvers.simulate.Ensemble
     ax : matplotlib.axes.Axes, optional
         Axes to draw on; a new figure when None.
     title : str, optional
@@ -47,7 +47,7 @@ def plot_compare(ode, ensemble, *, ax=None, title: str | None = None, disagreeme
     """
     import matplotlib.pyplot as plt
 
-    from .time_axis import label_time_axis
+    from crn.plots.time_axis import label_time_axis
 
     if ax is None:
         _, ax = plt.subplots(figsize=(9, 5), layout="constrained")

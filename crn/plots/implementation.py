@@ -9,8 +9,8 @@ __all__ = ["plot_implementation"]
 
 def _signal_shares(impl, values, per_unit: float):
     """Each formal species, free plus held in gates, per formal molecules-per-unit."""
-    from ..implemented import held_matrix
-    from ..ode import molecules_per_unit
+    from crn.analyses.implemented import held_matrix
+    from crn.solvers.ode import molecules_per_unit
 
     scale = per_unit / molecules_per_unit(impl.formal)
     totals = np.asarray(values) @ held_matrix(impl) * scale
@@ -29,11 +29,11 @@ def plot_implementation(impl, formal_result, result, ensemble=None, *, ax=None,
     Parameters
     ----------
     impl : crn.dna.Implementation
-    formal_result : crn.ode.MeanFieldResult
+    formal_result : crn.solvers.ode.MeanFieldResult
         Solve of ``impl.formal``.
-    result : crn.ode.MeanFieldResult
+    result : crn.solvers.ode.MeanFieldResult
         Solve of ``impl.network``.
-    ensemble : crn.simulate.Ensemble, optional
+    ensemble : crn.solvers.simulate.Ensemble, optional
         Runs of ``impl.network``: median (dotted) and 5-95% band per signal.
     ax : matplotlib.axes.Axes, optional
     title : str, optional
@@ -48,7 +48,7 @@ def plot_implementation(impl, formal_result, result, ensemble=None, *, ax=None,
     from matplotlib.lines import Line2D
     from matplotlib.patches import Patch
 
-    from ..ode import molecules_per_unit
+    from crn.solvers.ode import molecules_per_unit
 
     if ax is None:
         _, ax = plt.subplots(figsize=(9, 5), layout="constrained")

@@ -11,7 +11,7 @@ def plot_mean_field(result, *, ax=None, title: str | None = None,
 
     Parameters
     ----------
-    result : crn.ode.MeanFieldResult
+    result : crn.solvers.ode.MeanFieldResult
     ax : matplotlib.axes.Axes, optional
         Axes to draw on; a new figure when None.
     title : str, optional
@@ -25,7 +25,7 @@ def plot_mean_field(result, *, ax=None, title: str | None = None,
     """
     import matplotlib.pyplot as plt
 
-    from .time_axis import label_time_axis
+    from crn.plots.time_axis import label_time_axis
 
     if ax is None:
         _, ax = plt.subplots(figsize=(7, 4.5), layout="constrained")

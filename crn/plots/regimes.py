@@ -4,7 +4,7 @@ from __future__ import annotations
 
 import math
 
-from .style import PALETTE, SEQUENTIAL_MAP
+from crn.plots.style import PALETTE, SEQUENTIAL_MAP
 
 __all__ = ["plot_regime_map", "plot_feasibility"]
 
@@ -26,7 +26,7 @@ def plot_regime_map(regime_map, *, ax=None, title: str | None = None):
 
     Parameters
     ----------
-    regime_map : crn.regimes.RegimeMap
+    regime_map : crn.analyses.regimes.RegimeMap
     ax : matplotlib.axes.Axes, optional
     title : str, optional
 
@@ -108,7 +108,7 @@ def plot_feasibility(rows, *, ax=None, title: str | None = None, chosen=None,
     import matplotlib.pyplot as plt
     import numpy as np
 
-    from ..units import CONCENTRATION_UNITS, VOLUME_UNITS, volume_for
+    from crn.core.units import CONCENTRATION_UNITS, VOLUME_UNITS, volume_for
 
     nano, femto = CONCENTRATION_UNITS["nM"], VOLUME_UNITS["fL"]
     if ax is None:

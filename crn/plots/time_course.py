@@ -13,9 +13,9 @@ def plot_time_course(course, *, ode=None, ax=None, title: str | None = None,
 
     Parameters
     ----------
-    course : crn.time_course.TimeCourse
+    course : crn.solvers.time_course.TimeCourse
         In counts (from an ensemble), or an ODE course alone.
-    ode : crn.time_course.TimeCourse, optional
+    ode : crn.solvers.time_course.TimeCourse, optional
         The mean-field course in counts on the same times, drawn dashed.
     ax : matplotlib.axes.Axes, optional
         Axes to draw on; a new figure when None.

@@ -16,7 +16,7 @@ from typing import Any
 
 import numpy as np
 
-from ..errors import CRNError
+from crn.core.errors import CRNError
 
 __all__ = ["ReportSettings", "ReportData", "collect_report", "SAVED_NAMES"]
 
@@ -107,7 +107,7 @@ def collect_report(model, *, model_text: str, model_file: str, sets=(), networks
 
     Parameters
     ----------
-    model : crn.model.Model
+    model : crn.core.model.Model
         The loaded model (with ``--set`` overrides applied).
     model_text : str
         The model file as written (shown verbatim and hashed).
@@ -121,7 +121,7 @@ def collect_report(model, *, model_text: str, model_file: str, sets=(), networks
     settings : ReportSettings, optional
     saved : dict, optional
         Results already at hand, used instead of recomputing: ``"regimes"`` (a
-        :class:`~crn.regimes.RegimeMap` or the ``crn regimes --json`` object) and
+        :class:`~crn.analyses.regimes.RegimeMap` or the ``crn regimes --json`` object) and
         ``"copies"`` (the ``crn copies --json`` object).
     implementation : crn.dna.Implementation, optional
         The DNA implementation of the model's network, shown beside the formal
@@ -133,8 +133,8 @@ def collect_report(model, *, model_text: str, model_file: str, sets=(), networks
     -------
     ReportData
     """
-    from ..ode import solve_mean_field
-    from ..simulate import default_horizon, simulate
+    from crn.solvers.ode import solve_mean_field
+    from crn.solvers.simulate import default_horizon, simulate
 
     settings = settings or ReportSettings()
     saved = saved or {}
@@ -148,7 +148,7 @@ def collect_report(model, *, model_text: str, model_file: str, sets=(), networks
                       settings=settings, sets=tuple(sets), seed_entropy=int(root.entropy))
     base = ["crn", "{cmd}", model_file, *[f"--set {s}" for s in sets]]
     if implementation is not None:
-        from ..dna.budget import decision_fuel, inventory
+        from crn.dna.budget import decision_fuel, inventory
 
         step("DNA implementation")
         data.implementation = implementation
@@ -185,7 +185,7 @@ def collect_report(model, *, model_text: str, model_file: str, sets=(), networks
         data.regimes, data.regimes_source = _as_regime_map(saved["regimes"]), "saved"
     elif networks is not None and settings.regime_n and settings.regime_gap_fractions \
             and net.majority is not None:
-        from ..regimes import regime_map
+        from crn.analyses.regimes import regime_map
 
         step("regime map")
         data.regimes = regime_map(networks, list(settings.regime_n),
@@ -228,14 +228,14 @@ def _window(ode_time, until):
 
 
 def _disagreement(labels, ode_label):
-    from ..stats import wilson_interval
+    from crn.core.stats import wilson_interval
 
     differ = sum(1 for label in labels if label is None or label != ode_label)
     return wilson_interval(differ, len(labels))
 
 
 def _fixed_points(net, data):
-    from ..fixed_points import find_fixed_points
+    from crn.solvers.fixed_points import find_fixed_points
 
     try:
         return find_fixed_points(net)
@@ -245,7 +245,7 @@ def _fixed_points(net, data):
 
 
 def _exact(net):
-    from ..exact import exact_outcomes
+    from crn.solvers.exact import exact_outcomes
 
     if net.majority is None:
         return None, "the model asks no majority question"
@@ -261,8 +261,8 @@ def _exact(net):
 
 
 def _copies(networks, settings, seed) -> dict:
-    from ..copies import p_wrong_summary, physical_outputs, smallest_n
-    from ..units import to_parallel_time
+    from crn.analyses.copies import p_wrong_summary, physical_outputs, smallest_n
+    from crn.core.units import to_parallel_time
 
     deadline = None
     if settings.deadline_seconds is not None:
@@ -285,9 +285,11 @@ def _copies(networks, settings, seed) -> dict:
 
 
 def _as_regime_map(obj):
-    """A :class:`~crn.regimes.RegimeMap` from itself or from ``regimes.json`` (``crn regimes
-    --out``)."""
-    from ..regimes import Boundary, RegimeCell, RegimeMap
+    """A :class:`~crn.analyses.regimes.RegimeMap` from itself or from ``regimes.json``.
+
+    ``regimes.json`` is what ``crn regimes --out`` saves.
+    """
+    from crn.analyses.regimes import Boundary, RegimeCell, RegimeMap
 
     if isinstance(obj, RegimeMap):
         return obj

@@ -45,10 +45,10 @@ def report_figures(data) -> dict[str, Figure]:
     import matplotlib
 
     matplotlib.use("Agg")
-    from ..plots.compare import plot_compare
-    from ..plots.ode import plot_mean_field
-    from ..plots.regimes import plot_regime_map
-    from ..plots.style import house_style
+    from crn.plots.compare import plot_compare
+    from crn.plots.ode import plot_mean_field
+    from crn.plots.regimes import plot_regime_map
+    from crn.plots.style import house_style
 
     name = data.model.name
     out = {}

@@ -7,7 +7,7 @@ import importlib.metadata
 import math
 import platform
 
-from .figures import report_figures
+from crn.report.figures import report_figures
 
 __all__ = ["render_report", "SECTIONS", "CAUTION"]
 
@@ -79,8 +79,8 @@ def _implementation_view(data):
     impl = data.implementation
     if impl is None:
         return None
-    from ..io.implementation import implementation_to_text
-    from ..units import format_concentration
+    from crn.core.units import format_concentration
+    from crn.io.implementation import implementation_to_text
 
     roles = {}
     for species, role in impl.roles.items():
@@ -96,7 +96,7 @@ def _implementation_view(data):
 
 
 def _outcome_rows(ensemble, labels):
-    from ..stats import wilson_interval
+    from crn.core.stats import wilson_interval
 
     counts = ensemble.outcomes()
     rows = []
@@ -118,7 +118,7 @@ def _regime_rows(rmap):
 def _copies_view(copies):
     if copies is None:
         return None
-    from ..units import format_concentration, format_time, format_volume
+    from crn.core.units import format_concentration, format_time, format_volume
 
     n = copies.get("n") or {}
     conc, vol, sec = (copies.get(k) for k in ("concentration_molar", "volume_liters",
@@ -165,7 +165,7 @@ def render_report(data, *, command_line: str = "", created: str | None = None) -
     """
     import jinja2
 
-    from ..io.text import network_to_text
+    from crn.io.text import network_to_text
 
     env = jinja2.Environment(loader=jinja2.PackageLoader("crn.report", "templates"),
                              autoescape=jinja2.select_autoescape(["html", "j2"]),

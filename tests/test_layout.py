@@ -1,0 +1,44 @@
+"""The layer subpackages: every exported name resolves, and 0.1's flat module names still import."""
+
+import importlib
+import warnings
+
+import pytest
+
+import crn
+from crn._moved import MOVED
+
+LAYERS = ["crn", "crn.core", "crn.solvers", "crn.analyses", "crn.runtime"]
+
+
+@pytest.mark.parametrize("package", LAYERS)
+def test_every_exported_name_resolves_to_its_defining_module(package):
+    module = importlib.import_module(package)
+    for name in module.__all__:
+        value = getattr(module, name)
+        home = getattr(value, "__module__", None)
+        if home is not None and callable(value):
+            assert home.startswith("crn."), (package, name, home)
+
+
+def test_a_layer_does_not_export_a_name_that_shadows_one_of_its_modules():
+    for package in LAYERS[1:]:
+        module = importlib.import_module(package)
+        for name in module.__all__:
+            assert importlib.util.find_spec(f"{package}.{name}") is None, (package, name)
+
+
+@pytest.mark.parametrize("old", sorted(MOVED))
+def test_old_flat_module_names_import_the_moved_module_with_a_warning(old):
+    with warnings.catch_warnings(record=True) as caught:
+        warnings.simplefilter("always")
+        moved = importlib.import_module(f"crn.{old}")
+    assert moved is importlib.import_module(f"crn.{MOVED[old]}.{old}")
+    assert any(issubclass(w.category, FutureWarning) and f"crn.{old}" in str(w.message)
+               for w in caught)
+
+
+def test_main_entry_points_are_exported_from_crn():
+    for name in ["load_model", "protocol_to_network", "solve_mean_field", "simulate",
+                 "exact_outcomes", "regime_map", "smallest_n", "verify", "implement"]:
+        assert callable(getattr(crn, name))
