@@ -40,9 +40,17 @@ __all__ = [
     "transient_outcomes",
 ]
 
-#: Largest number of transient configurations solved by sparse LU factorisation
-#: under ``method="auto"``; larger systems use ILU-preconditioned Krylov solvers.
+#: Largest number of transient configurations solved by SuperLU under
+#: ``method="auto"`` when nested dissection does not apply; larger systems use
+#: ILU-preconditioned Krylov solvers.
 DIRECT_LIMIT = 2_000_000
+#: Smallest system for which ``method="auto"`` prefers nested dissection over SuperLU.
+DISSECTION_MIN = 20_000
+#: ``method="auto"`` falls back to SuperLU when the dissection's factors would hold
+#: more than this many entries per row (lattices of many dimensions) ...
+_DISSECTION_ENTRIES_PER_ROW = 400
+#: ... or a dense front of more rows than this (its square must fit in memory).
+_DISSECTION_FRONT_MAX = 16_000
 _ITERATIVE_RTOL = 1e-10  # on the preconditioned residual of GMRES
 _RESIDUAL_WARNING = 1e-8  # true relative residual above which a solve is flagged
 
@@ -71,7 +79,9 @@ class ExactResult:
     absorbing : int
         Configurations of stable consensus.
     method : str
-        ``"trivial"``, ``"direct"`` (sparse LU) or ``"iterative"``.
+        ``"trivial"``, ``"dissection"`` (multifrontal LU in nested-dissection
+        order, :mod:`crn.solvers.multifrontal`), ``"direct"`` (SuperLU) or
+        ``"iterative"``.
     residual : float
         Largest relative residual of the linear solves.
     status : int
@@ -177,6 +187,9 @@ def _limit_check(net: Network, limit: int) -> int:
     return estimate
 
 
+_METHODS = ("auto", "dissection", "direct", "iterative")
+
+
 def exact_outcomes(net: Network, *, max_states: int | None = None, method: str = "auto",
                    progress=None, absorb: str = "stable") -> ExactResult:
     """Exact probability of each stable consensus and moments of the time to reach it.
@@ -198,9 +211,13 @@ def exact_outcomes(net: Network, *, max_states: int | None = None, method: str =
         Refuse larger state spaces (default :data:`~crn.solvers.configurations.DEFAULT_MAX_STATES`).
         The estimate of :func:`~crn.solvers.configurations.estimate_configurations`
         is checked before anything is enumerated.
-    method : {"auto", "direct", "iterative"}
-        Sparse LU (SuperLU) or ILU-preconditioned GMRES; ``"auto"``
-        factorises up to :data:`DIRECT_LIMIT` transient configurations.
+    method : {"auto", "dissection", "direct", "iterative"}
+        Multifrontal LU in a nested-dissection order of the configuration
+        lattice, sparse LU (SuperLU with minimum-degree ordering) or
+        ILU-preconditioned GMRES. ``"auto"`` uses nested dissection from
+        :data:`DISSECTION_MIN` transient configurations whenever its factors
+        stay small (lattices of few dimensions: every protocol of a handful of
+        states), else SuperLU up to :data:`DIRECT_LIMIT` and GMRES beyond.
     progress : callable, optional
         ``progress(done, total)`` during the enumeration.
     absorb : {"stable", "first"}
@@ -226,8 +243,9 @@ def exact_outcomes(net: Network, *, max_states: int | None = None, method: str =
     Kemeny, Snell, "Finite Markov Chains", 1960 (absorption probabilities and
     times of absorbing chains); Norris, "Markov Chains", 1997, sec. 3.3.
     """
-    if method not in ("auto", "direct", "iterative"):
-        raise ValueError(f"`method` must be 'auto', 'direct' or 'iterative', got {method!r}")
+    if method not in _METHODS:
+        raise ValueError(f"`method` must be one of {', '.join(map(repr, _METHODS))}, "
+                         f"got {method!r}")
     if absorb not in ("stable", "first"):
         raise ValueError(f"`absorb` must be 'stable' or 'first', got {absorb!r}")
     limit = DEFAULT_MAX_STATES if max_states is None else int(max_states)
@@ -262,33 +280,15 @@ def solve_absorption(net: Network, space: StateSpace, *, method: str = "auto",
     transient = np.flatnonzero(reaching & ~absorbing)  # contains 0 (the initial configuration)
     position = np.full(space.n_states, -1, dtype=np.int64)
     position[transient] = np.arange(transient.size)
-    q = space.generator()
-    system = (-q[transient][:, transient]).tocsc()
-    inflow = q[transient]  # rates from transient configurations to every configuration
-    rhs_columns = []
-    for k in range(len(labels)):
-        rhs_columns.append(np.asarray(inflow @ (stable == k).astype(float)).ravel())
-    dead = ~reaching
-    rhs_columns.append(np.asarray(inflow @ dead.astype(float)).ravel())
-    rhs = np.column_stack(rhs_columns)
-    chosen = method
-    if chosen == "auto":
-        chosen = "direct" if transient.size <= DIRECT_LIMIT else "iterative"
-    solve = None
-    if chosen == "direct":
-        try:
-            # minimum degree on A^T + A: generators of protocols are nearly structurally
-            # symmetric, and this ordering gives about half the fill of COLAMD on them
-            factor = spla.splu(system, permc_spec="MMD_AT_PLUS_A")
-            solve = factor.solve
-        except (MemoryError, RuntimeError) as err:
-            warnings.warn(f"sparse LU failed ({err}); falling back to an iterative solver",
-                          stacklevel=2)
-            chosen = "iterative"
+    del reverse
+    target = np.where(reaching, stable, len(labels))  # rhs column of each absorbing configuration
+    system, rhs = _absorption_system(space, transient, position, target, len(labels) + 1)
+    chosen, solve = _factorise(net, space, system, transient, method)
     status, messages = 0, []
-    if chosen == "iterative":
+    if solve is None:
         solve, info = _iterative_solver(system)
         messages.extend(info)
+    dead = ~reaching
     h_all = solve(rhs)
     h_all = h_all.reshape(transient.size, -1)
     h = h_all[:, : len(labels)].sum(axis=1)
@@ -314,6 +314,69 @@ def solve_absorption(net: Network, space: StateSpace, *, method: str = "auto",
                        message="; ".join(messages), **common)
 
 
+def _absorption_system(space: StateSpace, transient, position, target, n_columns):
+    """``-Q`` on the transient configurations (CSR) and the rates into each absorbing class.
+
+    Column k of the right-hand side is the total rate from each transient
+    configuration into configurations whose ``target`` is k.
+    """
+    m = transient.size
+    from_t = position[space.src]
+    to_t = position[space.dst]
+    leaving = from_t >= 0
+    inside = leaving & (to_t >= 0)
+    out = np.bincount(space.src, weights=space.rates, minlength=space.n_states) + space.outflow
+    rows = np.concatenate([from_t[inside], np.arange(m)])
+    cols = np.concatenate([to_t[inside], np.arange(m)])
+    vals = np.concatenate([-space.rates[inside], out[transient]])
+    del inside, to_t
+    system = sp.csr_matrix((vals, (rows, cols)), shape=(m, m))
+    del rows, cols, vals
+    exits = np.flatnonzero(leaving & (position[space.dst] < 0))
+    rhs = np.zeros((m, n_columns))
+    for k in range(n_columns):
+        chosen = exits[target[space.dst[exits]] == k]
+        rhs[:, k] = np.bincount(from_t[chosen], weights=space.rates[chosen], minlength=m)
+    return system, rhs
+
+
+def _factorise(net: Network, space: StateSpace, system, transient: np.ndarray, method: str):
+    """Pick the solver for ``method`` and factorise; returns (method used, solve or None)."""
+    chosen = method
+    if chosen in ("auto", "dissection"):
+        from crn.solvers.multifrontal import factorize, plan
+
+        # every transition moves a configuration by one live reaction's net change
+        live = np.abs(net.stoichiometry.toarray()[:, net.rates > 0])
+        widths = live.max(axis=1, initial=0)
+        layout = None
+        if method == "dissection" or transient.size >= DISSECTION_MIN:
+            layout = plan(system, space.states[transient], np.round(widths).astype(np.int64))
+        fits = layout is not None and (
+            layout.entries <= _DISSECTION_ENTRIES_PER_ROW * transient.size
+            and layout.largest_front <= _DISSECTION_FRONT_MAX)
+        if method == "dissection" or fits:
+            try:
+                return "dissection", factorize(system, layout).solve
+            except MemoryError as err:
+                if method == "dissection":
+                    raise
+                warnings.warn(f"nested dissection ran out of memory ({err}); falling back to "
+                              "SuperLU", stacklevel=3)
+        del layout
+        chosen = "direct" if transient.size <= DIRECT_LIMIT else "iterative"
+    if chosen == "direct":
+        try:
+            # minimum degree on A^T + A: generators of protocols are nearly structurally
+            # symmetric, and this ordering gives about half the fill of COLAMD on them
+            factor = spla.splu(system.tocsc(), permc_spec="MMD_AT_PLUS_A")
+            return chosen, factor.solve
+        except (MemoryError, RuntimeError) as err:
+            warnings.warn(f"sparse LU failed ({err}); falling back to an iterative solver",
+                          stacklevel=3)
+    return "iterative", None
+
+
 def _relative_residual(system, x, b) -> float:
     r = system @ x - b
     scale = np.abs(b).max() + 1e-300
@@ -323,7 +386,7 @@ def _relative_residual(system, x, b) -> float:
 def _iterative_solver(system):
     info: list[str] = []
     try:
-        ilu = spla.spilu(system, permc_spec="MMD_AT_PLUS_A", drop_tol=1e-6, fill_factor=10)
+        ilu = spla.spilu(system.tocsc(), permc_spec="MMD_AT_PLUS_A", drop_tol=1e-6, fill_factor=10)
         preconditioner = spla.LinearOperator(system.shape, ilu.solve)
     except (MemoryError, RuntimeError) as err:
         info.append(f"no ILU preconditioner ({err})")

@@ -59,6 +59,10 @@ class DissectionPlan:
         ``bnd[bptr[t]:bptr[t + 1]]``.
     children_ptr, children : ndarray of int64
         Children of each front, in postorder.
+    fbase, ubase : ndarray of int64, shape (n_fronts,)
+        Offset of each front's factors in the factor array, and of its update
+        matrix on the stack of updates (children's updates are freed when their
+        parent is assembled, so a front's update overwrites its first child's).
     entries : int
         Entries of the L and U factors.
     flops : float
@@ -77,6 +81,8 @@ class DissectionPlan:
     bnd: np.ndarray
     children_ptr: np.ndarray
     children: np.ndarray
+    fbase: np.ndarray
+    ubase: np.ndarray
     entries: int
     flops: float
     stack: int
@@ -246,6 +252,25 @@ def _boundaries(sep, hi, children_ptr, children, indptr, indices, n):
     return bptr, bnd[:fill].copy()
 
 
+@numba.njit(cache=True)
+def _layout(sep, hi, bptr, children_ptr, children):
+    n_fronts = sep.shape[0]
+    fbase = np.zeros(n_fronts, dtype=np.int64)
+    ubase = np.zeros(n_fronts, dtype=np.int64)
+    used, top, peak = 0, 0, 0
+    for t in range(n_fronts):
+        s = hi[t] - sep[t]
+        b = bptr[t + 1] - bptr[t]
+        fbase[t] = used
+        used += s * s + 2 * s * b
+        if children_ptr[t + 1] > children_ptr[t]:
+            top = ubase[children[children_ptr[t]]]
+        ubase[t] = top
+        top += b * b
+        peak = max(peak, top)
+    return fbase, ubase, peak
+
+
 def plan(matrix: sp.spmatrix, coords: np.ndarray, widths: np.ndarray) -> DissectionPlan:
     """Nested-dissection order and front sizes of ``matrix`` on lattice ``coords``.
 
@@ -273,31 +298,29 @@ def plan(matrix: sp.spmatrix, coords: np.ndarray, widths: np.ndarray) -> Dissect
     lo, sep, hi = lo[post], sep[post], hi[post]
     parent = np.where(parent[post] >= 0, rank[np.maximum(parent[post], 0)], -1)
     children = np.flatnonzero(parent >= 0)
-    children = children[np.argsort(parent[children], kind="stable")]
+    children = children[np.argsort(parent[children], kind="stable")].astype(np.int64)
     children_ptr = np.zeros(post.size + 1, dtype=np.int64)
     np.cumsum(np.bincount(parent[children], minlength=post.size), out=children_ptr[1:])
     position = np.empty(n, dtype=np.int64)
     position[order] = np.arange(n)
-    pattern = sp.csr_matrix(matrix, copy=True)
-    pattern.data = np.ones_like(pattern.data)
-    pattern = (pattern + pattern.T).tocoo()
-    graph = sp.csr_matrix((np.ones(pattern.nnz, dtype=np.int8),
-                           (position[pattern.row], position[pattern.col])), shape=(n, n))
-    bptr, bnd = _boundaries(sep, hi, children_ptr, children.astype(np.int64),
-                            graph.indptr.astype(np.int64), graph.indices.astype(np.int64), n)
+    matrix = sp.csr_matrix(matrix)
+    position = np.empty(n, dtype=matrix.indices.dtype)
+    position[order] = np.arange(n)
+    ptr, idx, _ = _permute_rows(matrix.indptr, matrix.indices, np.ones(0), order, position)
+    del position
+    permuted = sp.csr_matrix((np.ones(idx.size, dtype=np.int8), idx, ptr), shape=(n, n))
+    graph = (permuted + permuted.T).tocsr()
+    del permuted, ptr, idx
+    bptr, bnd = _boundaries(sep, hi, children_ptr, children, graph.indptr, graph.indices, n)
+    del graph
     s = (hi - sep).astype(np.float64)
     b = np.diff(bptr).astype(np.float64)
     entries = int((s * s + 2 * s * b).sum())
     flops = float((2.0 / 3.0 * s ** 3 + 2 * s * s * b + 2 * s * b * b).sum())
-    stack, peak = 0, 0
-    for t in range(post.size):
-        for kc in range(children_ptr[t], children_ptr[t + 1]):
-            stack -= int(b[children[kc]]) ** 2
-        stack += int(b[t]) ** 2
-        peak = max(peak, stack + int(b[t]) ** 2)
+    fbase, ubase, peak = _layout(sep, hi, bptr, children_ptr, children)
     return DissectionPlan(order=order, lo=lo, sep=sep, hi=hi, bptr=bptr, bnd=bnd,
-                          children_ptr=children_ptr, children=children.astype(np.int64),
-                          entries=entries, flops=flops, stack=peak,
+                          children_ptr=children_ptr, children=children,
+                          fbase=fbase, ubase=ubase, entries=entries, flops=flops, stack=peak,
                           largest_front=int((s + b).max(initial=0)))
 
 
@@ -395,69 +418,54 @@ def _factor_small(t0, t1, buffer, loc, sep, hi, bptr, bnd, children_ptr, childre
                sep, hi, bptr, fbase, values, pivots, ubase, ustack)
 
 
+@numba.njit(cache=True, fastmath=True)
+def _dot(values, start, vector, count):
+    total = 0.0
+    for j in range(count):
+        total += values[start + j] * vector[j]
+    return total
+
+
 @numba.njit(cache=True)
-def _solve(x, order_in, sep, hi, bptr, bnd, fbase, values, pivots):
-    """Overwrite x (n, k), in elimination order, with the solution of the factored system."""
+def _solve(x, sep, hi, bptr, bnd, fbase, values, pivots):
+    """Overwrite x (k, n), in elimination order, with the solution of the factored system."""
     n_fronts = sep.shape[0]
-    k = x.shape[1]
-    width = 0
+    k = x.shape[0]
+    width, border = 1, 1
     for t in range(n_fronts):
         width = max(width, hi[t] - sep[t])
-    tmp = np.empty((width, k))
-    for t in range(n_fronts):
-        s = hi[t] - sep[t]
-        nb = bptr[t + 1] - bptr[t]
-        base = fbase[t]
-        for i in range(s):
-            for c in range(k):
-                tmp[i, c] = x[sep[t] + pivots[sep[t] + i], c]
-        for i in range(s):
-            row = base + i * s
-            for j in range(i):
-                lij = values[row + j]
-                if lij != 0.0:
-                    for c in range(k):
-                        tmp[i, c] -= lij * tmp[j, c]
-        for i in range(s):
-            for c in range(k):
-                x[sep[t] + i, c] = tmp[i, c]
-        lbase = base + s * s + s * nb
-        for r in range(nb):
-            q = bnd[bptr[t] + r]
-            row = lbase + r * s
-            for j in range(s):
-                lrj = values[row + j]
-                if lrj != 0.0:
-                    for c in range(k):
-                        x[q, c] -= lrj * tmp[j, c]
-    for t in range(n_fronts - 1, -1, -1):
-        s = hi[t] - sep[t]
-        nb = bptr[t + 1] - bptr[t]
-        base = fbase[t]
-        ubase = base + s * s
-        for i in range(s):
-            for c in range(k):
-                tmp[i, c] = x[sep[t] + i, c]
-            row = ubase + i * nb
+        border = max(border, bptr[t + 1] - bptr[t])
+    tmp = np.empty(width)
+    gathered = np.empty(border)
+    for c in range(k):
+        xc = x[c]
+        for t in range(n_fronts):
+            s = hi[t] - sep[t]
+            nb = bptr[t + 1] - bptr[t]
+            base = fbase[t]
+            for i in range(s):
+                tmp[i] = xc[sep[t] + pivots[sep[t] + i]]
+            for i in range(1, s):
+                tmp[i] -= _dot(values, base + i * s, tmp, i)
+            for i in range(s):
+                xc[sep[t] + i] = tmp[i]
+            lbase = base + s * s + s * nb
             for r in range(nb):
-                uir = values[row + r]
-                if uir != 0.0:
-                    q = bnd[bptr[t] + r]
-                    for c in range(k):
-                        tmp[i, c] -= uir * x[q, c]
-        for i in range(s - 1, -1, -1):
-            row = base + i * s
-            for j in range(i + 1, s):
-                uij = values[row + j]
-                if uij != 0.0:
-                    for c in range(k):
-                        tmp[i, c] -= uij * tmp[j, c]
-            inv = 1.0 / values[row + i]
-            for c in range(k):
-                tmp[i, c] *= inv
-        for i in range(s):
-            for c in range(k):
-                x[sep[t] + i, c] = tmp[i, c]
+                xc[bnd[bptr[t] + r]] -= _dot(values, lbase + r * s, tmp, s)
+        for t in range(n_fronts - 1, -1, -1):
+            s = hi[t] - sep[t]
+            nb = bptr[t + 1] - bptr[t]
+            base = fbase[t]
+            for r in range(nb):
+                gathered[r] = xc[bnd[bptr[t] + r]]
+            ubase = base + s * s
+            for i in range(s - 1, -1, -1):
+                row = base + i * s
+                value = xc[sep[t] + i] - _dot(values, ubase + i * nb, gathered, nb)
+                value -= _dot(values, row + i + 1, tmp[i + 1:], s - i - 1)
+                tmp[i] = value / values[row + i]
+            for i in range(s):
+                xc[sep[t] + i] = tmp[i]
 
 
 class LatticeFactor:
@@ -474,33 +482,33 @@ class LatticeFactor:
         """Solve ``A x = rhs`` for rhs of shape (n,) or (n, k)."""
         rhs = np.asarray(rhs, dtype=np.float64)
         vector = rhs.ndim == 1
-        work = np.ascontiguousarray(rhs.reshape(rhs.shape[0], -1)[self.plan.order])
         p = self.plan
-        _solve(work, p.order, p.sep, p.hi, p.bptr, p.bnd, self._fbase, self._values,
-               self._pivots)
-        out = np.empty_like(work)
-        out[p.order] = work
+        work = np.ascontiguousarray(rhs.reshape(rhs.shape[0], -1)[p.order].T)
+        _solve(work, p.sep, p.hi, p.bptr, p.bnd, self._fbase, self._values, self._pivots)
+        out = np.empty((rhs.shape[0], work.shape[0]))
+        out[p.order] = work.T
         return out.ravel() if vector else out
 
 
-def _stack_layout(layout: DissectionPlan):
-    """Offsets of each front's factors and of its update matrix on the stack of updates."""
-    s = layout.hi - layout.sep
-    b = np.diff(layout.bptr)
-    sizes = s * s + 2 * s * b
-    fbase = np.zeros(s.size, dtype=np.int64)
-    np.cumsum(sizes[:-1], out=fbase[1:])
-    ubase = np.zeros(s.size, dtype=np.int64)
-    top = 0
-    peak = 0
-    for t in range(s.size):
-        first = layout.children_ptr[t]
-        if layout.children_ptr[t + 1] > first:
-            top = ubase[layout.children[first]]
-        ubase[t] = top
-        top += int(b[t]) ** 2
-        peak = max(peak, top)
-    return fbase, ubase, peak
+@numba.njit(cache=True)
+def _permute_rows(indptr, indices, data, order, position):
+    """CSR of P A P^T: row p is row order[p], columns renamed by position (unsorted)."""
+    n = order.shape[0]
+    ptr = np.zeros(n + 1, dtype=indptr.dtype)
+    for p in range(n):
+        i = order[p]
+        ptr[p + 1] = ptr[p] + indptr[i + 1] - indptr[i]
+    idx = np.empty(indices.shape[0], dtype=indices.dtype)
+    val = np.empty(data.shape[0] and indices.shape[0], dtype=data.dtype)  # none for a pattern
+    for p in range(n):
+        i = order[p]
+        k = ptr[p]
+        for j in range(indptr[i], indptr[i + 1]):
+            idx[k] = position[indices[j]]
+            if val.shape[0]:
+                val[k] = data[j]
+            k += 1
+    return ptr, idx, val
 
 
 def factorize(matrix: sp.spmatrix, layout: DissectionPlan) -> LatticeFactor:
@@ -529,16 +537,15 @@ def factorize(matrix: sp.spmatrix, layout: DissectionPlan) -> LatticeFactor:
     from scipy.linalg import lu_factor, solve_triangular
 
     n = matrix.shape[0]
-    position = np.empty(n, dtype=np.int64)
+    matrix = sp.csr_matrix(matrix)
+    position = np.empty(n, dtype=matrix.indices.dtype)
     position[layout.order] = np.arange(n)
-    coo = sp.coo_matrix(matrix)
-    permuted = sp.csr_matrix((coo.data, (position[coo.row], position[coo.col])), shape=(n, n))
-    transposed = permuted.T.tocsr()
-    args = (permuted.indptr.astype(np.int64), permuted.indices.astype(np.int64),
-            permuted.data.astype(np.float64), transposed.indptr.astype(np.int64),
-            transposed.indices.astype(np.int64), transposed.data.astype(np.float64))
-    del coo
-    fbase, ubase, peak = _stack_layout(layout)
+    ptr, idx, val = _permute_rows(matrix.indptr, matrix.indices, matrix.data, layout.order,
+                                  position)
+    transposed = sp.csr_matrix((val, idx, ptr), shape=(n, n)).T.tocsr()
+    args = (ptr, idx, val, transposed.indptr, transposed.indices, transposed.data)
+    del position, transposed
+    fbase, ubase, peak = layout.fbase, layout.ubase, layout.stack
     values = np.empty(layout.entries, dtype=np.float64)
     pivots = np.empty(n, dtype=np.int64)
     ustack = np.empty(max(peak, 1), dtype=np.float64)
