@@ -1,11 +1,14 @@
 """Exact small-population analysis: state spaces, absorption probabilities, times, projections."""
 
+import functools
 import math
 from pathlib import Path
 
 import numpy as np
 import pytest
+import scipy.sparse as sp
 from scipy import stats
+from scipy.sparse.csgraph import breadth_first_order
 from seeds import seed
 
 from crn.core.errors import CRNError
@@ -127,6 +130,87 @@ def test_epidemic_time_is_n_minus_1_harmonic(n):
     assert result.time_std == pytest.approx(math.sqrt(sum(w * w for w in waits)), rel=1e-8)
     assert result.probabilities["I"] == pytest.approx(1.0, abs=1e-12)
     assert result.probabilities["none"] == 0.0
+
+
+@pytest.mark.parametrize("n", [200, pytest.param(1000, marks=pytest.mark.slow)])
+def test_nested_dissection_agrees_with_superlu(n):
+    # the multifrontal solver against SuperLU with minimum degree (the solver of
+    # method="direct"): the same equations, so the same numbers to rounding
+    net = model_net("approximate_majority", n=n, gap=10)
+    superlu = exact_outcomes(net, method="direct")
+    dissection = exact_outcomes(net, method="dissection")
+    assert (superlu.method, dissection.method) == ("direct", "dissection")
+    for label in ("X", "Y"):
+        assert dissection.probabilities[label] == pytest.approx(superlu.probabilities[label],
+                                                                rel=1e-9)
+    assert dissection.expected_time == pytest.approx(superlu.expected_time, rel=1e-9)
+    assert dissection.time_std == pytest.approx(superlu.time_std, rel=1e-9)
+    assert dissection.residual < 1e-8
+
+
+def test_auto_uses_nested_dissection_on_large_lattices():
+    result = exact_outcomes(model_net("approximate_majority", n=250, gap=10))
+    assert result.states > 20_000 and result.method == "dissection"
+
+
+@functools.cache
+def dense_absorption(name, n, gap):
+    """P(stable consensus on each label) and the mean time, by a dense solve.
+
+    An independent route: Kemeny, Snell (1960) first-step equations written out
+    with numpy over the dense generator and solved by LAPACK, with the
+    absorbing set found by scipy's breadth-first search instead of crn's
+    (configurations that cannot reach stable consensus are left out: "none").
+    """
+    net = model_net(name, n=n, gap=gap)
+    space = enumerate_configurations(net)
+    q = space.generator().toarray()
+    labels = list(net.labels)
+    graph = sp.csr_matrix(q > 0)
+    reach = np.zeros((space.n_states, space.n_states), dtype=bool)
+    for i in range(space.n_states):
+        reach[i, breadth_first_order(graph, i, return_predecessors=False)] = True
+    agree = []
+    for x in space.states:
+        said = {net.species_label[s] for s in np.flatnonzero(x)} - {-2}  # -2: takes no part
+        agree.append(said.pop() if len(said) == 1 else -1)
+    agree = np.array(agree)
+    stable = np.array([agree[i] if agree[i] >= 0 and np.all(agree[reach[i]] == agree[i])
+                       else -1 for i in range(space.n_states)])
+    decides = reach[:, stable >= 0].any(axis=1)
+    transient = np.flatnonzero((stable < 0) & decides)
+    a = -q[np.ix_(transient, transient)]
+    rhs = np.column_stack([q[np.ix_(transient, np.flatnonzero(stable == k))].sum(axis=1)
+                           for k in range(len(labels))])
+    h = np.linalg.solve(a, rhs)
+    u = np.linalg.solve(a, h.sum(axis=1))
+    start = int(np.flatnonzero(transient == 0)[0])
+    return dict(zip(labels, h[start], strict=True)), u[start] / h[start].sum()
+
+
+@pytest.mark.parametrize("name, n, gap", [("approximate_majority", 30, 4),
+                                          ("exact_majority", 16, 2),
+                                          ("cancel_spread", 10, 2)])
+@pytest.mark.parametrize("method", ["dissection", "direct", "iterative"])
+def test_every_solver_matches_a_dense_solve(name, n, gap, method):
+    probabilities, mean = dense_absorption(name, n, gap)
+    result = exact_outcomes(model_net(name, n=n, gap=gap), method=method)
+    for label, p in probabilities.items():
+        assert result.probabilities[label] == pytest.approx(p, rel=1e-9, abs=1e-12)
+    assert result.expected_time == pytest.approx(mean, rel=1e-9)
+
+
+@pytest.mark.parametrize("n, gap", [(41, 21), (400, 100)])
+def test_nested_dissection_voter_error_is_the_minority_fraction(n, gap):
+    # Perron, Vasudevan, Vojnovic, INFOCOM 2009 (as above), on the one-dimensional lattice
+    result = exact_outcomes(model_net("voter", n=n, gap=gap), method="dissection")
+    assert result.probabilities["Y"] == pytest.approx(((n - gap) // 2) / n, abs=1e-12)
+
+
+def test_nested_dissection_tie_is_one_half_each():
+    # derived: symmetry under swapping X and Y, on the two-dimensional lattice
+    result = exact_outcomes(model_net("approximate_majority", n=120, gap=0), method="dissection")
+    assert result.probabilities["X"] == pytest.approx(0.5, abs=1e-11)
 
 
 def test_iterative_solver_agrees_with_factorisation():
