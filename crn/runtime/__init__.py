@@ -11,6 +11,8 @@ _HOME = {
     "BATCHED_SECONDS_PER_STEP": "guards",
     "DIRECT_SECONDS_PER_EVENT": "guards",
     "EXACT_SECONDS_PER_TRANSITION": "guards",
+    "EXACT_FLOPS_PER_SECOND": "guards",
+    "exact_seconds": "guards",
     "Estimate": "guards",
     "WORK_LIMIT_SECONDS": "guards",
     "default_max_memory": "guards",

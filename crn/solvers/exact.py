@@ -34,6 +34,7 @@ from crn.solvers.configurations import (
 
 __all__ = [
     "DIRECT_LIMIT",
+    "DISSECTION_MIN",
     "ExactResult",
     "exact_outcomes",
     "stable_consensus",
@@ -289,8 +290,9 @@ def solve_absorption(net: Network, space: StateSpace, *, method: str = "auto",
         solve, info = _iterative_solver(system)
         messages.extend(info)
     dead = ~reaching
-    h_all = solve(rhs)
-    h_all = h_all.reshape(transient.size, -1)
+    used = np.flatnonzero(rhs.any(axis=0))  # no configuration enters a class: nothing to solve
+    h_all = np.zeros_like(rhs)
+    h_all[:, used] = solve(rhs[:, used]).reshape(transient.size, -1)
     h = h_all[:, : len(labels)].sum(axis=1)
     u = solve(h).ravel()
     w = solve(u).ravel()

@@ -428,44 +428,54 @@ def _dot(values, start, vector, count):
 
 @numba.njit(cache=True)
 def _solve(x, sep, hi, bptr, bnd, fbase, values, pivots):
-    """Overwrite x (k, n), in elimination order, with the solution of the factored system."""
+    """Overwrite x (k, n), in elimination order, with the solution of the factored system.
+
+    One pass over the factors serves all k columns: each factor row is read once
+    from memory and then from cache for every column.
+    """
     n_fronts = sep.shape[0]
     k = x.shape[0]
     width, border = 1, 1
     for t in range(n_fronts):
         width = max(width, hi[t] - sep[t])
         border = max(border, bptr[t + 1] - bptr[t])
-    tmp = np.empty(width)
-    gathered = np.empty(border)
-    for c in range(k):
-        xc = x[c]
-        for t in range(n_fronts):
-            s = hi[t] - sep[t]
-            nb = bptr[t + 1] - bptr[t]
-            base = fbase[t]
+    tmp = np.empty((k, width))
+    gathered = np.empty((k, border))
+    for t in range(n_fronts):
+        s = hi[t] - sep[t]
+        nb = bptr[t + 1] - bptr[t]
+        base = fbase[t]
+        for c in range(k):
             for i in range(s):
-                tmp[i] = xc[sep[t] + pivots[sep[t] + i]]
-            for i in range(1, s):
-                tmp[i] -= _dot(values, base + i * s, tmp, i)
+                tmp[c, i] = x[c, sep[t] + pivots[sep[t] + i]]
+        for i in range(1, s):
+            for c in range(k):
+                tmp[c, i] -= _dot(values, base + i * s, tmp[c], i)
+        for c in range(k):
             for i in range(s):
-                xc[sep[t] + i] = tmp[i]
-            lbase = base + s * s + s * nb
+                x[c, sep[t] + i] = tmp[c, i]
+        lbase = base + s * s + s * nb
+        for r in range(nb):
+            q = bnd[bptr[t] + r]
+            for c in range(k):
+                x[c, q] -= _dot(values, lbase + r * s, tmp[c], s)
+    for t in range(n_fronts - 1, -1, -1):
+        s = hi[t] - sep[t]
+        nb = bptr[t + 1] - bptr[t]
+        base = fbase[t]
+        for c in range(k):
             for r in range(nb):
-                xc[bnd[bptr[t] + r]] -= _dot(values, lbase + r * s, tmp, s)
-        for t in range(n_fronts - 1, -1, -1):
-            s = hi[t] - sep[t]
-            nb = bptr[t + 1] - bptr[t]
-            base = fbase[t]
-            for r in range(nb):
-                gathered[r] = xc[bnd[bptr[t] + r]]
-            ubase = base + s * s
-            for i in range(s - 1, -1, -1):
-                row = base + i * s
-                value = xc[sep[t] + i] - _dot(values, ubase + i * nb, gathered, nb)
-                value -= _dot(values, row + i + 1, tmp[i + 1:], s - i - 1)
-                tmp[i] = value / values[row + i]
+                gathered[c, r] = x[c, bnd[bptr[t] + r]]
+        ubase = base + s * s
+        for i in range(s - 1, -1, -1):
+            row = base + i * s
+            for c in range(k):
+                value = x[c, sep[t] + i] - _dot(values, ubase + i * nb, gathered[c], nb)
+                value -= _dot(values, row + i + 1, tmp[c, i + 1:], s - i - 1)
+                tmp[c, i] = value / values[row + i]
+        for c in range(k):
             for i in range(s):
-                xc[sep[t] + i] = tmp[i]
+                x[c, sep[t] + i] = tmp[c, i]
 
 
 class LatticeFactor:
@@ -488,6 +498,16 @@ class LatticeFactor:
         out = np.empty((rhs.shape[0], work.shape[0]))
         out[p.order] = work.T
         return out.ravel() if vector else out
+
+
+@numba.njit(cache=True)
+def _swaps_to_order(swaps):
+    """LAPACK's row interchanges (row i swapped with swaps[i], in turn) as an order of rows."""
+    order = np.arange(swaps.shape[0])
+    for i in range(swaps.shape[0]):
+        j = swaps[i]
+        order[i], order[j] = order[j], order[i]
+    return order
 
 
 @numba.njit(cache=True)
@@ -554,6 +574,8 @@ def factorize(matrix: sp.spmatrix, layout: DissectionPlan) -> LatticeFactor:
     f = s + np.diff(layout.bptr)
     small = f < _LARGE_FRONT
     buffer = np.empty(int((f[small] ** 2).max(initial=1)), dtype=np.float64)
+    # one buffer for every large front: allocating each anew costs page faults
+    large = np.empty(int((f[~small] ** 2).max(initial=0)), dtype=np.float64)
     structure = (layout.sep, layout.hi, layout.bptr, layout.bnd, layout.children_ptr,
                  layout.children, ubase, ustack)
     t = 0
@@ -565,13 +587,11 @@ def factorize(matrix: sp.spmatrix, layout: DissectionPlan) -> LatticeFactor:
             _factor_small(t, stop, buffer, loc, *structure, fbase, values, pivots, *args)
             t = stop
             continue
-        front = np.empty((f[t], f[t]))
+        front = large[: f[t] * f[t]].reshape(f[t], f[t])
         _assemble(t, front, loc, *structure, *args)
         st = s[t]
         lu, swaps = lu_factor(front[:st, :st], check_finite=False)
-        perm = np.arange(st)
-        for i, j in enumerate(swaps):
-            perm[i], perm[j] = perm[j], perm[i]
+        perm = _swaps_to_order(swaps.astype(np.int64))
         u12 = solve_triangular(lu, front[:st, st:][perm], lower=True, unit_diagonal=True,
                                check_finite=False)
         l21 = solve_triangular(lu, front[st:, :st].T, trans="T", lower=False,
@@ -584,6 +604,6 @@ def factorize(matrix: sp.spmatrix, layout: DissectionPlan) -> LatticeFactor:
         values[base + st * (st + nb): base + st * (st + 2 * nb)] = l21.ravel()
         pivots[layout.sep[t]: layout.hi[t]] = perm
         ustack[ubase[t]: ubase[t] + nb * nb] = update.ravel()
-        del front, lu, u12, l21, update
+        del lu, u12, l21
         t += 1
     return LatticeFactor(layout, fbase, values, pivots)
