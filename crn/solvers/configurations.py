@@ -409,17 +409,22 @@ def _expand(states, count, head, stop, table, parent, parent_reaction, outflow,
     return count, n_edges, status
 
 
-def _grow(array, size, fill=0):
+def _grow(array, size):
+    """``array`` with room for ``size`` rows; the new rows are never read before written.
+
+    ``np.zeros`` maps untouched pages lazily, so room that is never used costs
+    no resident memory (and the result can be returned as a view).
+    """
     if array.shape[0] >= size:
         return array
-    shape = (size,) + array.shape[1:]
-    out = np.full(shape, fill, dtype=array.dtype)
+    out = np.zeros((size,) + array.shape[1:], dtype=array.dtype)
     out[: array.shape[0]] = array
     return out
 
 
 def enumerate_configurations(net: Network, *, max_states: int | None = None,
-                             truncate: bool = False, progress=None) -> StateSpace:
+                             truncate: bool = False, progress=None,
+                             expected: int | None = None) -> StateSpace:
     """Breadth-first enumeration of the configurations reachable from ``net.initial``.
 
     Parameters
@@ -433,6 +438,9 @@ def enumerate_configurations(net: Network, *, max_states: int | None = None,
         projection) instead of raising.
     progress : callable, optional
         Called as ``progress(expanded, found)`` between batches.
+    expected : int, optional
+        Room to reserve up front (e.g. :func:`estimate_configurations`), so the
+        arrays need not grow; more is taken when more are found.
 
     Returns
     -------
@@ -457,11 +465,12 @@ def enumerate_configurations(net: Network, *, max_states: int | None = None,
     rc = np.ascontiguousarray(net.reactant_counts)
     live = int((rates > 0).sum())
 
-    capacity = min(limit, 1 << 12) + 1
+    capacity = min(limit, max(1 << 12, int(expected or 0))) + 1
     states = np.zeros((capacity, n_species), dtype=np.int64)
     states[0] = net.initial
-    parent = np.full(capacity, -1, dtype=np.int64)
-    parent_reaction = np.full(capacity, -1, dtype=np.int64)
+    parent = np.zeros(capacity, dtype=np.int64)
+    parent_reaction = np.zeros(capacity, dtype=np.int64)
+    parent[0] = parent_reaction[0] = -1
     outflow = np.zeros(capacity, dtype=np.float64)
     table = _rehash(states, 1, 1 << 13)
     edge_cap = max(capacity * max(live, 1), 16)
@@ -475,8 +484,8 @@ def enumerate_configurations(net: Network, *, max_states: int | None = None,
         if need > states.shape[0]:
             size = min(max(need, 2 * states.shape[0]), limit + 1)
             states = _grow(states, size)
-            parent = _grow(parent, size, -1)
-            parent_reaction = _grow(parent_reaction, size, -1)
+            parent = _grow(parent, size)
+            parent_reaction = _grow(parent_reaction, size)
             outflow = _grow(outflow, size)
         if 2 * need > table.shape[0]:
             size = 1 << int(math.ceil(math.log2(2 * need)))
@@ -499,14 +508,15 @@ def enumerate_configurations(net: Network, *, max_states: int | None = None,
         head = stop
         if progress is not None:
             progress(head, count)
+    # views, not copies: the unused tails were never touched, so they hold no memory
     return StateSpace(
-        states=states[:count].copy(),
-        src=src[:n_edges].copy(),
-        dst=dst[:n_edges].copy(),
-        rates=edge_rates[:n_edges].copy(),
-        outflow=outflow[:count].copy(),
-        parent=parent[:count].copy(),
-        parent_reaction=parent_reaction[:count].copy(),
+        states=states[:count],
+        src=src[:n_edges],
+        dst=dst[:n_edges],
+        rates=edge_rates[:n_edges],
+        outflow=outflow[:count],
+        parent=parent[:count],
+        parent_reaction=parent_reaction[:count],
         complete=complete,
     )
 

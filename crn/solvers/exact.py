@@ -250,14 +250,20 @@ def exact_outcomes(net: Network, *, max_states: int | None = None, method: str =
     if absorb not in ("stable", "first"):
         raise ValueError(f"`absorb` must be 'stable' or 'first', got {absorb!r}")
     limit = DEFAULT_MAX_STATES if max_states is None else int(max_states)
-    _limit_check(net, limit)
-    space = enumerate_configurations(net, max_states=limit, progress=progress)
+    estimate = _limit_check(net, limit)
+    space = enumerate_configurations(net, max_states=limit, progress=progress,
+                                     expected=estimate)
     return solve_absorption(net, space, method=method, absorb=absorb)
 
 
 def solve_absorption(net: Network, space: StateSpace, *, method: str = "auto",
-                     absorb: str = "stable") -> ExactResult:
-    """Solve the absorption problem of :func:`exact_outcomes` on an enumerated state space."""
+                     absorb: str = "stable", timings: dict | None = None) -> ExactResult:
+    """Solve the absorption problem of :func:`exact_outcomes` on an enumerated state space.
+
+    ``timings``, when given, receives the seconds spent in each stage
+    (``reach``, ``assemble``, ``order``, ``factor``, ``solve``).
+    """
+    clock = _Clock(timings)
     labels = list(net.labels)
     reverse = _reverse(space)
     if absorb == "first":
@@ -279,12 +285,14 @@ def solve_absorption(net: Network, space: StateSpace, *, method: str = "auto",
         return ExactResult(probabilities=probabilities, expected_time=math.nan,
                            time_std=math.nan, method="trivial", **common)
     transient = np.flatnonzero(reaching & ~absorbing)  # contains 0 (the initial configuration)
+    clock("reach")
     position = np.full(space.n_states, -1, dtype=np.int64)
     position[transient] = np.arange(transient.size)
     del reverse
     target = np.where(reaching, stable, len(labels))  # rhs column of each absorbing configuration
     system, rhs = _absorption_system(space, transient, position, target, len(labels) + 1)
-    chosen, solve = _factorise(net, space, system, transient, method)
+    clock("assemble")
+    chosen, solve = _factorise(net, space, system, transient, method, clock)
     status, messages = 0, []
     if solve is None:
         solve, info = _iterative_solver(system)
@@ -296,6 +304,7 @@ def solve_absorption(net: Network, space: StateSpace, *, method: str = "auto",
     h = h_all[:, : len(labels)].sum(axis=1)
     u = solve(h).ravel()
     w = solve(u).ravel()
+    clock("solve")
     residual = max(_relative_residual(system, h_all, rhs), _relative_residual(system, u, h),
                    _relative_residual(system, w, u))
     if chosen == "iterative" and residual > _RESIDUAL_WARNING:
@@ -342,8 +351,25 @@ def _absorption_system(space: StateSpace, transient, position, target, n_columns
     return system, rhs
 
 
-def _factorise(net: Network, space: StateSpace, system, transient: np.ndarray, method: str):
+class _Clock:
+    """Adds the seconds since the previous call to ``timings[stage]`` (nothing without a dict)."""
+
+    def __init__(self, timings: dict | None):
+        import time
+
+        self._timings, self._now, self._last = timings, time.perf_counter, time.perf_counter()
+
+    def __call__(self, stage: str) -> None:
+        if self._timings is not None:
+            now = self._now()
+            self._timings[stage] = self._timings.get(stage, 0.0) + now - self._last
+            self._last = now
+
+
+def _factorise(net: Network, space: StateSpace, system, transient: np.ndarray, method: str,
+               clock=None):
     """Pick the solver for ``method`` and factorise; returns (method used, solve or None)."""
+    clock = clock or _Clock(None)
     chosen = method
     if chosen in ("auto", "dissection"):
         from crn.solvers.multifrontal import factorize, plan
@@ -354,12 +380,15 @@ def _factorise(net: Network, space: StateSpace, system, transient: np.ndarray, m
         layout = None
         if method == "dissection" or transient.size >= DISSECTION_MIN:
             layout = plan(system, space.states[transient], np.round(widths).astype(np.int64))
+            clock("order")
         fits = layout is not None and (
             layout.entries <= _DISSECTION_ENTRIES_PER_ROW * transient.size
             and layout.largest_front <= _DISSECTION_FRONT_MAX)
         if method == "dissection" or fits:
             try:
-                return "dissection", factorize(system, layout).solve
+                solve = factorize(system, layout).solve
+                clock("factor")
+                return "dissection", solve
             except MemoryError as err:
                 if method == "dissection":
                     raise
@@ -372,6 +401,7 @@ def _factorise(net: Network, space: StateSpace, system, transient: np.ndarray, m
             # minimum degree on A^T + A: generators of protocols are nearly structurally
             # symmetric, and this ordering gives about half the fill of COLAMD on them
             factor = spla.splu(system.tocsc(), permc_spec="MMD_AT_PLUS_A")
+            clock("factor")
             return chosen, factor.solve
         except (MemoryError, RuntimeError) as err:
             warnings.warn(f"sparse LU failed ({err}); falling back to an iterative solver",
