@@ -103,6 +103,45 @@ def test_exact_estimate_counts_the_compositions():
     assert est.memory > 1e9  # several GiB: the chain at n = 3000 is a large object
 
 
+def test_exact_estimate_is_the_measured_peak_to_an_order_of_magnitude():
+    # the numpy allocations of the whole exact analysis (enumeration, system, ordering,
+    # factors, solves), traced by tracemalloc; compiled kernels' own scratch arrays are
+    # not traced, so the measured figure is a little low
+    import tracemalloc
+
+    from crn.solvers.exact import exact_outcomes
+
+    exact_outcomes(load_model(AM, {"n": 10, "gap": 2}).network, method="dissection")  # JIT
+    net = load_model(AM, {"n": 300, "gap": 10}).network
+    tracemalloc.start()
+    try:
+        result = exact_outcomes(net)
+        peak = tracemalloc.get_traced_memory()[1]
+    finally:
+        tracemalloc.stop()
+    assert result.method == "dissection"
+    assert 0.25 < exact_estimate(net).memory / peak < 4
+
+
+def test_exact_at_n_3000_is_refused_at_once_with_its_estimate(capsys):
+    # 4.5 million configurations: refused before any enumeration, naming the estimate
+    line, elapsed = refusal(["exact", AM, "--set", "n=3000", "--max-memory", "2G"], capsys)
+    assert line.startswith("crn: exact analysis of three-state approximate majority needs about")
+    assert "4,504,501 configurations" in line and "GiB of memory" in line
+    assert "more than --max-memory 2 GiB" in line and elapsed < 5
+
+
+def test_a_long_exact_analysis_announces_its_estimate_first(capsys):
+    from crn.commands.options import guard
+
+    # derived: 18 million transitions at 1e-6 s plus 37 N^1.5 flops at 1e10 per second
+    est = exact_estimate(load_model(AM, {"n": 3000}).network)
+    assert 40 < est.seconds < 70 and 4 * 2**30 < est.memory < 8 * 2**30
+    guard(est, 16 * 2**30, False)
+    err = capsys.readouterr().err
+    assert err.startswith("crn: estimated work for exact analysis") and "GiB" in err
+
+
 def test_verify_regimes_and_time_courses_are_guarded(capsys):
     line, _ = refusal(["verify", EM, "--max-n", "50", "--max-memory", "1K"], capsys)
     assert line.startswith("crn: verify up to n = 50 needs")
