@@ -242,7 +242,7 @@ def _free_coordinate_bound(net: Network, changing: np.ndarray) -> int:
 
 
 def lattice_dimension(net: Network) -> int:
-    """Dimension of the lattice the configurations lie on: the rank of the live reactions' changes."""
+    """Dimension of the configurations' lattice: the rank of the live reactions' changes."""
     live = net.rates > 0
     if not np.any(live):
         return 0

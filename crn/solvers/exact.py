@@ -325,29 +325,53 @@ def solve_absorption(net: Network, space: StateSpace, *, method: str = "auto",
                        message="; ".join(messages), **common)
 
 
+@numba.njit(cache=True)
+def _system_arrays(src, dst, rates, outflow, position, target, transient, n_columns):
+    """CSR arrays of ``-Q`` on the transient configurations, and the absorption rates."""
+    m = transient.shape[0]
+    counts = np.ones(m + 1, dtype=np.int64)  # the diagonal, then one per inner transition
+    counts[0] = 0
+    for e in range(src.shape[0]):
+        i = position[src[e]]
+        if i >= 0 and position[dst[e]] >= 0:
+            counts[i + 1] += 1
+    indptr = np.cumsum(counts)
+    fill = indptr[:-1].copy()
+    indices = np.empty(indptr[m], dtype=np.int64)
+    data = np.zeros(indptr[m])
+    rhs = np.zeros((m, n_columns))
+    for i in range(m):
+        indices[fill[i]] = i
+        data[fill[i]] = outflow[transient[i]]
+        fill[i] += 1
+    for e in range(src.shape[0]):
+        i = position[src[e]]
+        if i < 0:
+            continue
+        data[indptr[i]] += rates[e]  # the diagonal: total rate out
+        j = position[dst[e]]
+        if j >= 0:
+            indices[fill[i]] = j
+            data[fill[i]] = -rates[e]
+            fill[i] += 1
+        else:
+            rhs[i, target[dst[e]]] += rates[e]
+    return indptr, indices, data, rhs
+
+
 def _absorption_system(space: StateSpace, transient, position, target, n_columns):
     """``-Q`` on the transient configurations (CSR) and the rates into each absorbing class.
 
     Column k of the right-hand side is the total rate from each transient
-    configuration into configurations whose ``target`` is k.
+    configuration into configurations whose ``target`` is k. One compiled pass
+    over the transitions, with no temporary arrays of their size.
     """
+    indptr, indices, data, rhs = _system_arrays(
+        space.src, space.dst, space.rates, space.outflow, position, target, transient,
+        n_columns)
     m = transient.size
-    from_t = position[space.src]
-    to_t = position[space.dst]
-    leaving = from_t >= 0
-    inside = leaving & (to_t >= 0)
-    out = np.bincount(space.src, weights=space.rates, minlength=space.n_states) + space.outflow
-    rows = np.concatenate([from_t[inside], np.arange(m)])
-    cols = np.concatenate([to_t[inside], np.arange(m)])
-    vals = np.concatenate([-space.rates[inside], out[transient]])
-    del inside, to_t
-    system = sp.csr_matrix((vals, (rows, cols)), shape=(m, m))
-    del rows, cols, vals
-    exits = np.flatnonzero(leaving & (position[space.dst] < 0))
-    rhs = np.zeros((m, n_columns))
-    for k in range(n_columns):
-        chosen = exits[target[space.dst[exits]] == k]
-        rhs[:, k] = np.bincount(from_t[chosen], weights=space.rates[chosen], minlength=m)
+    system = sp.csr_matrix((data, indices, indptr), shape=(m, m))
+    system.sum_duplicates()  # several reactions with one net change: one entry
     return system, rhs
 
 

@@ -555,6 +555,7 @@ def factorize(matrix: sp.spmatrix, layout: DissectionPlan) -> LatticeFactor:
     LatticeFactor
     """
     from scipy.linalg import lu_factor, solve_triangular
+    from scipy.linalg.blas import dgemm
 
     n = matrix.shape[0]
     matrix = sp.csr_matrix(matrix)
@@ -594,16 +595,19 @@ def factorize(matrix: sp.spmatrix, layout: DissectionPlan) -> LatticeFactor:
         perm = _swaps_to_order(swaps.astype(np.int64))
         u12 = solve_triangular(lu, front[:st, st:][perm], lower=True, unit_diagonal=True,
                                check_finite=False)
-        l21 = solve_triangular(lu, front[st:, :st].T, trans="T", lower=False,
-                               check_finite=False).T
-        update = front[st:, st:]
-        update -= l21 @ u12
-        base, nb = fbase[t], f[t] - st
-        values[base: base + st * st] = lu.ravel()
-        values[base + st * st: base + st * (st + nb)] = u12.ravel()
-        values[base + st * (st + nb): base + st * (st + 2 * nb)] = l21.ravel()
+        # x = U11^-T F21^T, so L21 = F21 U11^-1 = x^T
+        x = solve_triangular(lu, front[st:, :st].T, trans="T", lower=False, check_finite=False)
+        nb, base = f[t] - st, fbase[t]
+        values[base: base + st * st].reshape(st, st)[...] = lu
+        values[base + st * st: base + st * (st + nb)].reshape(st, nb)[...] = u12
+        values[base + st * (st + nb): base + st * (st + 2 * nb)].reshape(nb, st)[...] = x.T
         pivots[layout.sep[t]: layout.hi[t]] = perm
-        ustack[ubase[t]: ubase[t] + nb * nb] = update.ravel()
-        del lu, u12, l21
+        # the Schur complement F22 - L21 U12 straight onto the stack of updates: its
+        # transpose is Fortran-ordered there, so BLAS updates it in place
+        update = ustack[ubase[t]: ubase[t] + nb * nb].reshape(nb, nb)
+        update[...] = front[st:, st:]
+        if nb:
+            dgemm(-1.0, u12, x, 1.0, update.T, trans_a=1, overwrite_c=1)
+        del lu, u12, x
         t += 1
     return LatticeFactor(layout, fbase, values, pivots)
