@@ -39,7 +39,6 @@ import scipy.sparse as sp
 __all__ = ["DissectionPlan", "LatticeFactor", "plan", "factorize"]
 
 _LEAF = 16  # configurations below which a region is not cut further
-_RULE = 0
 _LARGE_FRONT = 128  # fronts at least this wide are factorised with LAPACK/BLAS
 
 
@@ -109,7 +108,7 @@ def _doubled(array, used):
 
 
 @numba.njit(cache=True)
-def _dissect(coords, widths, leaf, rule):
+def _dissect(coords, widths, leaf):
     """Recursive coordinate bisection; returns the order and the fronts in preorder."""
     n, d = coords.shape
     order = np.arange(n)
@@ -139,7 +138,7 @@ def _dissect(coords, widths, leaf, rule):
         m = b - a
         if m == 0:
             continue
-        best_c, best_cut, best_size, best_score = -1, 0, m + 1, 0
+        best_c, best_cut, best_size = -1, 0, m + 1
         if m > leaf:
             for c in range(d):
                 vmin[c] = coords[order[a], c]
@@ -171,9 +170,8 @@ def _dissect(coords, widths, leaf, rule):
                 size = 0
                 for v in range(cut, cut + w):
                     size += hist[v]
-                score = size if rule == 0 else -span
-                if best_c < 0 or score < best_score:
-                    best_c, best_cut, best_size, best_score = c, cut + vmin[c], size, score
+                if size < best_size:
+                    best_c, best_cut, best_size = c, cut + vmin[c], size
         if best_c < 0:
             lo[count], sep[count], hi[count], parent[count] = a, a, b, par
             count += 1
@@ -214,13 +212,23 @@ def _dissect(coords, widths, leaf, rule):
 
 
 @numba.njit(cache=True)
-def _boundaries(sep, hi, children_ptr, children, indptr, indices, n):
-    """Rows each front updates: neighbours of its separator and its children's, beyond it."""
+def _push(bnd, fill, q):
+    if fill == bnd.shape[0]:
+        bnd = _doubled(bnd, fill)
+    bnd[fill] = q
+    return bnd, fill + 1
+
+
+@numba.njit(cache=True)
+def _boundaries(sep, hi, children_ptr, children, indptr, indices, t_indptr, t_indices, n):
+    """Rows each front updates: neighbours of its separator and its children's, beyond it.
+
+    The neighbours are read from the rows of the permuted matrix and of its transpose.
+    """
     n_fronts = sep.shape[0]
     mark = np.full(n, -1, dtype=np.int64)
     bptr = np.zeros(n_fronts + 1, dtype=np.int64)
-    cap = 4 * n + 16
-    bnd = np.empty(cap, dtype=np.int64)
+    bnd = np.empty(4 * n + 16, dtype=np.int64)
     fill = 0
     for t in range(n_fronts):
         start = fill
@@ -229,24 +237,19 @@ def _boundaries(sep, hi, children_ptr, children, indptr, indices, n):
                 q = indices[k]
                 if q >= hi[t] and mark[q] != t:
                     mark[q] = t
-                    if fill == bnd.shape[0]:
-                        grown = np.empty(2 * bnd.shape[0], dtype=np.int64)
-                        grown[:fill] = bnd[:fill]
-                        bnd = grown
-                    bnd[fill] = q
-                    fill += 1
+                    bnd, fill = _push(bnd, fill, q)
+            for k in range(t_indptr[p], t_indptr[p + 1]):
+                q = t_indices[k]
+                if q >= hi[t] and mark[q] != t:
+                    mark[q] = t
+                    bnd, fill = _push(bnd, fill, q)
         for kc in range(children_ptr[t], children_ptr[t + 1]):
             c = children[kc]
             for k in range(bptr[c], bptr[c + 1]):
                 q = bnd[k]
                 if q >= hi[t] and mark[q] != t:
                     mark[q] = t
-                    if fill == bnd.shape[0]:
-                        grown = np.empty(2 * bnd.shape[0], dtype=np.int64)
-                        grown[:fill] = bnd[:fill]
-                        bnd = grown
-                    bnd[fill] = q
-                    fill += 1
+                    bnd, fill = _push(bnd, fill, q)
         bnd[start:fill] = np.sort(bnd[start:fill])
         bptr[t + 1] = fill
     return bptr, bnd[:fill].copy()
@@ -291,7 +294,7 @@ def plan(matrix: sp.spmatrix, coords: np.ndarray, widths: np.ndarray) -> Dissect
     n = matrix.shape[0]
     coords = np.ascontiguousarray(coords, dtype=np.int64)
     widths = np.ascontiguousarray(widths, dtype=np.int64)
-    order, lo, sep, hi, parent = _dissect(coords, widths, _LEAF, _RULE)
+    order, lo, sep, hi, parent = _dissect(coords, widths, _LEAF)
     post = np.argsort(hi, kind="stable")  # a child's range ends before its parent's
     rank = np.empty_like(post)
     rank[post] = np.arange(post.size)
@@ -308,11 +311,12 @@ def plan(matrix: sp.spmatrix, coords: np.ndarray, widths: np.ndarray) -> Dissect
     position[order] = np.arange(n)
     ptr, idx, _ = _permute_rows(matrix.indptr, matrix.indices, np.ones(0), order, position)
     del position
-    permuted = sp.csr_matrix((np.ones(idx.size, dtype=np.int8), idx, ptr), shape=(n, n))
-    graph = (permuted + permuted.T).tocsr()
-    del permuted, ptr, idx
-    bptr, bnd = _boundaries(sep, hi, children_ptr, children, graph.indptr, graph.indices, n)
-    del graph
+    # the pattern of A + A^T, as the rows of P A P^T and of its transpose
+    transposed = sp.csr_matrix((np.ones(idx.size, dtype=np.int8), idx, ptr), shape=(n, n)).T
+    transposed = transposed.tocsr()
+    bptr, bnd = _boundaries(sep, hi, children_ptr, children, ptr, idx, transposed.indptr,
+                            transposed.indices, n)
+    del transposed, ptr, idx
     s = (hi - sep).astype(np.float64)
     b = np.diff(bptr).astype(np.float64)
     entries = int((s * s + 2 * s * b).sum())
