@@ -8,20 +8,28 @@ the guard's estimate beside it, and the ratio target / reference. With
 ``--superlu`` the reference n is also solved by SuperLU (``method="direct"``,
 the solver before nested dissection) for the ratio in the same process.
 
-Where the time goes (``OPENBLAS_NUM_THREADS=1``, CPU seconds, shared 2-core
-machine at load 8-12; wall time there was 3-4x these):
+Where the time goes (``OPENBLAS_NUM_THREADS=1``, CPU seconds of a profiling run
+of the first version, shared 2-core machine at load 8-12, where wall time was
+3-4x these):
 
     n (configurations)    enumerate  reach  assemble  order  factor  solves   total
     1000 (0.50 M)              0.4    0.06      0.2    0.5     2.4     0.6      4.3
     2000 (2.0 M)               2.3    0.3       0.8    2.5    11.6     2.9     20.4
     3000 (4.5 M)               7.3    1.0       3.4    6.3    34.2     7.8     60
 
-(first version of the solver; the enumeration and the solves were then made
-lighter.) The factorisation is 13, 105 and 356 GFlop at n = 1000, 2000, 3000
-(37 N^1.5, as nested dissection predicts for a two-dimensional lattice), and its
-factors hold 100, 115 and 124 entries per configuration (4.5 GB at n = 3000,
-most of the peak). SuperLU with minimum degree at the same sizes, unloaded:
-factorisation 3.0 s, 32 s and 136 s, peak 1.2, 4.9 and 11.3 GiB.
+The assembly was then made one compiled pass, the solves one pass over the
+factors for all right-hand sides, and the enumeration stopped copying. The
+factorisation is 13, 105 and 356 GFlop at n = 1000, 2000, 3000 (37 N^1.5, as
+nested dissection predicts on a two-dimensional lattice), and its factors hold
+100, 115 and 124 entries per configuration (4.5 GB at n = 3000, most of the
+peak). SuperLU with minimum degree, the solver before: factorisation 3.0 s,
+32 s and 136 s at the same n (a quiet machine), peak 1.2, 4.9 and 11.3 GiB.
+
+Last run (this script, ``OPENBLAS_NUM_THREADS=1``, load 8-9 on 2 cores): n = 1000
+3.6 s CPU (11.6 s wall); n = 3000 53 s CPU (230 s wall), peak resident 6.77 GiB
+against the guard's 6.56 GiB; CPU ratio 14.9x for 9x the configurations. With
+``--superlu`` at n = 1000: SuperLU 4.2 s CPU, 30 s wall; nested dissection 0.35x
+its wall time, P(X) equal to 3e-15.
 
 OpenBLAS runs each dense kernel on every core; on a machine loaded by other
 jobs its threads wait for each other, so the script should be run once as is

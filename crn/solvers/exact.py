@@ -403,7 +403,7 @@ def _factorise(net: Network, space: StateSpace, system, transient: np.ndarray, m
         widths = live.max(axis=1, initial=0)
         layout = None
         if method == "dissection" or transient.size >= DISSECTION_MIN:
-            layout = plan(system, space.states[transient], np.round(widths).astype(np.int64))
+            layout = plan(system, space.states[transient], np.ceil(widths).astype(np.int64))
             clock("order")
         fits = layout is not None and (
             layout.entries <= _DISSECTION_ENTRIES_PER_ROW * transient.size
