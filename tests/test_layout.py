@@ -10,7 +10,7 @@ import crn
 from crn._moved import MOVED, RENAMED, new_name
 from crn.engines import ENGINES
 
-LAYERS = ["crn", "crn.core", "crn.solvers", "crn.analyses", "crn.runtime"]
+LAYERS = ["crn", "crn.core", "crn.solvers", "crn.analyses", "crn.runtime", "crn.engines"]
 
 
 @pytest.mark.parametrize("package", LAYERS)
