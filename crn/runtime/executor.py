@@ -120,7 +120,7 @@ class Executor:
             worker once rather than with every task.
         weight, noun :
             How much work a task is and what to call it (``len``, ``"runs"``),
-            for the messages about dead workers.
+            for the warning about a dead worker.
 
         Raises
         ------
@@ -129,7 +129,8 @@ class Executor:
             after stopping the work.
         WorkerError
             When local workers died more than ``restarts`` times, or cluster
-            workers kept dying on the same task.
+            workers kept dying on the same task (the results handed over so far
+            are the caller's to report).
         """
         call = _Bound(fn, shared)
         if self.kind == "cluster":
@@ -158,10 +159,10 @@ class Executor:
                 self._pool_pass(call, tasks, todo, keep)
                 return
             except BrokenProcessPool as err:
-                lost = sum(weight(tasks[i]) for i in range(len(tasks)) if i not in done)
                 if restart == self.restarts:
                     raise WorkerError(f"worker processes died {restart + 1} times "
-                                      f"(killed or out of memory); {lost} {noun} lost") from err
+                                      "(killed or out of memory)") from err
+                lost = sum(weight(tasks[i]) for i in range(len(tasks)) if i not in done)
                 warnings.warn(f"a worker process died; rerunning its {lost} unfinished "
                               f"{noun} on their own random streams", RuntimeWarning,
                               stacklevel=4)

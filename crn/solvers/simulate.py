@@ -336,7 +336,8 @@ def simulate(net: Network, *, runs: int = 1, until: float | None = None, times=N
     except KeyboardInterrupt as err:
         raise SimulationInterrupted(_collect(done, name, root, until, net, times, runs)) from err
     except WorkerError as err:
-        raise WorkerError(f"{err}; {len(done)} of {len(children)} runs finished",
+        raise WorkerError(f"{err}; {len(done)} of {len(children)} runs finished, "
+                          f"{len(children) - len(done)} lost",
                           partial=_collect(done, name, root, until, net, times, runs)) from err
     return _collect(done, name, root, until, net, times, runs)
 
