@@ -59,10 +59,10 @@ class Executor:
 
     Examples
     --------
+    >>> got = {}
     >>> with Executor(workers=1) as ex:
-    ...     squares = {}
-    ...     ex.run(abs, [-1, -2, 3], lambda i, value: squares.__setitem__(i, value))
-    >>> squares
+    ...     ex.run(abs, [-1, -2, 3], got.__setitem__)
+    >>> got
     {0: 1, 1: 2, 2: 3}
     """
 
