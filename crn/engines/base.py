@@ -14,6 +14,7 @@ from dataclasses import dataclass
 from typing import Protocol
 
 import numpy as np
+from numpy.typing import ArrayLike
 
 from crn.core.network import Network
 from crn.core.outcome import RunOutcome
@@ -61,12 +62,12 @@ class Trajectory:
 class Engine(Protocol):
     """The signature every engine has (extra keyword options may follow, with defaults)."""
 
-    def __call__(self, net: Network, *, until: float, times=None, rng=None,
-                 stop_at_consensus: bool = False) -> Trajectory:
+    def __call__(self, net: Network, *, until: float, times: ArrayLike | None = None,
+                 rng=None, stop_at_consensus: bool = False) -> Trajectory:
         """One exact stochastic run of ``net`` up to ``until``, sampled at ``times``."""
 
 
-def check_horizon(until, times=None, *, infinite: bool = False,
+def check_horizon(until: float, times: ArrayLike | None = None, *, infinite: bool = False,
                   increasing: bool = False) -> tuple[float, np.ndarray]:
     """Validate an engine's horizon and sample times; fill in the default samples.
 

@@ -12,7 +12,11 @@ processes run them.
 
 from __future__ import annotations
 
+from typing import TypeAlias, cast
+
 import numpy as np
+
+Seed: TypeAlias = "int | np.integer | np.random.Generator | np.random.SeedSequence | None"
 
 __all__ = ["root_seed", "child_streams", "keyed_stream", "seed_entropy"]
 
@@ -20,7 +24,7 @@ _WORD = 32
 _CHECK_WORDS = 8  # state words compared when deciding two SeedSequences are the same
 
 
-def root_seed(rng=None) -> np.random.SeedSequence:
+def root_seed(rng: Seed = None) -> np.random.SeedSequence:
     """The root ``SeedSequence`` of a seed, with integer entropy (recordable, repeatable).
 
     Parameters
@@ -74,12 +78,12 @@ def root_seed(rng=None) -> np.random.SeedSequence:
     raise TypeError(f"`rng` must be a Generator, int, SeedSequence or None, got {type(rng)}")
 
 
-def seed_entropy(rng=None) -> int:
+def seed_entropy(rng: Seed = None) -> int:
     """The integer entropy of :func:`root_seed` (what a saved result records)."""
-    return int(root_seed(rng).entropy)
+    return cast(int, root_seed(rng).entropy)
 
 
-def child_streams(rng, count: int) -> list[np.random.SeedSequence]:
+def child_streams(rng: Seed, count: int) -> list[np.random.SeedSequence]:
     """``count`` independent child streams of the seed's root, in order (``SeedSequence.spawn``).
 
     Child i is the same whatever ``count`` is, so part i of a computation draws
@@ -94,7 +98,7 @@ def child_streams(rng, count: int) -> list[np.random.SeedSequence]:
     return root_seed(rng).spawn(int(count))
 
 
-def keyed_stream(root, *key: int) -> np.random.SeedSequence:
+def keyed_stream(root: int | np.random.SeedSequence | None, *key: int) -> np.random.SeedSequence:
     """The child stream addressed by ``key``: the same numbers whenever and wherever it runs.
 
     ``keyed_stream(root, i)`` is child i of ``root.spawn``; longer keys address
