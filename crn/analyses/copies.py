@@ -50,10 +50,10 @@ from crn.core.loading import (
 )
 from crn.core.network import Network
 from crn.core.outcome import correct_label
-from crn.core.units import concentration_for, to_seconds, volume_for
+from crn.core.units import concentration_for, to_parallel_time, to_seconds, volume_for
 
 __all__ = ["Probe", "CopiesResult", "Prober", "Lattice", "lattice", "smallest_n",
-           "physical_outputs", "p_wrong_summary"]
+           "physical_outputs", "p_wrong_summary", "parallel_deadline"]
 
 _TIMING_RUNS = 200
 
@@ -680,6 +680,55 @@ def physical_outputs(n: int | None, *, concentration_molar: float | None = None,
         seconds = to_seconds(parallel_time, rate, conc)
     return {"concentration_molar": conc, "volume_liters": vol, "seconds": seconds,
             "hours": None if seconds is None else seconds / 3600.0}
+
+
+def parallel_deadline(seconds: float, rate: float, *, concentration_molar: float | None = None,
+                      volume_liters: float | None = None) -> float | Callable[[int], float]:
+    """A deadline in seconds as parallel time, the unit :func:`smallest_n` searches in.
+
+    Parameters
+    ----------
+    seconds : float
+    rate : float
+        Bimolecular rate constant k_phys (1/(M s)) a protocol reaction of rate 1 is built at.
+    concentration_molar, volume_liters : float
+        Exactly one: the total concentration, or the droplet volume.
+
+    Returns
+    -------
+    float or callable n -> float
+        At a fixed concentration one number (:func:`crn.core.units.to_parallel_time`);
+        in a fixed volume the concentration, and so the time unit, grows with n:
+        a picklable function of n (pass ``scale_deadline=True`` to :func:`smallest_n`).
+
+    Raises
+    ------
+    CRNError
+        Without exactly one of a concentration and a volume.
+
+    Examples
+    --------
+    >>> parallel_deadline(7200.0, 1e6, concentration_molar=1e-8)
+    72.0
+    """
+    if (concentration_molar is None) == (volume_liters is None):
+        raise CRNError("a deadline in seconds needs exactly one of a concentration and a volume "
+                       "(to convert it into parallel time)")
+    if concentration_molar is not None:
+        return to_parallel_time(seconds, rate, concentration_molar)
+    return _VolumeDeadline(float(seconds), float(rate), float(volume_liters))
+
+
+@dataclass(frozen=True)
+class _VolumeDeadline:
+    """A deadline in seconds as parallel time at n molecules in a fixed volume."""
+
+    seconds: float
+    rate: float
+    volume_liters: float
+
+    def __call__(self, n: int) -> float:
+        return to_parallel_time(self.seconds, self.rate, concentration_for(n, self.volume_liters))
 
 
 def p_wrong_summary(probe) -> dict | None:

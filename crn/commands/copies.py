@@ -8,16 +8,15 @@ from crn.commands.implementing import dna_only_options, dna_settings, implement_
 from crn.commands.options import (
     emit_json,
     json_option,
+    load,
     model_argument,
     seed_notice,
     seed_option,
     set_option,
 )
-from crn.commands.regimes import cell_networks
 from crn.core.errors import CRNError
 from crn.core.units import (
     WET_LAB_CAUTION,
-    concentration_for,
     format_concentration,
     format_time,
     format_volume,
@@ -25,7 +24,6 @@ from crn.core.units import (
     parse_rate_constant,
     parse_time,
     parse_volume,
-    to_parallel_time,
 )
 
 __all__ = ["copies", "parse_deadline"]
@@ -89,7 +87,9 @@ def copies(model, sets, gap_fraction, gap, risk, deadline, concentration, volume
     With --implement the search runs on the DNA implementation, beside the formal answer:
     more copies, a later decision, or no droplet size at all and why (fuel runs out, leak
     dominates)."""
+    from crn.analyses.cells import cell_networks
     from crn.analyses.copies import p_wrong_summary, physical_outputs, smallest_n
+    from crn.analyses.copies import parallel_deadline as deadline_in_parallel_time
 
     settings = dna_settings(implement, fuel=fuel, max_rate=max_rate, toehold=toehold,
                             leak=leak, rate=rate, concentration=concentration)
@@ -105,13 +105,11 @@ def copies(model, sets, gap_fraction, gap, risk, deadline, concentration, volume
         if k is None or (conc is None and vol is None):
             raise CRNError("a deadline in physical time needs --rate and --concentration or "
                            "--volume (to convert it into parallel time)")
-        if conc is not None:
-            parallel_deadline = to_parallel_time(deadline_seconds, k, conc)
-        else:
-            # a fixed volume: the concentration, and so the time unit, grows with n
-            def parallel_deadline(n, _s=deadline_seconds, _k=k, _v=vol):
-                return to_parallel_time(_s, _k, concentration_for(n, _v))
-    model_obj, networks = cell_networks(model, sets)
+        parallel_deadline = deadline_in_parallel_time(deadline_seconds, k,
+                                                      concentration_molar=conc,
+                                                      volume_liters=vol)
+    model_obj = load(model, sets)
+    networks = cell_networks(model_obj)
     answer = None
     try:
         if settings is None:

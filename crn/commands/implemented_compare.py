@@ -7,7 +7,8 @@ from types import SimpleNamespace
 import click
 import numpy as np
 
-from crn.commands.compare import _SAMPLES, compare_window, disagreement
+from crn.analyses.compare import SAMPLES as _SAMPLES
+from crn.analyses.compare import compare_window, disagreement
 from crn.commands.implemented_ode import save_implementation_plot
 from crn.commands.implementing import format_fuel, implement_network, implementation_json
 from crn.commands.options import emit_json

@@ -170,17 +170,11 @@ def _text(name, impl, result, formal_result, fuel, answer) -> str:
 def save_implementation_plot(path, impl, formal_result, result, ensemble, *, title,
                              disagreement=None):
     """Write the formal ODE / implementation ODE (/ implementation runs) figure."""
-    import matplotlib
+    from crn.plots.save import save_figure, use_file_backend
 
-    matplotlib.use("Agg")
-    import matplotlib.pyplot as plt
-
-    from crn.io.atomic import save_figure
+    use_file_backend()
     from crn.plots.implementation import plot_implementation
 
     ax = plot_implementation(impl, formal_result, result, ensemble, title=title,
                              disagreement=disagreement)
-    try:
-        save_figure(path, ax.figure, dpi=120)
-    finally:
-        plt.close(ax.figure)
+    save_figure(ax.figure, path, dpi=120)

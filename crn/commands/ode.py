@@ -258,19 +258,13 @@ def _print_equations(net, latex: bool, as_json: bool) -> None:
 
 
 def _plot(result, name: str, path, seconds=None) -> None:
-    import matplotlib
+    from crn.plots.save import save_figure, use_file_backend
 
-    matplotlib.use("Agg")
-    import matplotlib.pyplot as plt
-
-    from crn.io.atomic import save_figure
+    use_file_backend()
     from crn.plots.ode import plot_mean_field
 
     ax = plot_mean_field(result, title=f"{name}\nmean-field ODE", seconds_per_time=seconds)
-    try:
-        save_figure(path, ax.figure)
-    finally:
-        plt.close(ax.figure)
+    save_figure(ax.figure, path)
 
 
 def mean_field_json(model, result, fixed_points, *, consensus=None) -> dict:

@@ -29,7 +29,7 @@ from crn.commands.options import (
     to_jsonable,
 )
 from crn.core.errors import CRNError
-from crn.io.atomic import save_figure, write_atomic
+from crn.io.atomic import write_atomic
 from crn.io.regime_tables import table_csv
 
 if TYPE_CHECKING:
@@ -298,19 +298,14 @@ def _report_interrupted(finished, total, out_dir):
 
 
 def _save_plot(result, path, name):
-    import matplotlib
+    from crn.plots.save import save_figure, use_file_backend
 
-    matplotlib.use("Agg")
-    import matplotlib.pyplot as plt
-
+    use_file_backend()
     from crn.plots.regimes import plot_regime_map
 
     ax = plot_regime_map(result, title=f"{name}: where the mean field misleads "
                                        f"(risk {result.risk:g})")
-    try:
-        save_figure(path, ax.figure, dpi=150)
-    finally:
-        plt.close(ax.figure)
+    save_figure(ax.figure, path, dpi=150)
 
 
 def _text(name, result: RegimeMap) -> str:

@@ -107,20 +107,8 @@ def run_ensemble(net, *, runs, until, engine, seed, workers, cluster, as_json, t
 
 
 def ensemble_summary(ensemble: Ensemble, model_name: str) -> dict:
-    """The ``crn ssa`` JSON object (contract keys ``runs``, ``outcomes``, ``consensus_time``)."""
-    events = ensemble.events
-    return {
-        "model": model_name,
-        "runs": ensemble.runs,
-        "requested": ensemble.requested,
-        "interrupted": not ensemble.complete,
-        "engine": ensemble.engine,
-        "seed_entropy": ensemble.seed_entropy,
-        "until": ensemble.until,
-        "outcomes": ensemble.outcomes(),
-        "consensus_time": ensemble.consensus_time_summary(),
-        "events_mean": float(events.mean()) if events.size and (events >= 0).all() else None,
-    }
+    """The ``crn ssa`` JSON object: the model's name and :meth:`Ensemble.summary`."""
+    return {"model": model_name, **ensemble.summary()}
 
 
 def horizon_text(until: float, net) -> str:
@@ -133,18 +121,16 @@ def _number(x) -> str:
 
 
 def format_ensemble(ensemble: Ensemble, correct=None) -> list[str]:
-    """Table lines: each label's runs and probability with its 95% Wilson interval, then the
-    consensus-time quantiles."""
-    from crn.core.stats import wilson_interval
-
+    """Table lines: each label's runs and probability with its 95% Wilson interval
+    (:meth:`Ensemble.outcome_intervals`), then the consensus-time quantiles."""
     if ensemble.runs == 0:
         return ["no run finished"]
     lines = [f"{'label':<10} {'runs':>7} {'probability':>12}   95% interval"]
-    outcomes = ensemble.outcomes()
-    for label, k in sorted(outcomes.items(), key=lambda kv: (kv[0] == "none", -kv[1])):
-        p, low, high = wilson_interval(k, ensemble.runs)
+    intervals = ensemble.outcome_intervals()
+    for label, row in sorted(intervals.items(), key=lambda kv: (kv[0] == "none", -kv[1]["runs"])):
         mark = "  (correct)" if correct is not None and label == correct else ""
-        lines.append(f"{label:<10} {k:>7} {p:>12.4f}   [{low:.4f}, {high:.4f}]{mark}")
+        lines.append(f"{label:<10} {row['runs']:>7} {row['p']:>12.4f}   "
+                     f"[{row['low']:.4f}, {row['high']:.4f}]{mark}")
     summary = ensemble.consensus_time_summary()
     if summary is None:
         lines.append("consensus time: no run reached consensus")
@@ -312,12 +298,9 @@ def format_horizon(course) -> list[str]:
 
 
 def _plot(net, course, name: str, path) -> None:
-    import matplotlib
+    from crn.plots.save import save_figure, use_file_backend
 
-    matplotlib.use("Agg")
-    import matplotlib.pyplot as plt
-
-    from crn.io.atomic import save_figure
+    use_file_backend()
     from crn.plots.time_course import plot_time_course
     from crn.solvers.ode import molecules_per_unit, solve_mean_field
     from crn.solvers.time_course import TimeCourse
@@ -331,7 +314,4 @@ def _plot(net, course, name: str, path) -> None:
     ax = plot_time_course(course, ode=ode, per_unit=per_unit, unit_name=unit_name,
                           title=f"{name}\n{course.runs} stochastic runs (mean, 5-95% band); "
                                 "mean-field ODE dashed")
-    try:
-        save_figure(path, ax.figure)
-    finally:
-        plt.close(ax.figure)
+    save_figure(ax.figure, path)
