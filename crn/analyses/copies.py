@@ -53,7 +53,8 @@ from crn.core.outcome import correct_label
 from crn.core.units import concentration_for, to_parallel_time, to_seconds, volume_for
 
 __all__ = ["Probe", "CopiesResult", "Prober", "Lattice", "lattice", "smallest_n",
-           "physical_outputs", "p_wrong_summary", "parallel_deadline"]
+           "physical_outputs", "physical_answer", "p_wrong_summary", "risk_parts",
+           "parallel_deadline"]
 
 _TIMING_RUNS = 200
 
@@ -729,6 +730,56 @@ class _VolumeDeadline:
 
     def __call__(self, n: int) -> float:
         return to_parallel_time(self.seconds, self.rate, concentration_for(n, self.volume_liters))
+
+
+def physical_answer(result: CopiesResult, *, concentration_molar: float | None = None,
+                    volume_liters: float | None = None, rate: float | None = None) -> dict:
+    """A copies answer in lab units: concentration, volume and time at the answer, and the
+    volume and concentration over its range.
+
+    Parameters
+    ----------
+    result : CopiesResult
+    concentration_molar, volume_liters : float, optional
+        At most one (see :func:`physical_outputs`).
+    rate : float, optional
+        Bimolecular rate constant (1/(M s)); with a concentration the median
+        consensus time is given in seconds and hours.
+
+    Returns
+    -------
+    dict
+        :func:`physical_outputs` at ``result.estimate`` (with the median time),
+        plus ``volume_liters_interval`` and ``concentration_molar_interval``
+        (each ``[at low, at high]``, None where they do not follow).
+    """
+    out = physical_outputs(result.estimate, concentration_molar=concentration_molar,
+                           volume_liters=volume_liters, rate=rate,
+                           parallel_time=result.median_time)
+    ends = [physical_outputs(n, concentration_molar=concentration_molar,
+                             volume_liters=volume_liters) for n in (result.low, result.high)]
+    out["volume_liters_interval"] = [end["volume_liters"] for end in ends]
+    out["concentration_molar_interval"] = [end["concentration_molar"] for end in ends]
+    return out
+
+
+def risk_parts(probe) -> dict | None:
+    """Poisson loading: P(wrong) from reversed or tied loadings and from the kinetics.
+
+    Parameters
+    ----------
+    probe : Probe or None
+
+    Returns
+    -------
+    dict or None
+        ``{loading, kinetics, reversal}`` (see :class:`Probe`); None without a
+        probe or for a fixed loading.
+    """
+    if probe is None or probe.loading != "poisson":
+        return None
+    return {"loading": probe.wrong_loading, "kinetics": probe.wrong_kinetics,
+            "reversal": probe.reversal}
 
 
 def p_wrong_summary(probe) -> dict | None:

@@ -113,10 +113,10 @@ def _format_eigenvalues(values) -> str:
                                 "consensus, capped at a multiple of the natural time scale.")
 @click.option("--at", "at", default=None, metavar="t1,t2,...",
               help="Report the solution at these times (the solve then runs past consensus).")
-@click.option("--plot", "plot_file", type=FIGURE_FILE, default=None,
+@click.option("--plot", "plot_path", type=FIGURE_FILE, default=None,
               metavar="FILE", help="Save a figure of the fractions against time (png, pdf, "
                                    "svg, ...).")
-@click.option("--csv", "csv_file", type=OUTPUT_FILE, default=None,
+@click.option("--csv", "csv_path", type=OUTPUT_FILE, default=None,
               metavar="FILE", help="Write the trajectory as CSV (time, then one column per "
                                    "species).")
 @json_option
@@ -140,7 +140,7 @@ def _format_eigenvalues(values) -> str:
 @click.option("--within", type=click.FloatRange(0, 1, min_open=True, max_open=True),
               default=0.1, show_default=True,
               help="Relative tolerance of --fuel-needed.")
-def ode(model, sets, until, at, plot_file, csv_file, as_json, equations, latex, method,
+def ode(model, sets, until, at, plot_path, csv_path, as_json, equations, latex, method,
         with_fixed_points, every, in_counts, force, implement, fuel, max_rate, toehold, leak,
         rate, concentration, fuel_needed, within):
     """Solve the mean-field ODE of MODEL: fractions of the population against parallel
@@ -159,7 +159,7 @@ def ode(model, sets, until, at, plot_file, csv_file, as_json, equations, latex, 
         from crn.commands.implemented_ode import run_implemented_ode
 
         run_implemented_ode(loaded, settings, until=until, times=_parse_times(at),
-                            method=method, plot_file=plot_file, csv_file=csv_file,
+                            method=method, plot_path=plot_path, csv_path=csv_path,
                             as_json=as_json, equations=equations, latex=latex,
                             fuel_needed=fuel_needed, within=within, every=every,
                             in_counts=in_counts, force=force)
@@ -185,16 +185,16 @@ def ode(model, sets, until, at, plot_file, csv_file, as_json, equations, latex, 
         from crn.solvers.fixed_points import find_fixed_points
 
         points = find_fixed_points(net)
-    if csv_file and course is not None:
+    if csv_path and course is not None:
         from crn.io.time_course import write_time_course_csv
 
-        write_time_course_csv(csv_file, course)
-    elif csv_file:
+        write_time_course_csv(csv_path, course)
+    elif csv_path:
         from crn.io.ode_files import write_mean_field_csv
 
-        write_mean_field_csv(csv_file, result)
-    if plot_file:
-        _plot(result, loaded.name, plot_file, seconds)
+        write_mean_field_csv(csv_path, result)
+    if plot_path:
+        _plot(result, loaded.name, plot_path, seconds)
     if as_json:
         obj = mean_field_json(loaded, result, points)
         if course is not None:

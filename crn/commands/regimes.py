@@ -104,9 +104,9 @@ def _fmt(value, spec=".3g"):
               show_default=True, help="Flag times when SSA median and ODE differ by more.")
 @click.option("--method", type=click.Choice(["auto", "exact", "stochastic"]), default="auto",
               show_default=True, help="Exact analysis, stochastic runs, or exact when small.")
-@click.option("--plot", "plot_file", type=FIGURE_FILE, default=None,
+@click.option("--plot", "plot_path", type=FIGURE_FILE, default=None,
               help="Write the heatmap figure (png, pdf, svg, ...).")
-@click.option("--csv", "csv_file", type=OUTPUT_FILE, default=None,
+@click.option("--csv", "csv_path", type=OUTPUT_FILE, default=None,
               help="Write the table as CSV.")
 @click.option("--out", "out_dir", type=click.Path(file_okay=False), default=None,
               help="Directory for the results file (each cell appended as it finishes) and "
@@ -125,7 +125,7 @@ def _fmt(value, spec=".3g"):
               help="With --implement: for each cell, the largest leak rate constant at which "
                    "it stays ok with the correct decision (many more runs).")
 def regimes(model, sets, n_list, gap_list, fraction_list, risk, until, runs_max, time_factor,
-            method, plot_file, csv_file, out_dir, resume, workers, cluster, max_memory, force,
+            method, plot_path, csv_path, out_dir, resume, workers, cluster, max_memory, force,
             seed, as_json, implement, fuel, max_rate, toehold, leak, rate, concentration,
             with_leak_tolerance):
     """Sweep MODEL over populations n and gaps: for each cell, the ODE's decision, the
@@ -210,10 +210,10 @@ def regimes(model, sets, n_list, gap_list, fraction_list, risk, until, runs_max,
         write_atomic(Path(out_dir) / "regimes.csv", table)
         write_atomic(Path(out_dir) / "regimes.json",
                      json.dumps(to_jsonable(payload), indent=2) + "\n")
-    if csv_file:
-        write_atomic(csv_file, table)
-    if plot_file:
-        _save_plot(result, plot_file, model_obj.name)
+    if csv_path:
+        write_atomic(csv_path, table)
+    if plot_path:
+        _save_plot(result, plot_path, model_obj.name)
     if as_json:
         emit_json(payload)
         return
