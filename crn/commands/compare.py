@@ -4,6 +4,13 @@ from __future__ import annotations
 
 import click
 
+from crn.commands.ensembles import (
+    ensemble_options,
+    ensemble_summary,
+    finish_interrupted,
+    horizon_text,
+    run_ensemble,
+)
 from crn.commands.implementing import dna_options, dna_settings, implement_option
 from crn.commands.options import (
     FIGURE_FILE,
@@ -15,13 +22,6 @@ from crn.commands.options import (
     seconds_per_time,
     seed_option,
     set_option,
-)
-from crn.commands.ssa import (
-    _finish_interrupted,
-    ensemble_options,
-    ensemble_summary,
-    horizon_text,
-    run_ensemble,
 )
 
 __all__ = ["compare"]
@@ -73,7 +73,7 @@ def compare(model, sets, runs, until, engine, workers, cluster, max_memory, forc
     else:
         click.echo(_text(loaded.name, result, net))
     if interrupted:
-        _finish_interrupted(ensemble)
+        finish_interrupted(ensemble)
 
 
 def _json(loaded, result) -> dict:

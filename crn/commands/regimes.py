@@ -11,6 +11,7 @@ from typing import TYPE_CHECKING
 import click
 
 from crn.commands.implementing import dna_options, dna_settings, implement_option
+from crn.commands.lists import parse_float_list, parse_int_list
 from crn.commands.options import (
     CLUSTER_ADDRESS,
     FIGURE_FILE,
@@ -34,33 +35,10 @@ from crn.io.regime_tables import table_csv
 if TYPE_CHECKING:
     from crn.analyses.regimes import RegimeMap
 
-__all__ = ["regimes", "parse_int_list", "parse_float_list"]
+__all__ = ["regimes"]
 
 #: Test hook: the process kills itself (SIGKILL) after appending this many cells.
 KILL_HOOK = "CRN_TEST_KILL_AFTER_CELLS"
-
-
-def _number(text: str, what: str) -> float:
-    try:
-        return float(text)
-    except ValueError as err:
-        raise CRNError(f"{what}: cannot read {text!r} as a number") from err
-
-
-def parse_int_list(text: str, what: str) -> list[int]:
-    """``"100,1e3,10000"`` -> ``[100, 1000, 10000]``; whole numbers only."""
-    out = []
-    for item in text.split(","):
-        value = _number(item.strip(), what)
-        if not value.is_integer():
-            raise CRNError(f"{what}: {item.strip()!r} is not a whole number")
-        out.append(int(value))
-    return out
-
-
-def parse_float_list(text: str, what: str) -> list[float]:
-    """``"0.001,0.01"`` -> ``[0.001, 0.01]``."""
-    return [_number(item.strip(), what) for item in text.split(",")]
 
 
 def result_json(model_name: str, result: RegimeMap) -> dict:

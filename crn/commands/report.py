@@ -64,13 +64,13 @@ def read_saved(folder) -> dict:
 
 
 def _floats(text, what):
-    from crn.commands.regimes import parse_float_list
+    from crn.commands.lists import parse_float_list
 
     return tuple(parse_float_list(text, what)) if text else ()
 
 
 def _ints(text, what):
-    from crn.commands.regimes import parse_int_list
+    from crn.commands.lists import parse_int_list
 
     return tuple(parse_int_list(text, what)) if text else ()
 
