@@ -77,7 +77,7 @@ def compare(model, sets, runs, until, engine, workers, cluster, max_memory, forc
 
 
 def _json(loaded, result) -> dict:
-    from crn.commands.ode import mean_field_json
+    from crn.io.ode_files import mean_field_json
     from crn.solvers.fixed_points import find_fixed_points
 
     # the sampled window (the figure's curves) with the consensus the disagreement uses
