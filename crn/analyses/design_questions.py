@@ -304,7 +304,8 @@ def implementation_copies(formal_cells: Callable[[int, int], Network], scheme: s
                           volume_liters: float | None = None, gap_fraction=None, gap=None,
                           risk: float = 0.01, deadline=None, n_max: int = 10**7,
                           method: str = "auto", runs_max: int = 4000, rng=None,
-                          workers: int = 1, with_formal: bool = True) -> ImplementationCopies:
+                          workers: int = 1, with_formal: bool = True,
+                          full_network: bool = False) -> ImplementationCopies:
     """Smallest population meeting the risk on the implementation, beside the formal answer.
 
     Parameters
@@ -319,6 +320,9 @@ def implementation_copies(formal_cells: Callable[[int, int], Network], scheme: s
         or a callable of n).
     with_formal : bool
         Also search the formal network (to compare); otherwise ``formal`` is None.
+    full_network : bool
+        Run the implementation's stochastic runs on its full network, not on its
+        reduced model (:class:`crn.analyses.implemented.ImplementedCells`).
 
     Returns
     -------
@@ -328,7 +332,8 @@ def implementation_copies(formal_cells: Callable[[int, int], Network], scheme: s
 
     common = dict(gap_fraction=gap_fraction, gap=gap, risk=risk, deadline=deadline, n_max=n_max,
                   method=method, runs_max=runs_max, rng=rng, workers=workers)
-    cells = ImplementedCells(formal_cells, scheme, params, volume_liters)
+    cells = ImplementedCells(formal_cells, scheme, params, volume_liters,
+                             full_network=full_network)
     formal = smallest_n(formal_cells, **common) if with_formal else None
     implemented = smallest_n(cells, **common)
     extra = slowdown = None

@@ -28,6 +28,7 @@ from crn.commands.options import (
     set_option,
     to_jsonable,
 )
+from crn.commands.stochastic_model import full_network_option, stochastic_model_text
 from crn.core.errors import CRNError
 from crn.io.atomic import save_figure, write_atomic
 from crn.io.regime_tables import table_csv
@@ -136,13 +137,14 @@ def _fmt(value, spec=".3g"):
 @json_option
 @implement_option
 @dna_options
+@full_network_option
 @click.option("--leak-tolerance", "with_leak_tolerance", is_flag=True,
               help="With --implement: for each cell, the largest leak rate constant at which "
                    "it stays ok with the correct decision (many more runs).")
 def regimes(model, sets, n_list, gap_list, fraction_list, risk, until, runs_max, time_factor,
             method, plot_file, csv_file, out_dir, resume, workers, cluster, max_memory, force,
             seed, as_json, implement, fuel, max_rate, toehold, leak, rate, concentration,
-            with_leak_tolerance):
+            with_leak_tolerance, full_network):
     """Sweep MODEL over populations n and gaps: for each cell, the ODE's decision, the
     probability that a stochastic run disagrees with it (95% interval, simultaneous over the
     sequential looks (Clopper-Pearson, Bonferroni)), the flag, the times;
@@ -157,6 +159,8 @@ def regimes(model, sets, n_list, gap_list, fraction_list, risk, until, runs_max,
                             leak=leak, rate=rate, concentration=concentration)
     if with_leak_tolerance and settings is None:
         raise CRNError("--leak-tolerance needs --implement SCHEME")
+    if full_network and settings is None:
+        raise CRNError("--full-network needs --implement SCHEME")
     if (gap_list is None) == (fraction_list is None):
         raise CRNError("give exactly one of --gap and --gap-fraction")
     if workers and cluster:
@@ -174,7 +178,7 @@ def regimes(model, sets, n_list, gap_list, fraction_list, risk, until, runs_max,
         from crn.analyses.implemented import ImplementedCells
         from crn.commands.implementing import implement_network
 
-        networks = ImplementedCells(networks, *settings)
+        networks = ImplementedCells(networks, *settings, full_network=full_network)
         implement_network(model_obj.network, settings)  # parameter errors before any cell
     for n, g in skipped:
         click.echo(f"crn: skipping n={n}, gap={g}: (n + gap) / 2 is not whole", err=True)
@@ -227,7 +231,10 @@ def regimes(model, sets, n_list, gap_list, fraction_list, risk, until, runs_max,
     payload = result_json(model_obj.name, result)
     tolerances = None
     if settings is not None:
-        payload["implementation"] = {"scheme": settings[0], "parameters": settings[1].as_dict()}
+        payload["implementation"] = {"scheme": settings[0], "parameters": settings[1].as_dict(),
+                                     "stochastic_model": networks.stochastic_models(
+                                         [(c.n, c.gap) for c in result.cells
+                                          if c.method == "stochastic"])}
         if with_leak_tolerance:
             tolerances = _leak_tolerances(formal_networks, result, settings, risk=risk,
                                           runs_max=runs_max, until=until, entropy=entropy,
@@ -249,6 +256,7 @@ def regimes(model, sets, n_list, gap_list, fraction_list, risk, until, runs_max,
         click.echo(f"(cells run on the {settings[0]} DNA implementation; times in the formal "
                    f"network's unit = {settings[1].seconds_per_time_unit:.4g} s at the given "
                    f"concentration)")
+        click.echo(stochastic_model_text(payload["implementation"]["stochastic_model"]))
     if tolerances is not None:
         click.echo(_tolerance_text(tolerances, risk))
 

@@ -6,5 +6,6 @@ __all__ = ["ENGINES"]
 ENGINES = {
     "direct": ("crn.engines.direct", "run_direct"),
     "batched": ("crn.engines.batched", "run_batched"),
+    "reduced": ("crn.engines.reduced", "run_reduced"),
     "reference": ("crn.reference", "run_reference"),
 }

@@ -193,6 +193,8 @@ def choose_engine(net: Network, engine: str = "auto") -> str:
         raise CRNError(f"unknown engine {engine!r}; choose auto, {', '.join(ENGINES)}")
     if engine != "auto":
         return engine
+    if getattr(net, "reduction", None) is not None:
+        return "reduced"  # a DNA implementation carrying its reduced model (crn.dna.reduced)
     if net.from_protocol and net.population >= AUTO_BATCHED_FROM and _available("batched"):
         return "batched"
     return "direct"
