@@ -22,7 +22,7 @@ from crn.core.outcome import RunOutcome
 from crn.engines.base import Trajectory
 from crn.engines.direct import _check_times, _label_now
 
-__all__ = ["run_reduced"]
+__all__ = ["run_reduced", "reduced_propensities"]
 
 _STATUS = ("horizon", "silent", "consensus")
 _SWEEPS = 3  # fixed-point sweeps of the quasi-steady state (the corrections are O(1/excess))
@@ -202,6 +202,37 @@ def _kernel(kind, ref, group, used, cx_signal, cx_gate, cx_buffer, cx_set, cx_fo
         k += 1
     last = _label_now(present, unlabeled, n_labels)
     return counts, first_label, first_time, last, events, end_time, status
+
+
+def reduced_propensities(net, counts) -> np.ndarray:
+    """Propensities of the reduced model's slow reactions at a state.
+
+    Parameters
+    ----------
+    net : crn.dna.reduced.ReducedNetwork
+    counts : array_like of int, shape (n_species,)
+        Counts of the full network's species (complexes are folded first).
+
+    Returns
+    -------
+    ndarray of float64, shape (n_slow,)
+        In the order of ``net.reduction.slow`` (indices of the full network's reactions).
+    """
+    red = getattr(net, "reduction", None)
+    if red is None:
+        raise TypeError("`net` must carry a reduced model (crn.dna.reduced.reduced_network)")
+    x = red.fold(counts).astype(np.float64)
+    n_cx = red.n_complexes
+    share, bound = np.zeros(n_cx), np.zeros(n_cx)
+    free = np.ones(red.set_signal.shape[0])
+    frac, eff = np.ones(x.shape[0]), np.zeros(x.shape[0])
+    _steady(x, red.kind, red.ref, red.cx_signal, red.cx_gate, red.cx_buffer, red.cx_set,
+            red.cx_forward, red.cx_back, red.set_signal, red.set_ptr, red.set_cx, red.use_ptr,
+            red.use_rate, red.use_partner, share, free, bound)
+    _effective(x, red.kind, red.ref, red.cx_set, red.used, share, free, bound, frac, eff)
+    return np.array([_propensity(r, x, red.reactant_species, red.reactant_counts, red.constants,
+                                 red.kind, red.group, red.set_signal, frac, eff)
+                     for r in range(red.constants.shape[0])])
 
 
 def run_reduced(net, *, until: float, times=None, rng=None,
