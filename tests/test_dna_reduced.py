@@ -169,3 +169,19 @@ def test_full_network_without_implement_is_an_error(capsys):
 def _out(capsys, args):
     assert main(args) == 0
     return capsys.readouterr().out
+
+
+@pytest.mark.parametrize("weights,total", [([1, 2, 1, 3], 40), ([2, 2, 1], 301), ([1] * 6, 25),
+                                          ([1, 2] * 20, 3000)])
+def test_configuration_bound_of_a_conservation_law_covers_the_exact_count(weights, total):
+    """derived: the exact number of solutions of weights @ x = total (dynamic programming in
+    integers) lies within one part in a million below the bound the regime map reads
+    (computed in floating point, so an implementation's fuel totals take seconds at most)."""
+    from crn.solvers.configurations import _knapsack_bound
+
+    ways = [1] + [0] * total
+    for w in weights:
+        for c in range(w, total + 1):
+            ways[c] += ways[c - w]
+    bound = _knapsack_bound(np.array(weights), total)
+    assert ways[total] <= bound <= ways[total] * (1 + 2e-6) + 1
