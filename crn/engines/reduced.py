@@ -29,7 +29,7 @@ _SWEEPS = 3  # fixed-point sweeps of the quasi-steady state (the corrections are
 _KIND_SIGNAL, _KIND_COMPLEX, _KIND_GATE, _KIND_BUFFER = 1, 2, 3, 4
 
 
-@numba.njit(cache=True)
+@numba.njit(cache=True, inline="always")
 def _steady(x, kind, ref, cx_signal, cx_gate, cx_buffer, cx_set, cx_forward, cx_back,
             set_signal, set_ptr, set_cx, use_ptr, use_rate, use_partner, share, free, bound):
     """Quasi-stationary share of each complex and free fraction of each signal, in place."""
@@ -65,7 +65,7 @@ def _steady(x, kind, ref, cx_signal, cx_gate, cx_buffer, cx_set, cx_forward, cx_
             bound[j] = share[j] * free[cx_set[j]] * x[cx_signal[j]]
 
 
-@numba.njit(cache=True)
+@numba.njit(cache=True, inline="always")
 def _effective(x, kind, ref, cx_set, used, share, free, bound, frac, eff):
     """Mean count and share of its signal's total of every species a slow reaction uses."""
     for i in range(used.shape[0]):
@@ -87,7 +87,7 @@ def _effective(x, kind, ref, cx_set, used, share, free, bound, frac, eff):
             eff[s] = x[s]
 
 
-@numba.njit(cache=True)
+@numba.njit(cache=True, inline="always")
 def _propensity(r, x, rs, rc, c, kind, group, set_signal, frac, eff):
     """Mass-action propensity of slow reaction r averaged over the quasi-steady state.
 
