@@ -72,6 +72,42 @@ KIND_PLAIN, KIND_SIGNAL, KIND_COMPLEX, KIND_GATE, KIND_BUFFER = range(5)
 
 
 @dataclass(frozen=True, eq=False)
+class ProtocolForm:
+    """The reduced model as two-in two-out signal reactions, for large populations.
+
+    Available when every formal reaction is ``X1 + X2 -> P1 + P2`` (a protocol's
+    transitions), made of a first step (complex j meets its second reactant)
+    and an output step (its output complex meets its translator), and there is
+    no leak. With the output step taken as immediate (it lasts ``1 / (q_max
+    C_max)``, far below the formal time scale at the validated fuel excess),
+    formal reaction f fires at ``rates[f] / v * T_X1 * T_X2`` with ``rates[f] =
+    v * c_s * frac(X2) * frac(H_j)`` from the quasi-steady state, and moves the
+    non-signal species by ``change[f]``.
+
+    Attributes
+    ----------
+    signals : ndarray of int64, shape (n_signals,)
+        Species indices of the signals (the formal species).
+    reactants, products : ndarray of int64, shape (n_formal, 2)
+        Signal positions (into ``signals``) of each formal reaction's sides.
+    complex, partner : ndarray of int64, shape (n_formal,)
+        The first step's complex index and its second reactant's species.
+    first_step : ndarray of float64, shape (n_formal,)
+        Propensity constant c_s of the first step.
+    change : ndarray of int64, shape (n_formal, n_species)
+        Net change of the folded state's non-signal species per firing.
+    """
+
+    signals: np.ndarray
+    reactants: np.ndarray
+    products: np.ndarray
+    complex: np.ndarray
+    partner: np.ndarray
+    first_step: np.ndarray
+    change: np.ndarray
+
+
+@dataclass(frozen=True, eq=False)
 class Reduction:
     """The arrays of a reduced model (see the module notes), in the full network's species.
 
@@ -124,6 +160,7 @@ class Reduction:
     change_species: np.ndarray
     change_delta: np.ndarray
     slow: np.ndarray
+    protocol: ProtocolForm | None = None
 
     @property
     def n_complexes(self) -> int:
@@ -312,6 +349,8 @@ def reduction_of(impl) -> Reduction | str:
         return np.ascontiguousarray(values, dtype=np.float64)
 
     slow_index = ints(slow)
+    protocol = _protocol_form(impl, slow, kind, ref, cx["signal"], change_ptr, change_species,
+                              change_delta, constants)
     return Reduction(
         kind=kind, ref=ref, cx_signal=ints(cx["signal"]), cx_gate=ints(cx["gate"]),
         cx_buffer=ints(cx["buffer"]), cx_species=ints(cx["species"]), cx_set=ints(cx["set"]),
@@ -322,7 +361,76 @@ def reduction_of(impl) -> Reduction | str:
         reactant_counts=np.ascontiguousarray(net.reactant_counts[slow_index]),
         constants=floats(constants), change_ptr=ints(change_ptr),
         change_species=ints(change_species), change_delta=ints(change_delta),
-        slow=slow_index)
+        slow=slow_index, protocol=protocol)
+
+
+def _protocol_form(impl, slow, kind, ref, cx_signal, change_ptr, change_species, change_delta,
+                   constants) -> ProtocolForm | None:
+    """The :class:`ProtocolForm` of a reduced model, or None when it has none."""
+    net = impl.network
+    roles = impl.roles
+    if impl.leak_reactions:
+        return None
+    reactions = list(net.reactions())
+    signals = [i for i, s in enumerate(net.species) if roles[s] == "signal"]
+    position = {s: k for k, s in enumerate(signals)}
+    consumer: dict[int, int] = {}  # output species -> the slow reaction (position) using it
+    for k, i in enumerate(slow):
+        for s in reactions[i].reactants:
+            if roles[s] == "intermediate" and kind[net.index[s]] == KIND_PLAIN:
+                consumer[net.index[s]] = k
+    rows = {"reactants": [], "products": [], "complex": [], "partner": [], "first": [],
+            "change": []}
+    used_second = set()
+    for k, i in enumerate(slow):
+        r = reactions[i]
+        held = [net.index[s] for s in r.reactants if kind[net.index[s]] == KIND_COMPLEX]
+        if not held:
+            continue
+        if r.order != 2:
+            return None
+        j = int(ref[held[0]])
+        partner = next(net.index[s] for s in r.reactants if net.index[s] != held[0])
+        outs = [net.index[s] for s in r.products if net.index[s] in consumer]
+        if kind[partner] != KIND_SIGNAL and roles[net.species[partner]] != "signal":
+            return None
+        if len(outs) != 1:
+            return None
+        second = consumer[outs[0]]
+        used_second.add(second)
+        change = np.zeros(net.n_species, dtype=np.int64)
+        for step in (k, second):
+            for a in range(change_ptr[step], change_ptr[step + 1]):
+                change[change_species[a]] += change_delta[a]
+        first_signal = int(cx_signal[j])
+        sides = ([first_signal, partner], [])
+        for s in signals:
+            d = int(change[s])
+            if s in sides[0]:
+                d += sides[0].count(s)
+            sides[1].extend([s] * max(d, 0))
+            if d < 0:
+                return None
+            change[s] = 0
+        if len(sides[1]) != 2:
+            return None
+        rows["reactants"].append([position[s] for s in sides[0]])
+        rows["products"].append([position[s] for s in sides[1]])
+        rows["complex"].append(j)
+        rows["partner"].append(partner)
+        rows["first"].append(constants[k])
+        rows["change"].append(change)
+    if not rows["complex"] or len(used_second) != len(consumer):
+        return None
+    return ProtocolForm(
+        signals=np.array(signals, dtype=np.int64),
+        reactants=np.array(rows["reactants"], dtype=np.int64),
+        products=np.array(rows["products"], dtype=np.int64),
+        complex=np.array(rows["complex"], dtype=np.int64),
+        partner=np.array(rows["partner"], dtype=np.int64),
+        first_step=np.array(rows["first"], dtype=np.float64),
+        change=np.array(rows["change"], dtype=np.int64))
+
 
 
 def reduced_network(impl) -> ReducedNetwork | str:

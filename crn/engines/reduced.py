@@ -286,6 +286,12 @@ def run_reduced(net, *, until: float, times=None, rng=None,
     red = getattr(net, "reduction", None)
     if red is None:
         raise TypeError("`net` must carry a reduced model (crn.dna.reduced.reduced_network)")
+    if red.protocol is not None:
+        from crn.engines.segmented import SEGMENTED_FROM, run_segmented
+
+        if int(np.asarray(net.initial)[red.protocol.signals].sum()) >= SEGMENTED_FROM:
+            return run_segmented(net, until=until, times=times, rng=rng,
+                                 stop_at_consensus=stop_at_consensus)
     until, times = _check_times(until, times)
     rng = np.random.default_rng(rng)
     x0 = red.fold(net.initial)
