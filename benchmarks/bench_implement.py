@@ -46,6 +46,8 @@ def main() -> None:
     parser.add_argument("--rate", default="1e5/M/s")
     parser.add_argument("--concentration", default="10nM")
     parser.add_argument("--workers", type=int, default=1)
+    parser.add_argument("--full-network", action="store_true",
+                        help="run the implementation's stochastic cells on the full network")
     args = parser.parse_args()
     ns = [int(float(x)) for x in args.n.split(",")]
     fractions = [float(x) for x in args.fractions.split(",")]
@@ -54,7 +56,7 @@ def main() -> None:
     params = DnaParameters(rate=parse_rate_constant(args.rate),
                            concentration=parse_concentration(args.concentration),
                            fuel=None if args.fuel is None else parse_concentration(args.fuel))
-    cells = ImplementedCells(formal, "ssw", params)
+    cells = ImplementedCells(formal, "ssw", params, full_network=args.full_network)
     impl = cells.implementation(ns[0], ns[0] % 2 or 2)
     print(f"regime map: approximate majority, n = {ns}, gap fractions {fractions}, "
           f"runs_max {args.runs_max}, {args.workers} worker(s)")
@@ -70,6 +72,10 @@ def main() -> None:
     print(f"implementation map: {t_impl:9.1f} s "
           f"({sum(c.method == 'exact' for c in impl_map.cells)} exact cells, "
           f"{sum(c.runs for c in impl_map.cells)} runs)")
+    models = cells.stochastic_models([(c.n, c.gap) for c in impl_map.cells
+                                      if c.method == "stochastic"])
+    print(f"stochastic cells on the reduced model: {len(models['reduced'])}, on the full "
+          f"network: {len(models['full'])}")
     print(f"ratio implementation / formal: {t_impl / t_formal:.1f}   (goal <= 3)")
     same = sum(a.flag == b.flag for a, b in zip(formal_map.cells, impl_map.cells, strict=True))
     print(f"cells with the same flag: {same} of {len(impl_map.cells)}")
