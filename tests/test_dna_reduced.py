@@ -232,3 +232,8 @@ def test_large_populations_run_in_segments_and_leak_keeps_the_direct_runs(monkey
     fuel = {s: leaky.index[s] for s in impl.fuel}
     used = run_reduced(leaky, until=5.0, rng=1).counts[-1]
     assert any(used[i] < leaky.initial[i] for i in fuel.values())
+
+
+def test_engine_reduced_on_a_network_without_a_reduced_model_is_an_error(capsys):
+    assert main(["ssa", AM, "--set", "n=20", "--engine", "reduced", "--runs", "2"]) == 2
+    assert "engine reduced runs the reduced model" in capsys.readouterr().err
