@@ -42,7 +42,7 @@ DRIFT_PER_SEGMENT = 0.01
 SEGMENTED_FROM = 5_000
 _FIRST_SEGMENT = 0.05  # formal time units, before the drift is known
 _SHORTEST = 1e-3
-_LONGEST = 2.0
+_LONGEST = 10.0
 
 
 def _template(net, form) -> Network:
