@@ -40,9 +40,9 @@ least the fuel concentration, and is consumed at most at ``q_max`` times the
 signal concentration, so the separation is at least the fuel excess
 ``C_max / C`` at every time of a run (the buffers only grow). The reduced
 model is used when every fuel species starts at least :data:`MIN_FUEL_EXCESS`
-times the signal concentration C (:func:`fuel_excess`; the lowest excess at which it was validated
-against the full network, ``tests/test_dna_reduced.py``); otherwise the full
-network runs and the map says so. It also needs each complex to report its
+times the signal concentration C (:func:`fuel_excess`; the lowest excess at
+which it was validated against the full network, ``tests/test_dna_reduced.py``);
+otherwise the full network runs and the map says so. It also needs each complex to report its
 signal's label (the decision rule reads a bound signal as the signal), which
 :func:`reduction_of` checks.
 
@@ -60,12 +60,12 @@ import numpy as np
 
 from crn.core.network import Network
 
-__all__ = ["Reduction", "ReducedNetwork", "reduction_of", "reduced_network",
+__all__ = ["Reduction", "ProtocolForm", "ReducedNetwork", "reduction_of", "reduced_network",
            "MIN_FUEL_EXCESS", "fuel_excess", "KIND_PLAIN", "KIND_SIGNAL", "KIND_COMPLEX",
            "KIND_GATE", "KIND_BUFFER"]
 
-#: Least fuel excess (every fuel species' initial count over the total signal count) at
-#: which the reduced model stands in for the full network; validated at 10 and 100.
+#: Least fuel excess (every fuel species' concentration over the signal concentration C)
+#: at which the reduced model stands in for the full network; validated at 10 and 100.
 MIN_FUEL_EXCESS = 10.0
 
 KIND_PLAIN, KIND_SIGNAL, KIND_COMPLEX, KIND_GATE, KIND_BUFFER = range(5)
