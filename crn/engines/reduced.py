@@ -19,8 +19,8 @@ import numba
 import numpy as np
 
 from crn.core.outcome import RunOutcome
-from crn.engines.base import Trajectory
-from crn.engines.direct import _check_times, _label_now
+from crn.engines.base import Trajectory, check_horizon
+from crn.engines.direct import _label_now
 
 __all__ = ["run_reduced", "reduced_propensities"]
 
@@ -283,6 +283,7 @@ def run_reduced(net, *, until: float, times=None, rng=None,
     >>> run.status
     'consensus'
     """
+    until, times = check_horizon(until, times)
     red = getattr(net, "reduction", None)
     if red is None:
         raise TypeError("`net` must carry a reduced model (crn.dna.reduced.reduced_network)")
@@ -292,7 +293,6 @@ def run_reduced(net, *, until: float, times=None, rng=None,
         if int(np.asarray(net.initial)[red.protocol.signals].sum()) >= SEGMENTED_FROM:
             return run_segmented(net, until=until, times=times, rng=rng,
                                  stop_at_consensus=stop_at_consensus)
-    until, times = _check_times(until, times)
     rng = np.random.default_rng(rng)
     x0 = red.fold(net.initial)
     counts, first, first_time, last, events, end_time, status = _kernel(

@@ -29,8 +29,7 @@ import numpy as np
 
 from crn.core.network import Network, Reaction
 from crn.core.outcome import RunOutcome
-from crn.engines.base import Trajectory
-from crn.engines.direct import _check_times
+from crn.engines.base import Trajectory, check_horizon
 
 __all__ = ["run_segmented", "DRIFT_PER_SEGMENT", "SEGMENTED_FROM"]
 
@@ -131,7 +130,7 @@ def run_segmented(net, *, until: float, times=None, rng=None,
     if red is None or red.protocol is None:
         raise TypeError("`net` must carry a reduced model with a protocol form")
     form = red.protocol
-    until, times = _check_times(until, times)
+    until, times = check_horizon(until, times)
     rng = np.random.default_rng(rng)
     template = _prepared(net)
     volume = float(net.volume)
