@@ -203,7 +203,9 @@ class Diagnosis:
         minority signal is made faster than it is removed, and the leak burns
         fuel as it goes), ``too slow`` (no decision by the deadline with fuel
         left and no leak to blame) or ``formal fails`` (the formal network
-        itself does not decide correctly by the deadline).
+        itself does not decide correctly by the deadline) or ``too few runs``
+        (the mean field decides, but ``runs_max`` runs without a single wrong
+        one still leave the 95% upper bound of P(wrong) above the risk).
     formal_time, time : float or None
         Mean-field consensus time of the formal network and of the
         implementation (formal time units).
@@ -215,6 +217,13 @@ class Diagnosis:
     time_without_leak : float or None
         Consensus time of the implementation with the leak set to 0 (only
         computed when the leak is positive and the implementation fails).
+    runs_max : int or None
+        ``too few runs``: the runs allowed per population.
+    risk_floor : float or None
+        ``too few runs``: the smallest 95% upper bound of P(wrong) that
+        ``runs_max`` runs can give (all of them correct).
+    runs_needed : int or None
+        ``too few runs``: the fewest runs whose floor lies below the risk.
     """
 
     reason: str
@@ -224,9 +233,17 @@ class Diagnosis:
     correct: str | None
     fuel_left: dict
     time_without_leak: float | None = None
+    runs_max: int | None = None
+    risk_floor: float | None = None
+    runs_needed: int | None = None
 
     def text(self) -> str:
         """One sentence for the designer."""
+        if self.reason == "too few runs":
+            return (f"too few runs: its mean field decides {self.label} at {self.time:.4g}, "
+                    f"but {self.runs_max:,} runs without a wrong one bound P(wrong) only "
+                    f"below {self.risk_floor:.3g} (95%, simultaneous over the looks), not "
+                    f"below the risk: raise --runs-max to at least {self.runs_needed:,}")
         if self.reason == "decides":
             return (f"its mean field decides {self.label} at {self.time:.4g}, so the risk stays "
                     "above the target through stochastic error alone up to the largest n "

@@ -136,6 +136,11 @@ class DnaParameters:
         Rate constant (/M/s) of the fuel-fuel reaction that releases a formal
         reaction's outputs without its inputs; 0 (default) for no leak.
         Typical magnitudes: :data:`LEAK_TYPICAL`.
+    fuel_check : bool, default True
+        Refuse fuel at or below the signal concentration. False for one
+        droplet of a Poisson-loaded sample, whose own loading may exceed the
+        fuel the sample was designed with (its gates then run out: a wrong or
+        late decision, not an error).
 
     Raises
     ------
@@ -149,6 +154,7 @@ class DnaParameters:
     max_rate: float | None = None
     toehold: int | None = None
     leak: float = 0.0
+    fuel_check: bool = True
 
     def __post_init__(self):
         _positive(self.rate, "rate", "/M/s")
@@ -166,7 +172,7 @@ class DnaParameters:
                 or leak < 0:
             raise DnaParameterError(f"leak must be a finite rate constant >= 0 in /M/s, "
                                     f"got {leak!r}", "leak")
-        if self.fuel_molar <= self.concentration:
+        if self.fuel_check and self.fuel_molar <= self.concentration:
             raise DnaParameterError(
                 f"fuel ({self.fuel_molar:.3g} M) must exceed the signal concentration "
                 f"({self.concentration:.3g} M): the gates would run out before the signals "
