@@ -19,10 +19,11 @@ join gate followed by a fork gate::
                                                         for a one-product reaction)
 
 The steps inside the join and the fork, their helper strands and the
-reversibility of each step are quoted from memory of the paper's figures. Released strands that the two-domain paper leaves to
-accumulate are here supplied like every fuel for the first step: R1 starts at
-C_max, so the first step is buffered as in the 2010 construction (Soloveichik,
-Seelig & Winfree, PNAS 107:5393) and J1 sits at (q / q_max) X1; the same
+reversibility of each step are quoted from memory of the paper's figures.
+Released strands that the two-domain paper leaves to accumulate are here
+supplied like every fuel for the first step: R1 starts at C_max, so the first
+step is buffered as in the 2010 construction (Soloveichik, Seelig & Winfree,
+PNAS 107:5393) and J1 sits at (q / q_max) X1; the same
 buffering modules then make every species' sequestration equal. With J, R1,
 HJ, F and HF at C_max the output is made at ``q X1 X2 J / (R1 + X2)`` -> ``k X1 X2``.
 
