@@ -187,7 +187,8 @@ def dna_section(out, net, *, n: int, gap: int, rate: float, deadline_seconds: fl
             echo(f"    leak {leak:g} /M/s: n = {got.estimate:,} ({_n(got.low)}..{_n(got.high)})"
                  + (f", median decision {format_time(got.median_time * unit)}"
                     if got.median_time else "")
-                 + ("" if answer.formal is None else f": {answer.verdict}"))
+                 + (f": {answer.verdict}" if answer.formal is not None else
+                    _against_no_leak(copies)))
         copies.append(row)
     echo(f"  figure: {Path(out) / 'dna_implementation.png'}")
     echo("  DNA numbers are model predictions of an idealised construction (no strand "
@@ -216,3 +217,9 @@ def dna_section(out, net, *, n: int, gap: int, rate: float, deadline_seconds: fl
 
 def _n(value):
     return "-" if value is None else f"{value:,}"
+
+
+def _against_no_leak(rows) -> str:
+    """`` (n = 80 without leak)``, from the leak-free row of the copies table, or nothing."""
+    base = rows[0]["copies"] if rows and rows[0]["leak_per_molar_second"] == 0 else None
+    return "" if base is None else f" (n = {base:,} without leak)"
