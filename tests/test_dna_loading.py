@@ -7,12 +7,14 @@ import pytest
 from crn.analyses.design_questions import (
     LoadedCells,
     implementation_copies,
+    leak_tolerance,
     risk_floor,
     runs_for_risk,
 )
 from crn.analyses.implemented import ImplementedCells
 from crn.analyses.probes import InitialSplit
 from crn.cli import main
+from crn.core.errors import CRNError
 from crn.core.loading import reversal_probability
 from crn.dna import DnaParameters
 from crn.io.models import load_model
@@ -106,3 +108,12 @@ def test_too_few_runs_is_the_reason_when_the_budget_cannot_certify_the_risk():
     assert d.risk_floor == pytest.approx(risk_floor(50))
     assert d.runs_needed == runs_for_risk(0.05)
     assert "--runs-max" in d.text()
+
+
+def test_leak_tolerance_refuses_a_budget_that_cannot_certify_the_risk():
+    """400 runs cannot certify 1% (floor 0.0126, test above): every leak level, leak 0
+    included, would fail, so the question is refused before any run, naming the budget."""
+    with pytest.raises(CRNError, match="runs_max = 400 .* at least 5"):
+        leak_tolerance(InitialSplit(_droplet()), 60, 30, "ssw",
+                       DnaParameters(rate=1e6, concentration=C, fuel=1e-7), risk=0.01,
+                       runs_max=400, rng=1)

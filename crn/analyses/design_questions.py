@@ -216,6 +216,11 @@ def leak_tolerance(formal_cells: Callable[[int, int], Network], n: int, gap: int
     Returns
     -------
     LeakAnswer
+
+    Raises
+    ------
+    CRNError
+        When ``runs_max`` runs cannot certify ``risk`` at all (:func:`risk_floor`).
     """
     import numpy as np
 
@@ -225,6 +230,11 @@ def leak_tolerance(formal_cells: Callable[[int, int], Network], n: int, gap: int
 
     if not 0 < leak_start < leak_max:
         raise CRNError(f"need 0 < leak_start < leak_max, got {leak_start}, {leak_max}")
+    floor = risk_floor(runs_max)
+    if floor >= risk:
+        raise CRNError(f"runs_max = {runs_max} runs cannot certify a risk of {risk:g} (with no "
+                       f"wrong run the 95% upper bound of P(wrong) is {floor:.3g}): every leak "
+                       f"level would fail; use at least {runs_for_risk(risk)} runs")
     seq = rng if isinstance(rng, np.random.SeedSequence) else np.random.SeedSequence(rng)
     formal = formal_cells(int(n), int(gap))
     truth = correct_label(formal)
