@@ -43,12 +43,13 @@ def test_poisson_loading_never_needs_fewer_copies_than_fixed(capsys):
     wrongly about half the time or more, and the kinetics add about 0.09 (the fixed-loading
     error at n = 20 measured here), so P(wrong) ~ 0.15 there and its 95% upper bound falls
     below 0.1 with probability well under 1% at 100 runs: the Poisson answer is at least
-    40, and fixed loading can only answer 20 or more."""
+    40. Fixed loading passes at 40 (P(wrong) about 0.02 there, so its 95% upper bound lies
+    below 0.1 in about 95% of seeds; here it does), so its answer is 20 or 40."""
     fixed, poisson = _copies(capsys, "fixed"), _copies(capsys, "poisson")
     assert fixed["loading"] == "fixed" and poisson["loading"] == "poisson"
     n_fixed, n_poisson = fixed["n"]["estimate"], poisson["n"]["estimate"]
     assert n_fixed is not None and n_poisson is not None
-    assert n_poisson >= n_fixed
+    assert n_fixed <= 40 <= n_poisson
     assert poisson["risk_parts"] is not None  # loading and kinetics shares of P(wrong)
     at_20 = next(p for p in poisson["probes"] if p["n"] == 20)
     assert at_20["reversal"] == pytest.approx(reversal_probability(20, 6), rel=1e-12)
