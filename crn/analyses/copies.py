@@ -51,6 +51,7 @@ from crn.core.loading import (
 from crn.core.network import Network
 from crn.core.outcome import correct_label
 from crn.core.units import concentration_for, to_parallel_time, to_seconds, volume_for
+from crn.runtime.seeds import root_seed
 
 __all__ = ["Probe", "CopiesResult", "Prober", "Lattice", "lattice", "smallest_n",
            "physical_outputs", "physical_answer", "p_wrong_summary", "risk_parts",
@@ -214,7 +215,7 @@ class Prober:
         self.loading = loading
         self.scale_deadline = bool(scale_deadline)
         self.loading_exact_max = int(loading_exact_max)
-        seq = rng if isinstance(rng, np.random.SeedSequence) else np.random.SeedSequence(rng)
+        seq = root_seed(rng)
         self.entropy = int(seq.entropy)
         self._stream = seq if seq.spawn_key else self.entropy
         self.networks = networks

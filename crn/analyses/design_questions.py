@@ -222,11 +222,11 @@ def leak_tolerance(formal_cells: Callable[[int, int], Network], n: int, gap: int
     CRNError
         When ``runs_max`` runs cannot certify ``risk`` at all (:func:`risk_floor`).
     """
-    import numpy as np
 
     from crn.analyses.probes import ode_decision
     from crn.analyses.regimes import evaluate_cell
     from crn.core.outcome import correct_label
+    from crn.runtime.seeds import root_seed
 
     if not 0 < leak_start < leak_max:
         raise CRNError(f"need 0 < leak_start < leak_max, got {leak_start}, {leak_max}")
@@ -235,7 +235,7 @@ def leak_tolerance(formal_cells: Callable[[int, int], Network], n: int, gap: int
         raise CRNError(f"runs_max = {runs_max} runs cannot certify a risk of {risk:g} (with no "
                        f"wrong run the 95% upper bound of P(wrong) is {floor:.3g}): every leak "
                        f"level would fail; use at least {runs_for_risk(risk)} runs")
-    seq = rng if isinstance(rng, np.random.SeedSequence) else np.random.SeedSequence(rng)
+    seq = root_seed(rng)
     formal = formal_cells(int(n), int(gap))
     truth = correct_label(formal)
     if until is None:
