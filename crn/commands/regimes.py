@@ -157,7 +157,7 @@ def regimes(model, sets, n_list, gap_list, fraction_list, risk, until, runs_max,
         parameters = regime_sweep_parameters(
             model_obj, sets=sets, n=ns, gap=gaps, gap_fraction=fractions, risk=risk,
             until=until, runs_max=runs_max, time_factor=time_factor, method=method,
-            implementation=settings)
+            implementation=settings, full_network=full_network)
     sweep = open_regime_sweep(out_dir, parameters, seed=seed, resume=resume)
     entropy = sweep.seed_entropy
     kill_after = os.environ.get(KILL_HOOK)
