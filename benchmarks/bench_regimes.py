@@ -40,6 +40,7 @@ random stream in the three-state batched kernel; each needs its own decision.
 from __future__ import annotations
 
 import argparse
+import json
 import time
 from pathlib import Path
 
@@ -50,6 +51,11 @@ from crn.io.models import load_model
 ROOT = Path(__file__).resolve().parent.parent
 NS = [100, 1_000, 10_000, 100_000, 1_000_000, 10_000_000]
 FRACTIONS = [0.0003, 0.001, 0.003, 0.01, 0.02, 0.05, 0.1, 0.3]
+#: The default map's table for seed 2026 as the code before the faster sequential test
+#: and engine choice computed it (Bonferroni over looks, direct method below 1e5 agents).
+RECORDED = Path(__file__).resolve().parent / "regimes_seed2026.json"
+#: What must not change: the classification of every cell.
+TABLE_KEYS = ("ode_label", "flag", "time_flag")
 
 
 def run(workers: int, ns, runs_max: int):
@@ -60,26 +66,64 @@ def run(workers: int, ns, runs_max: int):
     return time.perf_counter() - started, result
 
 
+def compare_with_recorded(result, path: Path = RECORDED) -> list[str]:
+    """Differences between this map's table and the recorded one (cells on both grids).
+
+    Each cell's ODE label, flag and time flag must match; the critical-gap exponent
+    must lie inside the recorded 95% bootstrap interval.
+    """
+    recorded = json.loads(path.read_text())
+    by_key = {(c["n"], c["gap"]): c for c in recorded["cells"]}
+    out = []
+    for cell in result.cells:
+        old = by_key.get((cell.n, cell.gap))
+        if old is None:
+            continue
+        for key in TABLE_KEYS:
+            if getattr(cell, key) != old[key]:
+                out.append(f"n={cell.n} gap={cell.gap}: {key} {old[key]} -> {getattr(cell, key)}")
+    b, old_b = result.boundary, recorded["boundary"]
+    if len(by_key) == len(result.cells) and old_b.get("low") is not None:
+        if b.exponent is None or not old_b["low"] <= b.exponent <= old_b["high"]:
+            out.append(f"exponent {b.exponent} outside the recorded interval "
+                       f"[{old_b['low']:.3f}, {old_b['high']:.3f}]")
+    return out
+
+
 def main() -> None:
     parser = argparse.ArgumentParser(description=__doc__.split("\n")[0])
     parser.add_argument("--runs-max", type=int, default=1000)
     parser.add_argument("--n", default=",".join(str(n) for n in NS))
+    parser.add_argument("--workers", default="1,2",
+                        help="worker counts to time, comma-separated (default 1,2)")
     args = parser.parse_args()
     ns = [int(float(x)) for x in args.n.split(",")]
+    counts = [int(w) for w in args.workers.split(",")]
     print(f"regime map: approximate majority, n = {ns}, {len(FRACTIONS)} relative gaps, "
           f"runs_max {args.runs_max}")
-    one, first = run(1, ns, args.runs_max)
-    print(f"1 worker : {one:8.1f} s")
-    two, second = run(2, ns, args.runs_max)
-    print(f"2 workers: {two:8.1f} s   (goal < 300 s)")
-    print(f"ratio 1 worker / 2 workers: {one / two:.2f}")
-    print("same numbers on 1 and 2 workers:", first.cells == second.cells)
-    b = second.boundary
+    results = {}
+    for w in counts:
+        seconds, result = run(w, ns, args.runs_max)
+        results[w] = (seconds, result)
+        print(f"{w} worker{'s' if w > 1 else ' '}: {seconds:8.1f} s" +
+              ("   (goal < 300 s)" if w == 2 else ""))
+    if len(counts) > 1:
+        first, last = results[counts[0]], results[counts[-1]]
+        print(f"ratio {counts[0]} / {counts[-1]} workers: {first[0] / last[0]:.2f}")
+        print(f"same numbers on {counts[0]} and {counts[-1]} workers:",
+              first[1].cells == last[1].cells)
+    result = results[counts[-1]][1]
+    b = result.boundary
     if b.exponent is not None:
         print(f"critical-gap exponent {b.exponent:.3f} [{b.low:.3f}, {b.high:.3f}]")
-    runs = sum(c.runs for c in second.cells)
-    print(f"{len(second.cells)} cells, {runs} stochastic runs, "
-          f"{sum(c.method == 'exact' for c in second.cells)} exact cells")
+    runs = sum(c.runs for c in result.cells)
+    print(f"{len(result.cells)} cells, {runs} stochastic runs, "
+          f"{sum(c.method == 'exact' for c in result.cells)} exact cells")
+    if args.runs_max == 1000:
+        differences = compare_with_recorded(result)
+        print("same table as recorded for seed 2026:", "yes" if not differences else "NO")
+        for line in differences:
+            print("  " + line)
 
 
 if __name__ == "__main__":

@@ -10,8 +10,10 @@ from crn.analyses.probes import (
     InitialSplit,
     gap_for_fraction,
     late_consensus_bound,
+    look_levels,
     look_schedule,
     sample_until_decided,
+    sided_interval,
     simultaneous_interval,
 )
 from crn.analyses.regimes import (
@@ -387,7 +389,8 @@ def test_sequential_stopping_keeps_false_misleading_rate():
     # 4 standard errors of a proportion 0.025: 4 sqrt(0.025 * 0.975 / 20000).
     reps, risk = 20_000, 0.01
     tolerance = 0.025 + 4 * math.sqrt(0.025 * 0.975 / reps)
-    for runs_max in (1000, 4000):  # the regimes and copies defaults
+    # the regimes default (ok side front-loaded) and the copies default (even split)
+    for runs_max, favour in ((1000, "below"), (4000, None)):
         rng = np.random.default_rng(seed(20240601 + runs_max))
         misleading = 0
         for _ in range(reps):
@@ -397,9 +400,83 @@ def test_sequential_stopping_keeps_false_misleading_rate():
                 state[0] += int(rng.binomial(size, risk))
                 state[1] += size
 
-            est = sample_until_decided(lambda state=state: tuple(state), draw, risk, runs_max)
+            est = sample_until_decided(lambda state=state: tuple(state), draw, risk, runs_max,
+                                       favour=favour)
             misleading += risk_flag(est.low, est.high, risk) == "misleading"
         assert misleading / reps <= tolerance, (runs_max, misleading / reps)
+
+
+def test_look_levels_spend_each_side_once():
+    # derived: zero disagreements in n runs decide ok when (1 - risk)^n is below the upper
+    # level; at risk 0.01, 0.99^400 = 0.0180 < 0.75 * 0.025 = 0.01875 <= 0.99^200 = 0.134, so
+    # the first look that can decide it is 400 of the schedule (50, 100, 200, 400, 800, 1000)
+    schedule = look_schedule(1000)
+    levels = look_levels(schedule, 0.01, favour="below")
+    assert sum(lo for lo, _ in levels) == pytest.approx(0.025, rel=1e-12)
+    assert sum(hi for _, hi in levels) == pytest.approx(0.025, rel=1e-12)
+    assert all(lo == pytest.approx(0.025 / 6) for lo, _ in levels)  # lower side: Bonferroni
+    his = [hi for _, hi in levels]
+    assert his[3] == pytest.approx(0.75 * 0.025 + 0.25 * 0.025 / 6)
+    assert all(h == pytest.approx(0.25 * 0.025 / 6) for i, h in enumerate(his) if i != 3)
+    # zero disagreements: ok at 400 runs now, where the even split needed 800
+    assert sided_interval(0, 400, *levels[3])[2] < 0.01 < simultaneous_interval(0, 400, 6)[2]
+    # mirror image for a threshold near 1 (the copy search's success probability)
+    mirror = look_levels(schedule, 0.99, favour="above")
+    assert [lo for lo, _ in mirror] == pytest.approx(his)
+    # no look can decide with no disagreement (risk 0.001 needs 3,700 runs): plain Bonferroni
+    assert look_levels(schedule, 0.001, favour="below") == look_levels(schedule, 0.001)
+    # equal levels are the two-sided Clopper-Pearson interval of simultaneous_interval
+    assert sided_interval(3, 400, 0.025 / 6, 0.025 / 6) == pytest.approx(
+        simultaneous_interval(3, 400, 6), rel=1e-9)
+
+
+@pytest.mark.parametrize("favour", [None, "below"])
+def test_sequential_stopping_keeps_false_ok_rate(favour):
+    # derived: `ok` at true p = risk needs the upper bound below p at some look; look k's bound
+    # falls below p with probability at most its one-sided level (exact binomial tail), and the
+    # levels of the K looks add up to 0.025 (look_levels), so by the union bound the rate is at
+    # most 0.025. Simulated with binomial counts (fixed seed, 20,000 repetitions); tolerance 4
+    # standard errors of a proportion 0.025.
+    reps, risk = 20_000, 0.01
+    tolerance = 0.025 + 4 * math.sqrt(0.025 * 0.975 / reps)
+    rng = np.random.default_rng(seed(20261204))
+    wrong_ok = 0
+    for _ in range(reps):
+        state = [0, 0]
+
+        def draw(_round, size, state=state):
+            state[0] += int(rng.binomial(size, risk))
+            state[1] += size
+
+        est = sample_until_decided(lambda state=state: tuple(state), draw, risk, 1000,
+                                   favour=favour)
+        wrong_ok += risk_flag(est.low, est.high, risk) == "ok"
+    assert wrong_ok / reps <= tolerance, wrong_ok / reps
+
+
+def test_an_ok_cell_stops_at_the_first_look_that_can_decide():
+    # a gap of 30% at n = 2000 leaves approximate majority (almost) never wrong: derived from
+    # Angluin, Aspnes, Eisenstat 2008 (error probability falls like exp(-c gap^2 / n)); with no
+    # disagreement the cell is ok at 400 runs (test_look_levels_spend_each_side_once)
+    nets = InitialSplit(load_model(AM).network)
+    cell = evaluate_cell(nets, 2000, 600, method="stochastic", entropy=seed(11))
+    assert (cell.flag, cell.wrong, cell.runs) == ("ok", 0, 400)
+
+
+def test_large_protocol_cells_run_batched(monkeypatch):
+    import crn.analyses.regimes as regimes
+
+    seen = []
+
+    def record(net, runs, until, rng, **kw):
+        seen.append(kw.get("engine"))
+        return ["X"] * runs, np.full(runs, 1.0)
+
+    monkeypatch.setattr(regimes, "stochastic_decisions", record)
+    nets = InitialSplit(load_model(AM).network)
+    evaluate_cell(nets, regimes.BATCHED_FROM, 100, method="stochastic", entropy=1, runs_max=50)
+    evaluate_cell(nets, 1000, 100, method="stochastic", entropy=1, runs_max=50)
+    assert seen == ["batched", "auto"]
 
 
 def test_censored_median_is_flagged_slower():

@@ -3,8 +3,9 @@
 For each cell (n, gap) the ODE gives a label and a consensus time; exact
 analysis (small state spaces) or seeded stochastic runs give the probability
 that a run disagrees with the ODE's label, with a 95% interval simultaneous
-over the sequential looks (Clopper-Pearson, Bonferroni), and the stochastic
-median consensus time. A cell is ``misleading`` when the interval
+over the sequential looks (Clopper-Pearson bounds whose error levels are spent
+over the looks by a fixed plan, :func:`crn.analyses.probes.look_levels`), and
+the stochastic median consensus time. A cell is ``misleading`` when the interval
 lies wholly above the risk, ``ok`` when wholly below, ``uncertain`` otherwise
 (docs/design.md); its time flag says whether the stochastic median and the ODE time
 differ by more than a factor. The boundary where the disagreement probability
@@ -88,9 +89,12 @@ class RegimeCell:
         Probability that a stochastic run disagrees with ``ode_label`` (no
         consensus by the horizon counts as disagreement). For stochastic cells
         ``[low, high]`` is a 95% interval simultaneous over the sequential
-        looks (Clopper-Pearson at level ``1 - 0.05 / K`` for the K looks the
-        round schedule can make, Bonferroni), the interval the stopping rule
-        and the flag use. For exact cells ``p_wrong`` is the exact probability
+        looks, the interval the stopping rule and the flag use: Clopper-Pearson
+        bounds with one-sided levels that add up to 0.025 per side over the K
+        looks the round schedule can make (union bound); the lower bound spends
+        ``0.025 / K`` at each look, the upper bound three quarters of its 0.025
+        at the first look where no disagreement could show the cell ``ok``
+        (:func:`crn.analyses.probes.look_levels`). For exact cells ``p_wrong`` is the exact probability
         of eventually disagreeing and ``[low, high]`` bounds the probability
         of disagreeing by the horizon: consensus reached only after the
         horizon is bounded by Cantelli's inequality (from the exact mean and
@@ -334,8 +338,10 @@ def evaluate_cell(networks: Callable[[int, int], Network], n: int, gap: int, *,
     runs_max : int
         Most stochastic runs; rounds of 50, 50, 100, 200, ... (doubling, see
         :func:`crn.analyses.probes.sample_until_decided`) are added until the 95%
-        interval simultaneous over the sequential looks (Clopper-Pearson,
-        Bonferroni) lies wholly above or below ``risk``.
+        interval simultaneous over the sequential looks lies wholly above or
+        below ``risk`` (at risk 0.01 a cell with no disagreeing run is ``ok``
+        after 400 runs). Protocol cells from :data:`BATCHED_FROM` agents run on
+        the batched engine.
     time_factor : float
     method : {"auto", "exact", "stochastic"}
         ``auto``: exact when at most ``exact_max`` configurations, else
