@@ -407,23 +407,34 @@ def test_sequential_stopping_keeps_false_misleading_rate():
 
 
 def test_look_levels_spend_each_side_once():
-    # derived: zero disagreements in n runs decide ok when (1 - risk)^n is below the upper
-    # level; at risk 0.01, 0.99^400 = 0.0180 < 0.75 * 0.025 = 0.01875 <= 0.99^200 = 0.134, so
-    # the first look that can decide it is 400 of the schedule (50, 100, 200, 400, 800, 1000)
+    # derived: the upper bound of c disagreements in n runs is below the risk r exactly when
+    # P(Bin(n, r) <= c) is below its level. At r = 0.01 and looks (50, 100, 200, 400, 800,
+    # 1000) the even split (0.025 / 6 = 0.00417 per look) decides ok with at most 1 of 800
+    # (P = 0.00293) and 2 of 1000 (P = 0.00268) and never at 400 (0 of 400: P = 0.99^400 =
+    # 0.01795); those needs leave 0.01939 of the 0.025, enough for 0 of 400, and the last
+    # 0.00144 is spread over the six looks
+    from scipy.stats import binom
+
     schedule = look_schedule(1000)
     levels = look_levels(schedule, 0.01, favour="below")
     assert sum(lo for lo, _ in levels) == pytest.approx(0.025, rel=1e-12)
     assert sum(hi for _, hi in levels) == pytest.approx(0.025, rel=1e-12)
     assert all(lo == pytest.approx(0.025 / 6) for lo, _ in levels)  # lower side: Bonferroni
     his = [hi for _, hi in levels]
-    assert his[3] == pytest.approx(0.75 * 0.025 + 0.25 * 0.025 / 6)
-    assert all(h == pytest.approx(0.25 * 0.025 / 6) for i, h in enumerate(his) if i != 3)
-    # zero disagreements: ok at 400 runs now, where the even split needed 800
+    needs = [0.0, 0.0, 0.0, 0.99 ** 400, binom.cdf(1, 800, 0.01), binom.cdf(2, 1000, 0.01)]
+    spread = (0.025 - sum(needs)) / 6
+    assert spread > 0
+    assert his == pytest.approx([need + spread for need in needs], rel=1e-9)
+    # every ok decision of the even split is kept, and 0 of 400 is added
+    even = [simultaneous_interval(k, n, 6)[2] < 0.01 for k, n in ((1, 800), (2, 1000))]
+    kept = [sided_interval(k, n, *levels[i])[2] < 0.01 for k, n, i in ((1, 800, 4), (2, 1000, 5))]
+    assert even == kept == [True, True]
+    assert sided_interval(2, 800, *levels[4])[2] > 0.01 < simultaneous_interval(2, 800, 6)[2]
     assert sided_interval(0, 400, *levels[3])[2] < 0.01 < simultaneous_interval(0, 400, 6)[2]
-    # mirror image for a threshold near 1 (the copy search's success probability)
+    # mirror image for a threshold near 1 (a success probability against 1 - risk)
     mirror = look_levels(schedule, 0.99, favour="above")
     assert [lo for lo, _ in mirror] == pytest.approx(his)
-    # no look can decide with no disagreement (risk 0.001 needs 3,700 runs): plain Bonferroni
+    # nothing to add (risk 0.001: no disagreement needs 3,688 runs): the even split
     assert look_levels(schedule, 0.001, favour="below") == look_levels(schedule, 0.001)
     # equal levels are the two-sided Clopper-Pearson interval of simultaneous_interval
     assert sided_interval(3, 400, 0.025 / 6, 0.025 / 6) == pytest.approx(
@@ -457,7 +468,8 @@ def test_sequential_stopping_keeps_false_ok_rate(favour):
 def test_an_ok_cell_stops_at_the_first_look_that_can_decide():
     # a gap of 30% at n = 2000 leaves approximate majority (almost) never wrong: derived from
     # Angluin, Aspnes, Eisenstat 2008 (error probability falls like exp(-c gap^2 / n)); with no
-    # disagreement the cell is ok at 400 runs (test_look_levels_spend_each_side_once)
+    # disagreement the cell is ok at 400 runs (test_look_levels_spend_each_side_once), where
+    # the even split needed 800
     nets = InitialSplit(load_model(AM).network)
     cell = evaluate_cell(nets, 2000, 600, method="stochastic", entropy=seed(11))
     assert (cell.flag, cell.wrong, cell.runs) == ("ok", 0, 400)

@@ -51,7 +51,6 @@ _HOME = {
     "exact_decision": "probes",
     "gap_for_fraction": "probes",
     "late_consensus_bound": "probes",
-    "FRONT_SHARE": "probes",
     "look_levels": "probes",
     "look_schedule": "probes",
     "ode_decision": "probes",

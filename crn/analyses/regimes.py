@@ -92,10 +92,11 @@ class RegimeCell:
         looks, the interval the stopping rule and the flag use: Clopper-Pearson
         bounds with one-sided levels that add up to 0.025 per side over the K
         looks the round schedule can make (union bound); the lower bound spends
-        ``0.025 / K`` at each look, the upper bound three quarters of its 0.025
-        at the first look where no disagreement could show the cell ``ok``
-        (:func:`crn.analyses.probes.look_levels`). For exact cells ``p_wrong`` is the exact probability
-        of eventually disagreeing and ``[low, high]`` bounds the probability
+        ``0.025 / K`` at each look, the upper bound keeps every ``ok`` decision
+        of that even split and moves its spare error to the first look where
+        no disagreement can decide (:func:`crn.analyses.probes.look_levels`).
+        For exact cells ``p_wrong`` is the exact probability of eventually
+        disagreeing and ``[low, high]`` bounds the probability
         of disagreeing by the horizon: consensus reached only after the
         horizon is bounded by Cantelli's inequality (from the exact mean and
         standard deviation of the time given consensus). With an ODE label,
