@@ -10,31 +10,45 @@ Where the time goes (profiled cell by cell with cProfile on a shared two-core
 machine carrying six to ten other jobs, so the seconds are inflated; their
 proportions are the point):
 
-* Stochastic runs are nearly all of it, and the largest n dominate. A cell
-  that the mean field gets right needs 800 runs (with no disagreeing run, the
-  upper end of the Bonferroni-corrected interval over the six looks of the
-  1000-run schedule first drops below risk 0.01 at 800 runs), an uncertain cell
-  1000, a misleading one often only 50. One batched run to consensus took
-  12 ms at n = 1e5, 41 ms at n = 1e6 and 130 ms (gap 0.3 n) to 640 ms
-  (gap 0.0003 n, consensus near parallel time 43) at n = 1e7, that is
-  1.5e8, 5e8 and 0.7e9 to 1.8e9 interactions per second. So a cell costs about
-  10 s at n = 1e5, 35 s at n = 1e6 and 100 to 600 s at n = 1e7: the eight
-  n = 1e7 cells are about 80 % of the map, the n = 1e6 cells most of the rest.
-* The direct method's cells (n = 1e3, 1e4; auto switches to the batched engine
-  from 1e5 agents) cost 3 to 15 s each; exact cells (n = 100) under 0.5 s,
-  of which 200 timing runs take a quarter.
+* Stochastic runs are nearly all of it, and the largest n dominate. One
+  batched run to consensus took 12 ms at n = 1e5, 41 ms at n = 1e6 and 130 ms
+  (gap 0.3 n) to 640 ms (gap 0.0003 n, consensus near parallel time 43) at
+  n = 1e7, that is 1.5e8, 5e8 and 0.7e9 to 1.8e9 interactions per second.
+  Stopping a run once one opinion is extinct (its label can then no longer
+  change) would save little: the last phase, blanks adopting the surviving
+  opinion, is 10 to 15 % of the parallel time and less of the wall time,
+  since the engine skips the null interactions that fill it.
+* Runs per cell. A cell with no disagreeing run used to need 800 runs: with
+  the Bonferroni split of the 95% interval over the six looks of the 1000-run
+  schedule (0.025 / 6 per side and look), the upper bound of 0 in n runs first
+  drops below risk 0.01 at n = 546. The ok side of the interval now keeps
+  every decision of that split and moves the error it does not need to the
+  look at 400 runs (crn.analyses.probes.look_levels), so such a cell is ok
+  after 400 runs; no test with the same 0.025 error on that side can decide
+  before 367 runs (0.99^n < 0.025). Uncertain cells still take 1000 runs,
+  misleading ones mostly 50. Runs over the rows n = 1e3, 1e4, 1e5, 1e6 fell
+  from 2400, 3600, 4150, 4900 to 2000, 2200, 2150, 2500.
+* The direct method's cells (n = 1e3, 1e4) cost 3 to 15 s each; at n = 1e4 the
+  batched engine is about three times faster per run (17 against 48 ms on the
+  loaded machine), so protocol cells from 5000 agents now run batched. Exact
+  cells (n = 100) take under 0.5 s, of which 200 timing runs take a quarter.
 * The mean-field decision takes 0.03 s per cell and the configuration
   estimate 0.01 to 0.05 s, once each worker has imported scipy (1.6 s, once).
 * Not a cost: the worker pool is started once per sweep, not per cell; a cell
   ships its (network builder, n, gap), a few hundred bytes; numba kernels load
   from the on-disk cache once per worker.
 
-Measured here: n = 1e2 .. 1e5 (the 32 smaller cells) took 189 s on one worker.
-The default map stays far above 5 minutes on two workers. The levers left
-change the table, which this map must keep for its seed: fewer runs (a cell a
-monotone neighbour already decides), a different engine for a cell (batched
-below 1e5 agents, exact chains above 1e5 configurations), or a different
-random stream in the three-state batched kernel; each needs its own decision.
+Before: about 25 minutes on one worker. With half the runs in the ok cells the
+map is estimated (per-run costs above times the new run counts) at 12 to 14
+minutes on one worker, about 6 to 7 on two: still above the 5-minute goal,
+which needs faster runs at n = 1e7 (the eight cells there are about 80 % of
+the map). A full timing of both worker counts was not possible on the loaded
+machine; run this script on a quiet one.
+
+Same table: each cell's ODE label, flag and time flag must equal the recorded
+table of the earlier code for seed 2026 (``regimes_seed2026.json``, computed
+with one shared memo of runs so both versions saw the same random streams);
+the script prints the differences.
 """
 
 from __future__ import annotations
