@@ -16,8 +16,9 @@ proportions are the point):
   n = 1e7, that is 1.5e8, 5e8 and 0.7e9 to 1.8e9 interactions per second.
   Stopping a run once one opinion is extinct (its label can then no longer
   change) would save little: the last phase, blanks adopting the surviving
-  opinion, is 8 to 25 % of the parallel time (five runs at n = 1e6 and 1e7) and less of the wall time,
-  since the engine skips the null interactions that fill it.
+  opinion, is 8 to 25 % of the parallel time (five runs at n = 1e6 and 1e7)
+  and less of the wall time, since the engine skips the null interactions
+  that fill it.
 * Runs per cell. A cell with no disagreeing run used to need 800 runs: with
   the Bonferroni split of the 95% interval over the six looks of the 1000-run
   schedule (0.025 / 6 per side and look), the upper bound of 0 in n runs first
