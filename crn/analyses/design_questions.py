@@ -215,15 +215,15 @@ def leak_tolerance(formal_cells: Callable[[int, int], Network], n: int, gap: int
     -------
     LeakAnswer
     """
-    import numpy as np
 
     from crn.analyses.probes import ode_decision
     from crn.analyses.regimes import evaluate_cell
     from crn.core.outcome import correct_label
+    from crn.runtime.seeds import root_seed
 
     if not 0 < leak_start < leak_max:
         raise CRNError(f"need 0 < leak_start < leak_max, got {leak_start}, {leak_max}")
-    seq = rng if isinstance(rng, np.random.SeedSequence) else np.random.SeedSequence(rng)
+    seq = root_seed(rng)
     formal = formal_cells(int(n), int(gap))
     truth = correct_label(formal)
     if until is None:
