@@ -39,12 +39,11 @@ proportions are the point):
   ships its (network builder, n, gap), a few hundred bytes; numba kernels load
   from the on-disk cache once per worker.
 
-Before: about 25 minutes on one worker. With half the runs in the ok cells the
-map is estimated (per-run costs above times the new run counts) at 12 to 14
-minutes on one worker, about 6 to 7 on two: still above the 5-minute goal,
-which needs faster runs at n = 1e7 (the eight cells there are about 80 % of
-the map). A full timing of both worker counts was not possible on the loaded
-machine; run this script on a quiet one.
+Before: about 25 minutes on one worker. Measured after (quiet machine, load
+0.3 at the start, numba cache warm): 336 s on two workers, with 11,700 runs
+against 20,700; the one-worker run was not timed for lack of time. Still above
+the 5-minute goal: what is left needs faster runs at n = 1e7 (the eight cells
+there are most of the map).
 
 Same table: each cell's ODE label, flag and time flag must equal the recorded
 table of the earlier code for seed 2026 (``regimes_seed2026.json``, computed
