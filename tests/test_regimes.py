@@ -10,8 +10,10 @@ from crn.analyses.probes import (
     InitialSplit,
     gap_for_fraction,
     late_consensus_bound,
+    look_levels,
     look_schedule,
     sample_until_decided,
+    sided_interval,
     simultaneous_interval,
 )
 from crn.analyses.regimes import (
@@ -387,7 +389,8 @@ def test_sequential_stopping_keeps_false_misleading_rate():
     # 4 standard errors of a proportion 0.025: 4 sqrt(0.025 * 0.975 / 20000).
     reps, risk = 20_000, 0.01
     tolerance = 0.025 + 4 * math.sqrt(0.025 * 0.975 / reps)
-    for runs_max in (1000, 4000):  # the regimes and copies defaults
+    # the regimes default (ok side front-loaded) and the copies default (even split)
+    for runs_max, favour in ((1000, "below"), (4000, None)):
         rng = np.random.default_rng(seed(20240601 + runs_max))
         misleading = 0
         for _ in range(reps):
@@ -397,9 +400,95 @@ def test_sequential_stopping_keeps_false_misleading_rate():
                 state[0] += int(rng.binomial(size, risk))
                 state[1] += size
 
-            est = sample_until_decided(lambda state=state: tuple(state), draw, risk, runs_max)
+            est = sample_until_decided(lambda state=state: tuple(state), draw, risk, runs_max,
+                                       favour=favour)
             misleading += risk_flag(est.low, est.high, risk) == "misleading"
         assert misleading / reps <= tolerance, (runs_max, misleading / reps)
+
+
+def test_look_levels_spend_each_side_once():
+    # derived: the upper bound of c disagreements in n runs is below the risk r exactly when
+    # P(Bin(n, r) <= c) is below its level. At r = 0.01 and looks (50, 100, 200, 400, 800,
+    # 1000) the even split (0.025 / 6 = 0.00417 per look) decides ok with at most 1 of 800
+    # (P = 0.00293) and 2 of 1000 (P = 0.00268) and never at 400 (0 of 400: P = 0.99^400 =
+    # 0.01795); those needs leave 0.01939 of the 0.025, enough for 0 of 400, and the last
+    # 0.00144 is spread over the six looks
+    from scipy.stats import binom
+
+    schedule = look_schedule(1000)
+    levels = look_levels(schedule, 0.01, favour="below")
+    assert sum(lo for lo, _ in levels) == pytest.approx(0.025, rel=1e-12)
+    assert sum(hi for _, hi in levels) == pytest.approx(0.025, rel=1e-12)
+    assert all(lo == pytest.approx(0.025 / 6) for lo, _ in levels)  # lower side: Bonferroni
+    his = [hi for _, hi in levels]
+    needs = [0.0, 0.0, 0.0, 0.99 ** 400, binom.cdf(1, 800, 0.01), binom.cdf(2, 1000, 0.01)]
+    spread = (0.025 - sum(needs)) / 6
+    assert spread > 0
+    assert his == pytest.approx([need + spread for need in needs], rel=1e-9)
+    # every ok decision of the even split is kept, and 0 of 400 is added
+    even = [simultaneous_interval(k, n, 6)[2] < 0.01 for k, n in ((1, 800), (2, 1000))]
+    kept = [sided_interval(k, n, *levels[i])[2] < 0.01 for k, n, i in ((1, 800, 4), (2, 1000, 5))]
+    assert even == kept == [True, True]
+    assert sided_interval(2, 800, *levels[4])[2] > 0.01 < simultaneous_interval(2, 800, 6)[2]
+    assert sided_interval(0, 400, *levels[3])[2] < 0.01 < simultaneous_interval(0, 400, 6)[2]
+    # mirror image for a threshold near 1 (a success probability against 1 - risk)
+    mirror = look_levels(schedule, 0.99, favour="above")
+    assert [lo for lo, _ in mirror] == pytest.approx(his)
+    # nothing to add (risk 0.001: no disagreement needs 3,688 runs): the even split
+    assert look_levels(schedule, 0.001, favour="below") == look_levels(schedule, 0.001)
+    # equal levels are the two-sided Clopper-Pearson interval of simultaneous_interval
+    assert sided_interval(3, 400, 0.025 / 6, 0.025 / 6) == pytest.approx(
+        simultaneous_interval(3, 400, 6), rel=1e-9)
+
+
+@pytest.mark.parametrize("favour", [None, "below"])
+def test_sequential_stopping_keeps_false_ok_rate(favour):
+    # derived: `ok` at true p = risk needs the upper bound below p at some look; look k's bound
+    # falls below p with probability at most its one-sided level (exact binomial tail), and the
+    # levels of the K looks add up to 0.025 (look_levels), so by the union bound the rate is at
+    # most 0.025. Simulated with binomial counts (fixed seed, 20,000 repetitions); tolerance 4
+    # standard errors of a proportion 0.025.
+    reps, risk = 20_000, 0.01
+    tolerance = 0.025 + 4 * math.sqrt(0.025 * 0.975 / reps)
+    rng = np.random.default_rng(seed(20261204))
+    wrong_ok = 0
+    for _ in range(reps):
+        state = [0, 0]
+
+        def draw(_round, size, state=state):
+            state[0] += int(rng.binomial(size, risk))
+            state[1] += size
+
+        est = sample_until_decided(lambda state=state: tuple(state), draw, risk, 1000,
+                                   favour=favour)
+        wrong_ok += risk_flag(est.low, est.high, risk) == "ok"
+    assert wrong_ok / reps <= tolerance, wrong_ok / reps
+
+
+def test_an_ok_cell_stops_at_the_first_look_that_can_decide():
+    # a gap of 30% at n = 2000 leaves approximate majority (almost) never wrong: derived from
+    # Angluin, Aspnes, Eisenstat 2008 (error probability falls like exp(-c gap^2 / n)); with no
+    # disagreement the cell is ok at 400 runs (test_look_levels_spend_each_side_once), where
+    # the even split needed 800
+    nets = InitialSplit(load_model(AM).network)
+    cell = evaluate_cell(nets, 2000, 600, method="stochastic", entropy=seed(11))
+    assert (cell.flag, cell.wrong, cell.runs) == ("ok", 0, 400)
+
+
+def test_large_protocol_cells_run_batched(monkeypatch):
+    import crn.analyses.regimes as regimes
+
+    seen = []
+
+    def record(net, runs, until, rng, **kw):
+        seen.append(kw.get("engine"))
+        return ["X"] * runs, np.full(runs, 1.0)
+
+    monkeypatch.setattr(regimes, "stochastic_decisions", record)
+    nets = InitialSplit(load_model(AM).network)
+    evaluate_cell(nets, regimes.BATCHED_FROM, 100, method="stochastic", entropy=1, runs_max=50)
+    evaluate_cell(nets, 1000, 100, method="stochastic", entropy=1, runs_max=50)
+    assert seen == ["batched", "auto"]
 
 
 def test_censored_median_is_flagged_slower():

@@ -30,7 +30,9 @@ __all__ = [
     "cantelli_tail",
     "late_consensus_bound",
     "look_schedule",
+    "look_levels",
     "simultaneous_interval",
+    "sided_interval",
     "SequentialEstimate",
     "sample_until_decided",
     "FIRST_ROUND",
@@ -290,6 +292,130 @@ def simultaneous_interval(successes: int, trials: int, looks: int = 1,
     return k / n, float(ci.low), float(ci.high)
 
 
+def _tail(n: int, threshold: float, count: int) -> float:
+    """``P(Bin(n, threshold) <= count)``: the least level at which ``count`` of ``n``
+    puts the Clopper-Pearson upper bound at ``threshold``."""
+    from scipy.stats import binom
+
+    return float(binom.cdf(count, n, threshold)) if count >= 0 else 0.0
+
+
+def _spend_one_side(schedule, threshold: float, a: float) -> list[float]:
+    """Upper-bound levels: keep every decision of the even split, move its spare budget.
+
+    ``c_k`` is the most successes at look k whose upper bound falls below
+    ``threshold`` at the even level ``a / K``; ``need_k = P(Bin(n_k, threshold) <=
+    c_k)`` is the least level that keeps that decision. What the even split
+    spends beyond the needs is given to the first look where it lets one more
+    success decide, and what is left after that is spread evenly.
+    """
+    looks = len(schedule)
+    even = a / looks
+    counts, needs = [], []
+    for n in schedule:
+        c = -1
+        while c < n and _tail(n, threshold, c + 1) < even:
+            c += 1
+        counts.append(c)
+        needs.append(_tail(n, threshold, c))
+    spare = a - sum(needs)
+    for j, n in enumerate(schedule):
+        more = _tail(n, threshold, counts[j] + 1) if counts[j] < n else math.inf
+        if more - needs[j] < spare:
+            spare -= more - needs[j]
+            needs[j] = more
+            break
+    return [need + spare / looks for need in needs]
+
+
+def look_levels(schedule, threshold: float, confidence: float = 0.95,
+                favour: str | None = None) -> tuple[tuple[float, float], ...]:
+    """One-sided error levels ``(lower, upper)`` of the interval at each look.
+
+    Each side of the interval may be wrong (bound above / below the true
+    probability) with total probability ``a = (1 - confidence) / 2`` over all
+    the looks; by the union bound (Bonferroni's inequality) any split of ``a``
+    over the looks that is fixed before the data keeps that guarantee, so the
+    intervals at every look cover the probability simultaneously with
+    probability at least ``confidence`` (an error-spending plan in the sense
+    of Lan and DeMets, with the union bound in place of the joint law).
+
+    Without ``favour`` both sides spend ``a / K`` at each of the K looks
+    (plain Bonferroni, :func:`simultaneous_interval`). With ``favour="below"``
+    the lower side keeps ``a / K`` per look and the upper side, which decides
+    ``high < threshold``, is re-split: at each look it spends just what keeps
+    every decision the even split makes there (the largest count c_k that
+    decides at level ``a / K`` still decides), the budget this frees goes to
+    the first look where it lets one more count decide (at threshold 0.01 and
+    looks 50, 100, ..., 1000: no disagreement in 400 runs), and the rest is
+    spread evenly. So every ``high < threshold`` decision of the even split is
+    kept, and one more is added. ``favour="above"`` is the mirror image for
+    the lower side. The plan depends on the schedule, the threshold and the
+    confidence only, never on the counts.
+
+    Parameters
+    ----------
+    schedule : sequence of int
+        Cumulative run counts of the looks (:func:`look_schedule`).
+    threshold : float
+    confidence : float
+    favour : {None, "below", "above"}
+
+    Returns
+    -------
+    tuple of (float, float)
+        Per look, the one-sided levels of the lower and the upper bound.
+
+    References
+    ----------
+    Lan, DeMets, "Discrete sequential boundaries for clinical trials",
+    Biometrika 70(3), 1983 (error spending over looks); Jennison, Turnbull,
+    "Group Sequential Methods", 2000, ch. 1 and 7.
+    """
+    if favour not in (None, "below", "above"):
+        raise CRNError(f"favour must be None, 'below' or 'above', got {favour!r}")
+    schedule = tuple(int(n) for n in schedule)
+    looks = len(schedule)
+    a = (1.0 - float(confidence)) / 2
+    even = [a / looks] * looks
+    if favour is None or not 0 < threshold < 1:
+        return tuple(zip(even, even, strict=True))
+    if favour == "below":
+        return tuple(zip(even, _spend_one_side(schedule, float(threshold), a), strict=True))
+    # mirror: failures of the complementary event against 1 - threshold
+    return tuple(zip(_spend_one_side(schedule, 1.0 - float(threshold), a), even, strict=True))
+
+
+@lru_cache(maxsize=65536)
+def sided_interval(successes: int, trials: int, lower_level: float,
+                   upper_level: float) -> tuple[float, float, float]:
+    """Clopper-Pearson bounds with their own one-sided levels.
+
+    ``P(low > p) <= lower_level`` and ``P(high < p) <= upper_level`` for the
+    true probability p (exact binomial tails). With both levels ``(1 - c) / 2``
+    this is the two-sided Clopper-Pearson interval at level c.
+
+    Returns
+    -------
+    p, low, high : float
+        ``successes / trials`` and the bounds (``0, 0, 1`` for no trials).
+
+    References
+    ----------
+    Clopper, Pearson, Biometrika 26(4), 1934.
+    """
+    from scipy.stats import beta
+
+    k, n = int(successes), int(trials)
+    if n == 0:
+        return 0.0, 0.0, 1.0
+    if not 0 <= k <= n:
+        raise CRNError(f"need 0 <= successes <= trials, got {k} of {n}")
+    low = float(beta.ppf(lower_level, k, n - k + 1)) if k > 0 else 0.0
+    high = float(beta.isf(upper_level, k + 1, n - k)) if k < n else 1.0
+    return k / n, low, high
+
+
 @dataclass(frozen=True)
 class SequentialEstimate:
     """Result of :func:`sample_until_decided`: counts and the simultaneous interval."""
@@ -303,16 +429,20 @@ class SequentialEstimate:
 
 def sample_until_decided(count: Callable[[], tuple[int, int]],
                          draw: Callable[[int, int], None], threshold: float, runs_max: int, *,
-                         first: int = FIRST_ROUND, confidence: float = 0.95) -> SequentialEstimate:
+                         first: int = FIRST_ROUND, confidence: float = 0.95,
+                         favour: str | None = None) -> SequentialEstimate:
     """Add runs in rounds until the interval lies wholly above or below ``threshold``.
 
     Looks happen at the totals of :func:`look_schedule` (``first``, doubling,
-    up to ``runs_max``); at each the interval is Clopper-Pearson at level
-    ``1 - (1 - confidence) / K`` with K the number of looks the schedule can
-    make (Bonferroni), so it is a ``confidence`` interval simultaneous over
-    the sequential looks and the decision ``low > threshold`` (or ``high <
-    threshold``) is wrong with probability at most ``(1 - confidence) / 2``
-    on each side.
+    up to ``runs_max``). Without ``favour`` the interval at each look is
+    Clopper-Pearson at level ``1 - (1 - confidence) / K`` with K the number of
+    looks the schedule can make (Bonferroni); with it, each bound has the
+    one-sided level :func:`look_levels` plans (the side that decides on the
+    favoured side of ``threshold`` keeps every decision of the even split and
+    adds one earlier one). Either way it is a ``confidence``
+    interval simultaneous over the sequential looks, and the decision ``low >
+    threshold`` (or ``high < threshold``) is wrong with probability at most
+    ``(1 - confidence) / 2`` on each side.
 
     Parameters
     ----------
@@ -325,6 +455,8 @@ def sample_until_decided(count: Callable[[], tuple[int, int]],
     runs_max : int
     first : int
     confidence : float
+    favour : {None, "below", "above"}
+        See :func:`look_levels`.
 
     Returns
     -------
@@ -332,10 +464,16 @@ def sample_until_decided(count: Callable[[], tuple[int, int]],
     """
     schedule = look_schedule(runs_max, first)
     looks = len(schedule)
+    levels = None if favour is None else look_levels(schedule, threshold, confidence, favour)
     while True:
         k, n = count()
         if n:
-            p, low, high = simultaneous_interval(k, n, looks, confidence)
+            if levels is None:
+                p, low, high = simultaneous_interval(k, n, looks, confidence)
+            else:
+                # the look these runs complete (a cache may hold runs beyond a look)
+                at = next((i for i, total in enumerate(schedule) if total >= n), looks - 1)
+                p, low, high = sided_interval(k, n, *levels[at])
             if low > threshold or high < threshold or n >= schedule[-1]:
                 return SequentialEstimate(int(k), int(n), p, low, high)
         index = next(i for i, total in enumerate(schedule) if total > n)
