@@ -124,9 +124,11 @@ class Lattice:
     gap: int | None
 
     def n(self, k: int) -> int:
+        """Population at lattice index ``k``."""
         return self.first + self.step * int(k)
 
     def gap_of(self, n: int) -> int:
+        """Input gap at population ``n`` (a fixed gap or a fraction of n)."""
         if self.fraction is not None:
             return int(self.fraction * n)
         return int(self.gap)
@@ -229,6 +231,7 @@ class Prober:
         self._nets: dict[tuple, Network] = {}
 
     def network(self, n: int, gap: int) -> Network:
+        """The network of cell ``(n, gap)``, built once."""
         key = (int(n), int(gap))
         if key not in self._nets:
             self._nets[key] = self.networks(*key)

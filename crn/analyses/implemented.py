@@ -199,6 +199,7 @@ class ImplementedCells:
         return implementation_of(self.formal(int(n), int(gap)), self.scheme, self.params_for(n))
 
     def __call__(self, n: int, gap: int) -> Network:
+        """The implementation's network of cell ``(n, gap)``."""
         return self.implementation(n, gap).network
 
     def with_params(self, **changes) -> ImplementedCells:

@@ -94,6 +94,7 @@ class InitialSplit:
                            "setting n and the gap needs the two input states")
 
     def __call__(self, n: int, gap: int) -> Network:
+        """The network with the inputs split ``n``, ``gap``."""
         a, b = self.network.inputs
         x0 = np.array(self.network.initial, dtype=np.int64)
         x0[a], x0[b] = split_counts(n, gap)
@@ -113,6 +114,7 @@ class ModelParameters:
     overrides: tuple = ()
 
     def __call__(self, n: int, gap: int) -> Network:
+        """The model rebuilt with parameters ``n`` and ``gap``."""
         from crn.core.model import parse_model
 
         split_counts(n, gap)

@@ -126,10 +126,12 @@ class RegimeCell:
     correct_label: str | None = None
 
     def to_dict(self) -> dict:
+        """The cell as a JSON-ready dict."""
         return asdict(self)
 
     @classmethod
     def from_dict(cls, data: Mapping) -> RegimeCell:
+        """The cell :meth:`to_dict` wrote (missing keys read as None)."""
         return cls(**{k: data.get(k) for k in cls.__dataclass_fields__})
 
 
@@ -168,6 +170,7 @@ class Boundary:
     note: str = ""
 
     def to_dict(self) -> dict:
+        """The boundary as its JSON object."""
         return {"estimate": self.exponent, "low": self.low, "high": self.high,
                 "interval": None if self.low is None else INTERVAL_NAME,
                 "grid_low": self.grid_low, "grid_high": self.grid_high,

@@ -1,4 +1,4 @@
-"""Bounded verification: does a protocol stably compute the majority for every small population?
+"""Bounded verification that a protocol stably computes the majority at every small population.
 
 For every population size n up to a bound and every split of the n agents
 between the two input states, the configurations reachable from that split

@@ -32,6 +32,7 @@ class ModelError(CRNError):
         super().__init__(str(self))
 
     def where(self) -> str:
+        """Where the error is: ``file:line``, ``line N`` and the field, or empty."""
         parts = []
         if self.file:
             parts.append(self.file if self.line is None else f"{self.file}:{self.line}")

@@ -88,6 +88,75 @@ def _pad(sides: Sequence[Mapping[str, int]], index: Mapping[str, int]):
             counts[row, col] = m
     return species, counts
 
+def _species_index(species: tuple[str, ...]) -> dict[str, int]:
+    """Species name -> position, after checking the names."""
+    if not species:
+        raise ModelError("a network needs at least one species", field="species")
+    index = {s: i for i, s in enumerate(species)}
+    if len(index) != len(species):
+        raise ModelError("a species is listed twice", field="species")
+    for s in species:
+        if not is_identifier(s):
+            raise ModelError(f"species name {s!r} is not an identifier", field="species")
+    return index
+
+
+def _check_reactions(reactions: Sequence[Reaction], index: Mapping[str, int]) -> None:
+    """Refuse unknown species, bad multiplicities and negative or non-finite rates."""
+    for i, r in enumerate(reactions):
+        where = f"reactions[{i}]"
+        for side in (r.reactants, r.products):
+            for s, m in side.items():
+                if s not in index:
+                    raise ModelError(f"reaction {r} names unknown species {s!r}", field=where)
+                if (isinstance(m, bool) or not isinstance(m, int | np.integer)
+                        or not 1 <= m <= MAX_MULTIPLICITY):
+                    raise ModelError(f"reaction {r}: multiplicity of {s} must be a whole "
+                                     f"number from 1 to {MAX_MULTIPLICITY}", field=where)
+        if not np.isfinite(r.rate) or r.rate < 0:
+            raise ModelError(f"reaction {r}: rate must be a finite number >= 0, got {r.rate}",
+                             field=where)
+
+
+def _initial_counts(initial: Mapping[str, int], index: Mapping[str, int]) -> np.ndarray:
+    """The initial counts as a vector in species order, checked."""
+    x0 = np.zeros(len(index), dtype=np.int64)
+    for s, c in initial.items():
+        if s not in index:
+            raise ModelError(f"initial count for unknown species {s!r}", field="initial")
+        whole = isinstance(c, int | np.integer) and not isinstance(c, bool)
+        if not whole or not 0 <= c <= MAX_COUNT:
+            raise ModelError(f"initial count of {s} must be a whole number from 0 to "
+                             f"2**{_MAX_POWER}, got {c!r}", field=f"initial.{s}")
+        x0[index[s]] = c
+    if sum(int(c) for c in x0) > MAX_COUNT:
+        raise ModelError(f"the initial counts add up to more than 2**{_MAX_POWER}",
+                         field="initial")
+    return x0
+
+
+def _species_labels(output: dict[str, str], ignore: Sequence[str],
+                    index: Mapping[str, int]) -> tuple[tuple[str, ...], np.ndarray]:
+    """The labels in first-seen order and each species' label index (-1 none, IGNORED)."""
+    labels = tuple(dict.fromkeys(output.values()))
+    label_index = {label: i for i, label in enumerate(labels)}
+    species_label = np.full(len(index), -1, dtype=np.int64)
+    for s, label in output.items():
+        if s not in index:
+            raise ModelError(f"output for unknown species {s!r}", field="output")
+        if label == NO_CONSENSUS:
+            raise ModelError(f"label {label!r} of {s} is reserved for runs without consensus",
+                             field=f"output.{s}")
+        species_label[index[s]] = label_index[label]
+    for s in ignore:
+        if s not in index:
+            raise ModelError(f"ignored species {s!r} is not a species", field="ignore")
+        if species_label[index[s]] >= 0:
+            raise ModelError(f"species {s} reports a label and cannot be ignored",
+                             field="ignore")
+        species_label[index[s]] = IGNORED
+    return labels, species_label
+
 
 @dataclass(frozen=True, eq=False)
 class Network:
@@ -180,61 +249,14 @@ class Network:
             count is negative, a rate is negative or the volume is not positive.
         """
         species = tuple(species)
-        if not species:
-            raise ModelError("a network needs at least one species", field="species")
-        index = {s: i for i, s in enumerate(species)}
-        if len(index) != len(species):
-            raise ModelError("a species is listed twice", field="species")
-        for s in species:
-            if not is_identifier(s):
-                raise ModelError(f"species name {s!r} is not an identifier", field="species")
-        for i, r in enumerate(reactions):
-            where = f"reactions[{i}]"
-            for side in (r.reactants, r.products):
-                for s, m in side.items():
-                    if s not in index:
-                        raise ModelError(f"reaction {r} names unknown species {s!r}", field=where)
-                    if (isinstance(m, bool) or not isinstance(m, int | np.integer)
-                            or not 1 <= m <= MAX_MULTIPLICITY):
-                        raise ModelError(f"reaction {r}: multiplicity of {s} must be a whole "
-                                         f"number from 1 to {MAX_MULTIPLICITY}", field=where)
-            if not np.isfinite(r.rate) or r.rate < 0:
-                raise ModelError(f"reaction {r}: rate must be a finite number >= 0, got {r.rate}",
-                                 field=where)
+        index = _species_index(species)
+        _check_reactions(reactions, index)
         if not np.isfinite(volume) or volume <= 0:
             raise ModelError(f"volume must be positive, got {volume}", field="volume")
         rs, rc = _pad([r.reactants for r in reactions], index)
         ps, pc = _pad([r.products for r in reactions], index)
-        x0 = np.zeros(len(species), dtype=np.int64)
-        for s, c in (initial or {}).items():
-            if s not in index:
-                raise ModelError(f"initial count for unknown species {s!r}", field="initial")
-            whole = isinstance(c, int | np.integer) and not isinstance(c, bool)
-            if not whole or not 0 <= c <= MAX_COUNT:
-                raise ModelError(f"initial count of {s} must be a whole number from 0 to "
-                                 f"2**{_MAX_POWER}, got {c!r}", field=f"initial.{s}")
-            x0[index[s]] = c
-        if sum(int(c) for c in x0) > MAX_COUNT:
-            raise ModelError(f"the initial counts add up to more than 2**{_MAX_POWER}",
-                             field="initial")
-        output = dict(output or {})
-        labels = tuple(dict.fromkeys(output.values()))
-        label_index = {label: i for i, label in enumerate(labels)}
-        species_label = np.full(len(species), -1, dtype=np.int64)
-        for s, label in output.items():
-            if s not in index:
-                raise ModelError(f"output for unknown species {s!r}", field="output")
-            if label == NO_CONSENSUS:
-                raise ModelError(f"label {label!r} of {s} is reserved for runs without consensus",
-                                 field=f"output.{s}")
-            species_label[index[s]] = label_index[label]
-        for s in ignore:
-            if s not in index:
-                raise ModelError(f"ignored species {s!r} is not a species", field="ignore")
-            if species_label[index[s]] >= 0:
-                raise ModelError(f"species {s} reports a label and cannot be ignored",
-                                 field="ignore")
-            species_label[index[s]] = IGNORED
+        x0 = _initial_counts(initial or {}, index)
+        labels, species_label = _species_labels(dict(output or {}), ignore, index)
         inputs = None
         if majority is not None:
             if len(majority) != 2 or not all(isinstance(s, str) for s in majority):

@@ -284,7 +284,8 @@ def order_reactants(formal: Network, reactants: Mapping[str, int],
                     load: dict[str, float]) -> tuple[str, str]:
     """First and second reactant of a bimolecular reaction: the first is the one with the
     smaller first-step load so far (ties: network order), which keeps the largest load,
-    and so the buffering every species needs, small."""
+    and so the buffering every species needs, small.
+    """
     names = sorted(reactants, key=lambda s: (load[s], formal.index[s]))
     return names[0], names[1] if len(names) > 1 else names[0]
 

@@ -251,7 +251,8 @@ def ensemble_estimate(net: Network, *, runs: int, until: float, engine: str, wor
 def regime_map_estimate(networks, cells, *, runs_max: int, until, method: str,
                         exact_max: int, workers: int) -> Estimate:
     """A regime map: the largest cell's memory, every cell's time (at most ``runs_max``
-    stochastic runs, or the exact chain where the cell is solved exactly)."""
+    stochastic runs, or the exact chain where the cell is solved exactly).
+    """
     from crn.solvers.configurations import estimate_configurations
     from crn.solvers.simulate import choose_engine, default_horizon
 

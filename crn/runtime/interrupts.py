@@ -55,7 +55,8 @@ def received() -> int | None:
 
 def exit_status() -> int:
     """128 + the signal received: 130 for Ctrl-C (also when no handler recorded it), 143 for
-    SIGTERM."""
+    SIGTERM.
+    """
     return 128 + (_received or signal.SIGINT)
 
 

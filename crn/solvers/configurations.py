@@ -76,10 +76,12 @@ class StateSpace:
 
     @property
     def n_states(self) -> int:
+        """Number of configurations."""
         return int(self.states.shape[0])
 
     @property
     def n_transitions(self) -> int:
+        """Number of transitions between configurations."""
         return int(self.src.shape[0])
 
     def generator(self) -> sp.csr_matrix:
