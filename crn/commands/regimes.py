@@ -16,6 +16,7 @@ from crn.commands.options import (
     CLUSTER_ADDRESS,
     FIGURE_FILE,
     OUTPUT_FILE,
+    RenamedOption,
     emit_json,
     guard,
     guard_options,
@@ -64,6 +65,18 @@ def parse_float_list(text: str, what: str) -> list[float]:
     return [_number(item.strip(), what) for item in text.split(",")]
 
 
+def _gap_fractions(text: str) -> list[float]:
+    """``--gap-fractions``, each checked to lie in (0, 1)."""
+    from crn.analyses.probes import GAP_FRACTION_RANGE
+
+    fractions = parse_float_list(text, "--gap-fractions")
+    for fraction in fractions:
+        if not 0 < fraction < 1:
+            raise CRNError(GAP_FRACTION_RANGE.replace("--gap-fraction", "--gap-fractions", 1)
+                           + f", got {fraction}")
+    return fractions
+
+
 def cell_networks(model_path: str, sets):
     """The per-cell network builder: model parameters n and gap when the TOML model has both."""
     from crn.analyses.probes import InitialSplit, ModelParameters
@@ -103,12 +116,14 @@ def _fmt(value, spec=".3g"):
 @set_option
 @click.option("--n", "n_list", required=True, metavar="LIST",
               help="Population sizes, comma-separated (e.g. 100,1000,1e4).")
-@click.option("--gap", "gap_list", default=None, metavar="LIST",
+@click.option("--gaps", "gap_list", cls=RenamedOption, old=("--gap",), default=None,
+              metavar="LIST",
               help="Absolute gaps, comma-separated; cells whose gap differs from n in parity "
-                   "are skipped.")
-@click.option("--gap-fraction", "fraction_list", default=None, metavar="LIST",
+                   "are skipped (was --gap).")
+@click.option("--gap-fractions", "fraction_list", cls=RenamedOption, old=("--gap-fraction",),
+              default=None, metavar="LIST",
               help="Gaps as fractions of n, each in (0, 1), rounded to the nearest gap of n's "
-                   "parity.")
+                   "parity (was --gap-fraction).")
 @click.option("--risk", type=click.FloatRange(0, 1, min_open=True, max_open=True), default=0.01,
               show_default=True, help="Acceptable probability of disagreeing with the ODE.")
 @click.option("--until", type=click.FloatRange(min=0, min_open=True), default=None, metavar="T",
@@ -158,15 +173,14 @@ def regimes(model, sets, n_list, gap_list, fraction_list, risk, until, runs_max,
     if with_leak_tolerance and settings is None:
         raise CRNError("--leak-tolerance needs --implement SCHEME")
     if (gap_list is None) == (fraction_list is None):
-        raise CRNError("give exactly one of --gap and --gap-fraction")
+        raise CRNError("give exactly one of --gaps and --gap-fractions")
     if workers and cluster:
         raise CRNError("give --workers or --cluster, not both")
     if resume and not out_dir:
         raise CRNError("--resume needs --out DIR (where the results file is)")
     ns = parse_int_list(n_list, "--n")
-    gaps = None if gap_list is None else parse_int_list(gap_list, "--gap")
-    fractions = None if fraction_list is None else parse_float_list(fraction_list,
-                                                                    "--gap-fraction")
+    gaps = None if gap_list is None else parse_int_list(gap_list, "--gaps")
+    fractions = None if fraction_list is None else _gap_fractions(fraction_list)
     cells, skipped = plan_cells(ns, gaps, fractions)
     model_obj, networks = cell_networks(model, sets)
     formal_networks = networks
