@@ -606,6 +606,20 @@ def smallest_n(networks: Callable[[int, int], Network], *, gap_fraction: float |
     (no answer) once the optimistic bound, below the target, has fallen surely
     below an earlier probe (under its pessimistic bound; the best optimistic
     bound at least half the target) and not risen over three probes.
+
+    Examples
+    --------
+    Approximate majority with a gap of a fifth of n, eventual consensus, a 5%
+    risk, every probe solved exactly:
+
+    >>> from crn.analyses.probes import InitialSplit
+    >>> from crn.io.models import load_model
+    >>> net = load_model("models/approximate_majority.toml").network
+    >>> answer = smallest_n(InitialSplit(net), gap_fraction=0.2, risk=0.05, method="exact")
+    >>> answer.estimate, answer.gap_estimate, answer.below
+    (70, 14, 65)
+    >>> [(p.n, round(1 - p.p, 4)) for p in answer.probes if p.n in (65, 70)]
+    [(65, 0.0517), (70, 0.0456)]
     """
     if not 0 < risk < 1:
         raise CRNError(f"risk must lie in (0, 1), got {risk}")

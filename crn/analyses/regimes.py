@@ -467,6 +467,15 @@ def regime_map(networks: Callable[[int, int], Network], ns: Sequence[int], *,
     Angluin, Aspnes, Eisenstat, Distributed Computing 21(2), 2008, and Condon,
     Hajiaghayi, Kirkpatrick, Manuch, Natural Computing 2020: for approximate
     majority the critical gap grows like sqrt(n) up to log factors.
+
+    Examples
+    --------
+    >>> from crn.analyses.probes import InitialSplit
+    >>> from crn.io.models import load_model
+    >>> net = load_model("models/approximate_majority.toml").network
+    >>> result = regime_map(InitialSplit(net), [40], gaps=[2, 8], method="exact", rng=1)
+    >>> [(cell.n, cell.gap, cell.ode_label, round(cell.p_wrong, 4)) for cell in result.cells]
+    [(40, 2, 'X', 0.3746), (40, 8, 'X', 0.0998)]
     """
     if not 0 < risk < 1:
         raise CRNError(f"risk must lie in (0, 1), got {risk}")

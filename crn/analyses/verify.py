@@ -170,6 +170,16 @@ def verify(model_or_protocol, max_n: int, progress=None, *, max_states: int | No
     Angluin, Aspnes, Diamadi, Fischer, Peralta, "Computation in networks of
     passively mobile finite-state sensors", Distributed Computing 18(4), 2006
     (stable computation under fairness: bottom components of the configuration graph).
+
+    Examples
+    --------
+    >>> from crn.io.models import load_model
+    >>> result = verify(load_model("models/exact_majority.toml"), 5)
+    >>> result.correct, result.checked
+    (True, 18)
+    >>> refuted = verify(load_model("models/cancel_spread.toml"), 6)
+    >>> refuted.correct, refuted.counterexample["n"]
+    (False, 5)
     """
     if isinstance(max_n, bool) or int(max_n) != max_n or max_n < 2:
         raise ValueError(f"`max_n` must be a whole number >= 2, got {max_n!r}")

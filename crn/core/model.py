@@ -268,6 +268,26 @@ def parse_model(text: str, *, source: str = "<string>", overrides: Mapping | Non
     ModelError
         For every invalid input, naming the file, the line when it can be
         found, and the field.
+
+    Examples
+    --------
+    >>> model = parse_model('''
+    ... name = "rumour"
+    ... [parameters]
+    ... n = 10
+    ... [initial]
+    ... I = 1
+    ... S = "n - 1"
+    ... [protocol]
+    ... transitions = ["I, S -> I, I"]
+    ... symmetric = true
+    ... [output]
+    ... I = "I"
+    ... ''', overrides={"n": 50})
+    >>> model.network.species, model.network.initial.tolist()
+    (('I', 'S'), [1, 49])
+    >>> [str(r) for r in model.network.reactions()]
+    ['I + S -> 2 I']
     """
     try:
         data = tomllib.loads(text)

@@ -1062,7 +1062,7 @@ def run_batched(net: Network, *, until: float, times=None, rng=None,
     Examples
     --------
     >>> from crn.io.models import load_model
-    >>> net = load_model("models/approximate_majority.toml", {"n": 10**9, "gap": 0}).network
+    >>> net = load_model("models/approximate_majority.toml", {"n": 10**7, "gap": 0}).network
     >>> run = run_batched(net, until=math.inf, rng=1, stop_at_consensus=True)
     >>> run.status, run.outcome.label in ("X", "Y")
     ('consensus', True)

@@ -48,6 +48,15 @@ def load_model(path, overrides=None) -> Model:
     ------
     ModelError
         When the file is missing, unreadable or invalid.
+
+    Examples
+    --------
+    >>> model = load_model("models/approximate_majority.toml", {"n": 20, "gap": 4})
+    >>> model.name, model.kind
+    ('three-state approximate majority', 'protocol')
+    >>> net = model.network
+    >>> net.species, net.initial.tolist(), net.majority
+    (('X', 'Y', 'B'), [12, 8, 0], ('X', 'Y'))
     """
     path = Path(path)
     if not path.is_file():

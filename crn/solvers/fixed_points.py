@@ -337,6 +337,20 @@ def find_fixed_points(net: Network, *, method: str = "auto", starts: int | None 
     Feinberg, "Foundations of Chemical Reaction Network Theory", Springer 2019
     (stoichiometric compatibility classes). Angluin, Aspnes, Eisenstat,
     Distributed Computing 21(2):87-102, 2008 (the tie point of approximate majority).
+
+    Examples
+    --------
+    The four equilibria of approximate majority: the two consensus corners, the
+    all-blank corner and the tie point.
+
+    >>> from crn.io.models import load_model
+    >>> net = load_model("models/approximate_majority.toml", {"n": 20, "gap": 4}).network
+    >>> for point in find_fixed_points(net):
+    ...     print(point.exact, point.classification)
+    {'X': '1', 'Y': '0', 'B': '0'} stable
+    {'X': '0', 'Y': '1', 'B': '0'} stable
+    {'X': '0', 'Y': '0', 'B': '1'} unstable
+    {'X': '1/3', 'Y': '1/3', 'B': '1/3'} saddle
     """
     if method not in ("auto", "exact", "numeric"):
         raise ValueError(f"`method` must be 'auto', 'exact' or 'numeric', got {method!r}")
