@@ -24,6 +24,7 @@ import math
 from collections.abc import Callable
 from dataclasses import dataclass, field
 from fractions import Fraction
+from typing import cast
 
 import numpy as np
 
@@ -131,7 +132,7 @@ class Lattice:
         """Input gap at population ``n`` (a fixed gap or a fraction of n)."""
         if self.fraction is not None:
             return int(self.fraction * n)
-        return int(self.gap)
+        return int(cast(int, self.gap))
 
 
 def lattice(gap_fraction: float | None = None, gap: int | None = None) -> Lattice:
@@ -158,7 +159,7 @@ def lattice(gap_fraction: float | None = None, gap: int | None = None) -> Lattic
             raise CRNError(f"gap fraction {gap_fraction} is not a ratio of small whole numbers")
         step = f.denominator * (1 if (f.denominator - f.numerator) % 2 == 0 else 2)
         return Lattice(first=step, step=step, fraction=f, gap=None)
-    if int(gap) != gap or gap < 1:
+    if gap is None or int(gap) != gap or gap < 1:
         raise CRNError(f"--gap must be a whole number >= 1 (a tie has no majority to find), "
                        f"got {gap}")
     return Lattice(first=int(gap) + 2, step=2, fraction=None, gap=int(gap))
@@ -216,7 +217,7 @@ class Prober:
         self.scale_deadline = bool(scale_deadline)
         self.loading_exact_max = int(loading_exact_max)
         seq = rng if isinstance(rng, np.random.SeedSequence) else np.random.SeedSequence(rng)
-        self.entropy = int(seq.entropy)
+        self.entropy = int(cast(int, seq.entropy))
         self._stream = seq if seq.spawn_key else self.entropy
         self.networks = networks
         self.horizon = horizon
@@ -278,8 +279,7 @@ class Prober:
             if kind == "exact" or self.method == "exact" or found.low >= target or \
                     found.high < target:
                 return found
-        key = (n, gap)
-        store = self._runs.setdefault(key, {"labels": [], "times": np.zeros(0),
+        store = self._runs.setdefault((n, gap), {"labels": [], "times": np.zeros(0),
                                             "horizon": self._horizon(net, deadline)})
         limit = store["horizon"] if deadline is None else deadline
         if deadline is not None and deadline > store["horizon"] * (1 + 1e-12):
@@ -317,7 +317,7 @@ class Prober:
             grid = loading_grid(n, gap, tail)
             totals = grid.totals
             top = int(totals[-1])
-            cost = configurations(self.networks(top, top % 2)) * len(totals)
+            cost = float(configurations(self.networks(top, top % 2)) * len(totals))
             if deadline is not None:
                 # a matrix-exponential action costs about (rate norm) x (deadline) products
                 cost *= 1 + top * float(np.max(self._droplet_deadline(deadline, n, [top]))) / 10

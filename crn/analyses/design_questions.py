@@ -19,6 +19,7 @@ import dataclasses
 import math
 from collections.abc import Callable
 from dataclasses import dataclass, field
+from typing import Any
 
 from crn.analyses.implemented import (
     Diagnosis,
@@ -247,7 +248,8 @@ def leak_tolerance(formal_cells: Callable[[int, int], Network], n: int, gap: int
                           ok=good))
         return good
 
-    answer = dict(n=int(n), gap=int(gap), risk=float(risk), horizon=float(until))
+    answer: dict[str, Any] = dict(n=int(n), gap=int(gap), risk=float(risk),
+                                  horizon=float(until))
     if not ok(0.0):
         return LeakAnswer(None, 0.0, tried=tuple(tried), **answer)
     good, bad = 0.0, None

@@ -20,11 +20,15 @@ import dataclasses
 import math
 from collections.abc import Callable
 from dataclasses import dataclass
+from typing import TYPE_CHECKING
 
 import numpy as np
 
 from crn.core.network import Network
 from crn.core.units import AVOGADRO
+
+if TYPE_CHECKING:
+    from crn.dna.parameters import DnaParameters
 
 __all__ = ["ImplementedCells", "implementation_of", "decision_network", "held_labels",
            "held_matrix",
@@ -75,7 +79,8 @@ def held_labels(impl) -> dict[str, int]:
         labels = {int(net.species_label[net.index[s]]) for s in species}
         return labels.pop() if len(labels) == 1 else -1
 
-    releases = set()  # intermediates that meet a fuel species and release signals: outputs
+    # intermediates that meet a fuel species and release signals: outputs
+    releases: set[str] = set()
     for r in net.reactions():
         if any(impl.roles[x] == "fuel" for x in r.reactants) and \
                 any(impl.roles[x] == "signal" for x in r.products):
@@ -184,7 +189,7 @@ class ImplementedCells:
 
     formal: Callable[[int, int], Network]
     scheme: str
-    params: object
+    params: DnaParameters
     volume_liters: float | None = None
 
     def params_for(self, n: int):

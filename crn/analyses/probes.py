@@ -95,7 +95,7 @@ class InitialSplit:
 
     def __call__(self, n: int, gap: int) -> Network:
         """The network with the inputs split ``n``, ``gap``."""
-        a, b = self.network.inputs
+        a, b = self.network.inputs or (-1, -1)  # never None: checked in __post_init__
         x0 = np.array(self.network.initial, dtype=np.int64)
         x0[a], x0[b] = split_counts(n, gap)
         return self.network.with_initial(x0)

@@ -16,6 +16,7 @@ from __future__ import annotations
 import math
 from collections.abc import Callable, Mapping, Sequence
 from dataclasses import asdict, dataclass, field
+from typing import Any, cast
 
 import numpy as np
 
@@ -132,7 +133,8 @@ class RegimeCell:
     @classmethod
     def from_dict(cls, data: Mapping) -> RegimeCell:
         """The cell :meth:`to_dict` wrote (missing keys read as None)."""
-        return cls(**{k: data.get(k) for k in cls.__dataclass_fields__})
+        fields: dict[str, Any] = {k: data.get(k) for k in cls.__dataclass_fields__}
+        return cls(**fields)
 
 
 @dataclass(frozen=True)
@@ -486,7 +488,7 @@ def regime_map(networks: Callable[[int, int], Network], ns: Sequence[int], *,
     if until is not None and not until > 0:
         raise CRNError(f"until must be positive, got {until}")
     seq = rng if isinstance(rng, np.random.SeedSequence) else np.random.SeedSequence(rng)
-    entropy = int(seq.entropy)
+    entropy = int(cast(int, seq.entropy))
     stream = seq if seq.spawn_key else entropy
     cells, skipped = plan_cells(ns, gaps, gap_fractions)
     finished = {tuple(k): v for k, v in (done or {}).items()}
@@ -524,7 +526,8 @@ def regime_map(networks: Callable[[int, int], Network], ns: Sequence[int], *,
     return RegimeMap(cells=ordered_cells, boundary=fit_boundary(ordered_cells, risk, rng=entropy),
                      risk=float(risk), time_factor=float(time_factor), seed_entropy=entropy,
                      skipped=tuple(skipped),
-                     merged=tuple(merged_fractions(ns, gap_fractions) if gaps is None else ()))
+                     merged=tuple(merged_fractions(ns, gap_fractions or ()) if gaps is None
+                                  else ()))
 
 
 def _critical_gap(rows, risk):
@@ -713,7 +716,7 @@ def merged_fractions(ns: Sequence[int], gap_fractions: Sequence[float]) -> list[
         ``{n, gap, gap_fractions}`` for each cell that stands for two or more
         requested fractions, in grid order.
     """
-    out = []
+    out: list[dict] = []
     for n in ns:
         by_gap: dict[int, list] = {}
         for f in gap_fractions:

@@ -109,10 +109,10 @@ def _step_table(net: Network, protocol: Protocol | None) -> list[dict]:
     def multiset(*names):
         return tuple(sorted(Counter(names).items()))
 
-    steps = []
+    steps: list[dict] = []
     for reaction in net.reactions():
         key = (tuple(sorted(reaction.reactants.items())), tuple(sorted(reaction.products.items())))
-        found = None
+        found: dict | None = None
         for (p, q), outcomes in (protocol.transitions.items() if protocol else ()):
             for o in outcomes:
                 if o.probability > 0 and (multiset(p, q), multiset(o.initiator, o.responder)) \

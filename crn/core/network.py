@@ -201,7 +201,7 @@ class Network:
     volume: float
     initial: np.ndarray
     labels: tuple[str, ...] = ()
-    species_label: np.ndarray = field(default=None)
+    species_label: np.ndarray = field(default=None)  # type: ignore[arg-type]  # set by from_reactions
     inputs: tuple[int, int] | None = None
     from_protocol: bool = False
     about: str = ""

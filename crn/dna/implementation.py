@@ -274,7 +274,7 @@ def signal_strands(side) -> dict[str, int]:
 
 def add_strands(*parts) -> dict[str, int]:
     """Sum strand multisets."""
-    total = Counter()
+    total: Counter[str] = Counter()
     for part in parts:
         total.update(part)
     return dict(total)

@@ -199,10 +199,10 @@ def estimate_configurations(net: Network) -> int:
         bound = int(ways[total])
     else:
         bound = math.prod(total // int(w) + 1 for w in weights)
-    return min(bound, _free_coordinate_bound(net, changing))
+    return int(min(bound, _free_coordinate_bound(net, changing)))
 
 
-def _free_coordinate_bound(net: Network, changing: np.ndarray) -> int:
+def _free_coordinate_bound(net: Network, changing: np.ndarray) -> float:
     """Product of the count ranges of species that fix all others through the conservation laws.
 
     Every reachable x lies in ``x0 + span(stoichiometry)`` with ``x >= 0``;

@@ -14,6 +14,7 @@ from __future__ import annotations
 import math
 import warnings
 from dataclasses import dataclass
+from typing import Any
 
 import numba
 import numpy as np
@@ -262,8 +263,8 @@ def solve_absorption(net: Network, space: StateSpace, *, method: str = "auto",
         stable = stable_consensus(net, space, reverse)
     absorbing = stable >= 0
     probabilities = {label: 0.0 for label in labels}
-    common = dict(states=space.n_states, transitions=space.n_transitions,
-                  correct=correct_label(net), absorbing=int(absorbing.sum()))
+    common: dict[str, Any] = dict(states=space.n_states, transitions=space.n_transitions,
+                                  correct=correct_label(net), absorbing=int(absorbing.sum()))
     if absorbing[0]:
         probabilities[labels[stable[0]]] = 1.0
         probabilities[NO_CONSENSUS] = 0.0
@@ -289,7 +290,7 @@ def solve_absorption(net: Network, space: StateSpace, *, method: str = "auto",
     chosen = method
     if chosen == "auto":
         chosen = "direct" if transient.size <= DIRECT_LIMIT else "iterative"
-    solve = None
+    solve: Any = None
     if chosen == "direct":
         try:
             # minimum degree on A^T + A: generators of protocols are nearly structurally

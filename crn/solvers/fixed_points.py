@@ -283,7 +283,7 @@ def _numeric(net: Network, laws, subspace, starts: int, y0):
         sample = qmc.Halton(d=n, scramble=False).random(starts - 1)[1:]
         weights = -np.log(np.clip(sample, 1e-12, 1 - 1e-12))
         guesses += list(size * weights / weights.sum(axis=1, keepdims=True))
-    found = []
+    found: list[np.ndarray] = []
     scale_f = max(1.0, float(np.abs(system.matrix.data).max(initial=0.0))) * max(size, 1.0) ** 2
     for guess in guesses:
         guess = guess + laws.T @ (target - laws @ guess)

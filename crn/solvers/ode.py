@@ -19,6 +19,7 @@ from __future__ import annotations
 import math
 import weakref
 from dataclasses import dataclass
+from typing import Any
 
 import numpy as np
 import scipy.sparse as sp
@@ -433,7 +434,8 @@ def solve_mean_field(net: Network, *, until=None, times=None, method: str = "LSO
     labels = np.asarray(net.species_label)
     n_labels = len(net.labels)
     units = "fraction" if net.from_protocol else "concentration"
-    common = dict(species=net.species, units=units, molecules_per_unit=scale, method=method)
+    common: dict[str, Any] = dict(species=net.species, units=units, molecules_per_unit=scale,
+                                  method=method)
 
     start = mean_field_consensus_index(labels, n_labels, y0, scale)
     if start >= 0 and stop_at_consensus and times is None:

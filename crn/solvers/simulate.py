@@ -86,7 +86,7 @@ class Ensemble:
     statuses: list
     until: float
     species: tuple
-    run_index: np.ndarray = field(default=None)
+    run_index: np.ndarray = field(default=None)  # type: ignore[arg-type]  # filled in __post_init__
     requested: int = 0
     outcome_labels: tuple = ()
 

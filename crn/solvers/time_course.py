@@ -25,6 +25,7 @@ from __future__ import annotations
 
 import math
 from dataclasses import dataclass
+from typing import Any
 
 import numpy as np
 
@@ -245,7 +246,7 @@ class TimeCourse:
         dict
             ``time`` and, per statistic present, species -> value (NaN as None).
         """
-        out = {"time": float(self.times[index])}
+        out: dict[str, Any] = {"time": float(self.times[index])}
         for name in ("mean", "sd", "q05", "q95"):
             values = getattr(self, name)
             if values is not None:
