@@ -24,7 +24,7 @@ import math
 from collections.abc import Callable
 from dataclasses import dataclass, field
 from fractions import Fraction
-from typing import cast
+from typing import TYPE_CHECKING, cast
 
 import numpy as np
 
@@ -52,6 +52,9 @@ from crn.core.loading import (
 from crn.core.network import Network
 from crn.core.outcome import correct_label
 from crn.core.units import concentration_for, to_seconds, volume_for
+
+if TYPE_CHECKING:
+    from crn.core.types import Seed
 
 __all__ = ["Probe", "CopiesResult", "Prober", "Lattice", "lattice", "smallest_n",
            "physical_outputs", "p_wrong_summary"]
@@ -206,8 +209,8 @@ class Prober:
 
     def __init__(self, networks: Callable[[int, int], Network], *, horizon: float | None = None,
                  method: str = "auto", exact_max: int = 100_000, transient_max: int = 10_000,
-                 runs_max: int = 4000, rng=None, workers: int = 1, cluster=None,
-                 loading: str = "fixed", scale_deadline: bool = False,
+                 runs_max: int = 4000, rng: Seed = None, workers: int = 1,
+                 cluster: str | None = None, loading: str = "fixed", scale_deadline: bool = False,
                  loading_exact_max: int = 300_000):
         if method not in ("auto", "exact", "stochastic"):
             raise CRNError(f"method must be auto, exact or stochastic, got {method!r}")
@@ -562,8 +565,8 @@ def smallest_n(networks: Callable[[int, int], Network], *, gap_fraction: float |
                gap: int | None = None, risk: float = 0.01,
                deadline: float | Callable[[int], float] | None = None, n_max: int = 10**7,
                prober: Prober | None = None, method: str = "auto", runs_max: int = 4000,
-               rng=None, workers: int = 1, cluster=None, loading: str = "fixed",
-               scale_deadline: bool = False) -> CopiesResult:
+               rng: Seed = None, workers: int = 1, cluster: str | None = None,
+               loading: str = "fixed", scale_deadline: bool = False) -> CopiesResult:
     """Smallest n with P(correct consensus by the deadline) >= 1 - risk, on the safe side.
 
     The answer is the smallest lattice n (by doubling and bisection) whose
@@ -699,7 +702,7 @@ def physical_outputs(n: int | None, *, concentration_molar: float | None = None,
             "hours": None if seconds is None else seconds / 3600.0}
 
 
-def p_wrong_summary(probe) -> dict | None:
+def p_wrong_summary(probe: Probe | None) -> dict | None:
     """P(no correct decision by the deadline) at a probe, with its 95% interval.
 
     Parameters

@@ -19,7 +19,7 @@ import dataclasses
 import math
 from collections.abc import Callable
 from dataclasses import dataclass, field
-from typing import Any
+from typing import TYPE_CHECKING, Any
 
 from crn.analyses.implemented import (
     Diagnosis,
@@ -30,6 +30,10 @@ from crn.analyses.implemented import (
 )
 from crn.core.errors import CRNError
 from crn.core.network import Network
+
+if TYPE_CHECKING:
+    from crn.core.types import Seed
+    from crn.dna.parameters import DnaParameters
 
 __all__ = ["FuelAnswer", "fuel_for_time", "LeakAnswer", "leak_tolerance",
            "ImplementationCopies", "implementation_copies"]
@@ -74,7 +78,7 @@ def _ode_time(net: Network, until: float) -> float | None:
     return ode_decision(net, until)[1]
 
 
-def fuel_for_time(formal: Network, scheme: str, params, *, tolerance: float = 0.1,
+def fuel_for_time(formal: Network, scheme: str, params: DnaParameters, *, tolerance: float = 0.1,
                   excess_min: float = 2.0, excess_max: float = 1e4,
                   refine: int = 6) -> FuelAnswer:
     """Smallest fuel excess whose implementation decides within ``tolerance`` of the formal time.
@@ -182,8 +186,9 @@ class LeakAnswer:
 
 
 def leak_tolerance(formal_cells: Callable[[int, int], Network], n: int, gap: int,
-                   scheme: str, params, *, risk: float = 0.01, runs_max: int = 1000,
-                   rng=None, leak_start: float = 0.01, leak_max: float = 1e6,
+                   scheme: str, params: DnaParameters, *, risk: float = 0.01,
+                   runs_max: int = 1000, rng: Seed = None, leak_start: float = 0.01,
+                   leak_max: float = 1e6,
                    refine: int = 3, until: float | None = None) -> LeakAnswer:
     """Largest leak rate constant at which the implementation's cell (n, gap) stays ``ok``.
 
@@ -302,10 +307,11 @@ class ImplementationCopies:
     diagnosis: Diagnosis | None = None
 
 
-def implementation_copies(formal_cells: Callable[[int, int], Network], scheme: str, params, *,
-                          volume_liters: float | None = None, gap_fraction=None, gap=None,
-                          risk: float = 0.01, deadline=None, n_max: int = 10**7,
-                          method: str = "auto", runs_max: int = 4000, rng=None,
+def implementation_copies(formal_cells: Callable[[int, int], Network], scheme: str,
+                          params: DnaParameters, *, volume_liters: float | None = None,
+                          gap_fraction: float | None = None, gap: int | None = None,
+                          risk: float = 0.01, deadline: float | None = None, n_max: int = 10**7,
+                          method: str = "auto", runs_max: int = 4000, rng: Seed = None,
                           workers: int = 1, with_formal: bool = True) -> ImplementationCopies:
     """Smallest population meeting the risk on the implementation, beside the formal answer.
 
@@ -328,8 +334,9 @@ def implementation_copies(formal_cells: Callable[[int, int], Network], scheme: s
     """
     from crn.analyses.copies import smallest_n
 
-    common = dict(gap_fraction=gap_fraction, gap=gap, risk=risk, deadline=deadline, n_max=n_max,
-                  method=method, runs_max=runs_max, rng=rng, workers=workers)
+    common: dict[str, Any] = dict(gap_fraction=gap_fraction, gap=gap, risk=risk,
+                                  deadline=deadline, n_max=n_max, method=method,
+                                  runs_max=runs_max, rng=rng, workers=workers)
     cells = ImplementedCells(formal_cells, scheme, params, volume_liters)
     formal = smallest_n(formal_cells, **common) if with_formal else None
     implemented = smallest_n(cells, **common)

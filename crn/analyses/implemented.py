@@ -20,7 +20,7 @@ import dataclasses
 import math
 from collections.abc import Callable
 from dataclasses import dataclass
-from typing import TYPE_CHECKING
+from typing import TYPE_CHECKING, Any
 
 import numpy as np
 
@@ -28,7 +28,10 @@ from crn.core.network import Network
 from crn.core.units import AVOGADRO
 
 if TYPE_CHECKING:
+    from crn.dna.implementation import Implementation
     from crn.dna.parameters import DnaParameters
+    from crn.solvers.ode import MeanFieldResult
+    from crn.solvers.simulate import Ensemble
 
 __all__ = ["ImplementedCells", "implementation_of", "decision_network", "held_labels",
            "held_matrix",
@@ -39,7 +42,7 @@ __all__ = ["ImplementedCells", "implementation_of", "decision_network", "held_la
 FUEL_OUT = 0.05
 
 
-def held_labels(impl) -> dict[str, int]:
+def held_labels(impl: Implementation) -> dict[str, int]:
     """Label index each intermediate species reports: what it holds, in formal terms.
 
     The rule (the same formal state the intermediate stands for): an
@@ -93,15 +96,15 @@ def held_labels(impl) -> dict[str, int]:
         if held:
             out[s] = common(held)
             continue
-        module = module_of.get(s)
-        if s not in releases or module is None or module.formal is None:
+        owner = module_of.get(s)
+        if s not in releases or owner is None or owner.formal is None:
             continue
-        products = formal.reaction(module.formal).products
+        products = formal.reaction(owner.formal).products
         out[s] = common(products) if products else IGNORED
     return out
 
 
-def held_matrix(impl) -> np.ndarray:
+def held_matrix(impl: Implementation) -> np.ndarray:
     """Signal strands each implementation species carries while not consumed.
 
     Returns
@@ -126,7 +129,7 @@ def held_matrix(impl) -> np.ndarray:
     return out
 
 
-def decision_network(impl) -> Network:
+def decision_network(impl: Implementation) -> Network:
     """``impl.network`` with its intermediates labelled by :func:`held_labels`.
 
     The network every analysis runs on: decisions are read from the signal
@@ -143,7 +146,7 @@ def decision_network(impl) -> Network:
     return _dc.replace(net, species_label=labels)
 
 
-def implementation_of(formal: Network, scheme: str, params):
+def implementation_of(formal: Network, scheme: str, params: DnaParameters) -> Implementation:
     """Implement one formal network in DNA (:func:`crn.dna.implement`), for analysis.
 
     The returned implementation's ``network`` is :func:`decision_network`'s:
@@ -192,14 +195,14 @@ class ImplementedCells:
     params: DnaParameters
     volume_liters: float | None = None
 
-    def params_for(self, n: int):
+    def params_for(self, n: int) -> DnaParameters:
         """The DNA parameters of the cell with n agents."""
         if self.volume_liters is None:
             return self.params
         return dataclasses.replace(self.params,
                                    concentration=int(n) / (self.volume_liters * AVOGADRO))
 
-    def implementation(self, n: int, gap: int):
+    def implementation(self, n: int, gap: int) -> Implementation:
         """The :class:`crn.dna.Implementation` of cell (n, gap)."""
         return implementation_of(self.formal(int(n), int(gap)), self.scheme, self.params_for(n))
 
@@ -207,7 +210,7 @@ class ImplementedCells:
         """The implementation's network of cell ``(n, gap)``."""
         return self.implementation(n, gap).network
 
-    def with_params(self, **changes) -> ImplementedCells:
+    def with_params(self, **changes: Any) -> ImplementedCells:
         """The same builder with some DNA parameters changed (``leak=...``, ``fuel=...``)."""
         return dataclasses.replace(self, params=dataclasses.replace(self.params, **changes))
 
@@ -231,7 +234,7 @@ def formal_ode_horizon(formal: Network) -> float:
     return float(default_horizon(formal))
 
 
-def fuel_left_ode(impl, result) -> dict[str, float]:
+def fuel_left_ode(impl: Implementation, result: MeanFieldResult) -> dict[str, float]:
     """Fraction of each fuel species left at the end of a mean-field solve of ``impl.network``.
 
     Parameters
@@ -252,7 +255,7 @@ def fuel_left_ode(impl, result) -> dict[str, float]:
                                if values.shape[0] else last)
 
 
-def fuel_left_runs(impl, ensemble) -> dict[str, float]:
+def fuel_left_runs(impl: Implementation, ensemble: Ensemble) -> dict[str, float]:
     """Mean over the runs of the fraction of each fuel species left at the last sample time.
 
     Parameters
@@ -336,7 +339,7 @@ def _decides(net: Network, until: float):
     return result
 
 
-def diagnose(formal: Network, scheme: str, params, until: float) -> Diagnosis:
+def diagnose(formal: Network, scheme: str, params: DnaParameters, until: float) -> Diagnosis:
     """Compare the implementation's mean-field decision with the formal one, and say why it fails.
 
     Parameters

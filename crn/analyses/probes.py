@@ -12,11 +12,15 @@ import math
 from collections.abc import Callable
 from dataclasses import dataclass
 from functools import lru_cache
+from typing import TYPE_CHECKING
 
 import numpy as np
 
 from crn.core.errors import CRNError
 from crn.core.network import Network
+
+if TYPE_CHECKING:
+    from crn.core.types import SeedLike
 
 __all__ = [
     "InitialSplit",
@@ -123,7 +127,7 @@ class ModelParameters:
         return parse_model(self.text, source=self.source, overrides=values).network
 
 
-def cell_seed(entropy, *key: int) -> np.random.SeedSequence:
+def cell_seed(entropy: int | np.random.SeedSequence, *key: int) -> np.random.SeedSequence:
     """The child stream of one cell (and round): same key, same numbers, in any order.
 
     A child of the root SeedSequence addressed by its spawn key, as
@@ -172,7 +176,7 @@ def exact_decision(net: Network, until: float | None = None) -> dict:
     return {k: float(v) for k, v in probabilities.items()}
 
 
-def exact_absorption(net: Network):
+def exact_absorption(net: Network) -> tuple[dict[str, float], float, float]:
     """Eventual consensus probabilities and the mean and std of the time to it.
 
     Returns
@@ -346,8 +350,9 @@ def sample_until_decided(count: Callable[[], tuple[int, int]],
         draw(index, schedule[index] - n)
 
 
-def stochastic_decisions(net: Network, runs: int, until: float, rng, *, workers=1,
-                         cluster=None, engine: str = "auto"):
+def stochastic_decisions(net: Network, runs: int, until: float, rng: SeedLike, *,
+                         workers: int | None = 1, cluster: str | None = None,
+                         engine: str = "auto") -> tuple[list, np.ndarray]:
     """First-consensus labels and times of ``runs`` seeded stochastic runs.
 
     Returns

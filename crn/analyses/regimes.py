@@ -16,7 +16,7 @@ from __future__ import annotations
 import math
 from collections.abc import Callable, Mapping, Sequence
 from dataclasses import asdict, dataclass, field
-from typing import Any, cast
+from typing import TYPE_CHECKING, Any, cast
 
 import numpy as np
 
@@ -33,6 +33,9 @@ from crn.analyses.probes import (
 from crn.core.errors import CRNError
 from crn.core.network import Network
 from crn.core.outcome import correct_label
+
+if TYPE_CHECKING:
+    from crn.core.types import Seed, SeedLike
 
 __all__ = [
     "FLAGS",
@@ -249,7 +252,8 @@ def time_flag(ssa_median: float | None, ode_time: float | None, factor: float, *
 
 
 def plan_cells(ns: Sequence[int], gaps: Sequence[int] | None = None,
-               gap_fractions: Sequence[float] | None = None):
+               gap_fractions: Sequence[float] | None = None
+               ) -> tuple[list[tuple[int, int]], list[tuple[int, int]]]:
     """The (n, gap) cells of a sweep, in order, and the cells skipped.
 
     Parameters
@@ -317,7 +321,8 @@ def _median_time(times: np.ndarray) -> float | None:
 def evaluate_cell(networks: Callable[[int, int], Network], n: int, gap: int, *,
                   risk: float = 0.01, until: float | None = None, runs_max: int = 1000,
                   time_factor: float = 2.0, method: str = "auto",
-                  exact_max: int = DEFAULT_EXACT_MAX, entropy=0, cluster=None,
+                  exact_max: int = DEFAULT_EXACT_MAX, entropy: int | np.random.SeedSequence = 0,
+                  cluster: str | None = None,
                   timing_runs: int = _TIMING_RUNS) -> RegimeCell:
     """Compute one cell of a regime map.
 
@@ -424,8 +429,8 @@ def regime_map(networks: Callable[[int, int], Network], ns: Sequence[int], *,
                gaps: Sequence[int] | None = None, gap_fractions: Sequence[float] | None = None,
                risk: float = 0.01, until: float | None = None, runs_max: int = 1000,
                time_factor: float = 2.0, method: str = "auto",
-               exact_max: int = DEFAULT_EXACT_MAX, rng=None, workers: int | None = None,
-               cluster=None, done: Mapping | None = None,
+               exact_max: int = DEFAULT_EXACT_MAX, rng: Seed = None,
+               workers: int | None = None, cluster: str | None = None, done: Mapping | None = None,
                on_cell: Callable[[RegimeCell], None] | None = None,
                progress: Callable | None = None) -> RegimeMap:
     """Sweep n and the gap; flag where the mean field misleads; fit the boundary.
@@ -493,8 +498,9 @@ def regime_map(networks: Callable[[int, int], Network], ns: Sequence[int], *,
     cells, skipped = plan_cells(ns, gaps, gap_fractions)
     finished = {tuple(k): v for k, v in (done or {}).items()}
     todo = [c for c in cells if c not in finished]
-    options = dict(risk=risk, until=until, runs_max=int(runs_max), time_factor=time_factor,
-                   method=method, exact_max=exact_max, entropy=stream, cluster=cluster)
+    options: dict[str, Any] = dict(risk=risk, until=until, runs_max=int(runs_max),
+                                   time_factor=time_factor, method=method, exact_max=exact_max,
+                                   entropy=stream, cluster=cluster)
     total, count = len(cells), len(cells) - len(todo)
     if progress:
         progress(count, total)
@@ -647,7 +653,7 @@ def _bootstrap_slopes(cells, risk, generator, replicates):
     return ((w * (x - xm) * (y - ym)).sum(axis=1) / (w * (x - xm) ** 2).sum(axis=1))
 
 
-def fit_boundary(cells: Sequence[RegimeCell], risk: float, *, rng=None,
+def fit_boundary(cells: Sequence[RegimeCell], risk: float, *, rng: SeedLike = None,
                  replicates: int = 2000) -> Boundary:
     """Fit ``log gap_c = log a + b log n`` over the n that have a crossing.
 

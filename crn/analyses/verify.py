@@ -13,6 +13,7 @@ from __future__ import annotations
 
 from collections import Counter
 from dataclasses import dataclass, field
+from typing import TYPE_CHECKING
 
 import numpy as np
 from scipy.sparse.csgraph import connected_components
@@ -23,6 +24,13 @@ from crn.core.outcome import NO_CONSENSUS, TIE, correct_label
 from crn.core.protocol import Protocol
 from crn.core.translate import network_to_protocol, protocol_to_network
 from crn.solvers.configurations import consensus_labels, enumerate_configurations
+
+if TYPE_CHECKING:
+    from collections.abc import Callable
+
+    import scipy.sparse as sp
+
+    from crn.core.model import Model
 
 __all__ = ["VerifyResult", "verify", "bottom_components"]
 
@@ -63,7 +71,7 @@ class VerifyResult:
     largest: int = 0
 
 
-def bottom_components(adjacency) -> tuple[np.ndarray, np.ndarray]:
+def bottom_components(adjacency: sp.csr_matrix) -> tuple[np.ndarray, np.ndarray]:
     """Strongly connected components and which of them are bottom (no edge leaves them).
 
     Parameters
@@ -125,7 +133,8 @@ def _step_table(net: Network, protocol: Protocol | None) -> list[dict]:
     return steps
 
 
-def verify(model_or_protocol, max_n: int, progress=None, *, max_states: int | None = None,
+def verify(model_or_protocol: Model | Protocol, max_n: int,
+           progress: Callable[[int, int], None] | None = None, *, max_states: int | None = None,
            stop_at_first: bool = True) -> VerifyResult:
     """Check stable computation of the majority for every n in 2..max_n and every input split.
 

@@ -59,6 +59,8 @@ _HOME = {
     "Protocol": "protocol",
     "is_identifier": "protocol",
     "time_summary": "stats",
+    "Seed": "types",
+    "SeedLike": "types",
     "wilson_interval": "stats",
     "network_to_protocol": "translate",
     "protocol_to_network": "translate",
