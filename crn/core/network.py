@@ -16,6 +16,7 @@ import numpy as np
 
 if TYPE_CHECKING:
     import scipy.sparse as sp
+    from numpy.typing import ArrayLike
 
 from crn.core.errors import ModelError
 from crn.core.protocol import is_identifier
@@ -393,7 +394,8 @@ class Network:
             return None
         return self.species[self.inputs[0]], self.species[self.inputs[1]]
 
-    def with_initial(self, initial, volume: float | None = None) -> Network:
+    def with_initial(self, initial: Mapping[str, int] | ArrayLike,
+                     volume: float | None = None) -> Network:
         """Return the same network with other initial counts (and optionally volume).
 
         Parameters
@@ -428,7 +430,7 @@ class Network:
             volume = max(int(x0.sum()) - 1, 1)
         return _replace(self, initial=_frozen(x0, np.int64), volume=float(volume or self.volume))
 
-    def with_rates(self, rates) -> Network:
+    def with_rates(self, rates: ArrayLike) -> Network:
         """Return the same network with other rate constants.
 
         Parameters
@@ -460,7 +462,7 @@ def _side_matrix(species, counts, n_species):
     )
 
 
-def propensities(net: Network, x) -> np.ndarray:
+def propensities(net: Network, x: ArrayLike) -> np.ndarray:
     """Stochastic propensities at molecule counts ``x``.
 
     ``k * prod_s x_s (x_s - 1) ... (x_s - r_s + 1) / v**(order - 1)``: ordered
@@ -488,7 +490,7 @@ def propensities(net: Network, x) -> np.ndarray:
     return net.rates * factor.prod(axis=1) / net.volume ** (net.orders - 1.0)
 
 
-def deterministic_rates(net: Network, c) -> np.ndarray:
+def deterministic_rates(net: Network, c: ArrayLike) -> np.ndarray:
     """Mass-action reaction rates ``k * prod_s c_s**r_s`` at concentrations ``c``.
 
     Parameters

@@ -27,6 +27,7 @@ import math
 from collections import Counter
 from collections.abc import Mapping
 from dataclasses import dataclass, field
+from typing import TYPE_CHECKING
 
 import numpy as np
 
@@ -34,6 +35,9 @@ from crn.core.errors import CRNError
 from crn.core.network import MAX_COUNT, Network, Reaction
 from crn.core.protocol import is_identifier
 from crn.dna.parameters import DnaParameterError, DnaParameters
+
+if TYPE_CHECKING:
+    from numpy.typing import ArrayLike
 
 __all__ = ["ROLES", "Implementation", "Module", "Builder", "formal_reactions", "signal_strands",
            "add_strands", "buffer_modules", "order_reactants"]
@@ -113,7 +117,7 @@ class Implementation:
         """The species with ``role``, in network order."""
         return [s for s in self.network.species if self.roles[s] == role]
 
-    def fuel_remaining(self, counts) -> dict[str, float]:
+    def fuel_remaining(self, counts: ArrayLike) -> dict[str, float]:
         """Fraction of each fuel species left at molecule counts ``counts``.
 
         Parameters

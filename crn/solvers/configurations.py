@@ -14,6 +14,7 @@ from __future__ import annotations
 import math
 from dataclasses import dataclass
 from fractions import Fraction
+from typing import TYPE_CHECKING
 
 import numba
 import numpy as np
@@ -22,6 +23,9 @@ import scipy.sparse as sp
 from crn.core.errors import CRNError
 from crn.core.network import Network
 from crn.core.outcome import consensus_index
+
+if TYPE_CHECKING:
+    from collections.abc import Callable
 
 __all__ = [
     "DEFAULT_MAX_STATES",
@@ -386,7 +390,8 @@ def _grow(array, size, fill=0):
 
 
 def enumerate_configurations(net: Network, *, max_states: int | None = None,
-                             truncate: bool = False, progress=None) -> StateSpace:
+                             truncate: bool = False,
+                             progress: Callable[[int, int], None] | None = None) -> StateSpace:
     """Breadth-first enumeration of the configurations reachable from ``net.initial``.
 
     Parameters

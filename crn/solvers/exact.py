@@ -14,7 +14,7 @@ from __future__ import annotations
 import math
 import warnings
 from dataclasses import dataclass
-from typing import Any
+from typing import TYPE_CHECKING, Any
 
 import numba
 import numpy as np
@@ -32,6 +32,9 @@ from crn.solvers.configurations import (
     estimate_configurations,
     estimate_memory,
 )
+
+if TYPE_CHECKING:
+    from collections.abc import Callable
 
 __all__ = [
     "DIRECT_LIMIT",
@@ -138,7 +141,8 @@ def _can_reach(reverse: sp.csr_matrix, seeds: np.ndarray) -> np.ndarray:
                            np.ascontiguousarray(seeds, dtype=np.bool_))
 
 
-def stable_consensus(net: Network, space: StateSpace, reverse=None) -> np.ndarray:
+def stable_consensus(net: Network, space: StateSpace,
+                     reverse: sp.csr_matrix | None = None) -> np.ndarray:
     """Label of the stable consensus of each configuration, or -1.
 
     A configuration is in stable consensus on L when every agent reports L
@@ -179,7 +183,8 @@ def _limit_check(net: Network, limit: int) -> int:
 
 
 def exact_outcomes(net: Network, *, max_states: int | None = None, method: str = "auto",
-                   progress=None, absorb: str = "stable") -> ExactResult:
+                   progress: Callable[[int, int], None] | None = None,
+                   absorb: str = "stable") -> ExactResult:
     """Exact probability of each stable consensus and moments of the time to reach it.
 
     Let A_L be the configurations of stable consensus on label L (closed
@@ -363,8 +368,8 @@ def _iterative_solver(system):
     return solve, info
 
 
-def transient_outcomes(net: Network, until, *, max_states: int | None = None,
-                       progress=None) -> dict:
+def transient_outcomes(net: Network, until: float, *, max_states: int | None = None,
+                       progress: Callable[[int, int], None] | None = None) -> dict:
     """Probability that the population is in stable consensus on each label by time ``until``.
 
     Finite state projection: the configurations reachable from the initial

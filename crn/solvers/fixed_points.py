@@ -14,6 +14,7 @@ from __future__ import annotations
 
 import warnings
 from dataclasses import dataclass, field
+from typing import TYPE_CHECKING
 
 import numpy as np
 import scipy.linalg as la
@@ -21,6 +22,9 @@ import scipy.linalg as la
 from crn.core.network import Network
 from crn.core.outcome import label_name, mean_field_consensus_index
 from crn.solvers.ode import initial_state, mean_field_system, molecules_per_unit
+
+if TYPE_CHECKING:
+    from numpy.typing import ArrayLike
 
 __all__ = [
     "FixedPoint",
@@ -103,7 +107,7 @@ def conservation_basis(net: Network) -> tuple[np.ndarray, np.ndarray]:
     return vectors[:, null].T, vectors[:, ~null]
 
 
-def classify(eigenvalues, tol: float | None = None) -> str:
+def classify(eigenvalues: ArrayLike, tol: float | None = None) -> str:
     """Stability class from restricted eigenvalues.
 
     Parameters
@@ -132,7 +136,8 @@ def classify(eigenvalues, tol: float | None = None) -> str:
     return "saddle"
 
 
-def restricted_eigenvalues(net: Network, point, subspace=None):
+def restricted_eigenvalues(net: Network, point: ArrayLike, subspace: np.ndarray | None = None
+                           ) -> tuple[np.ndarray, np.ndarray]:
     """Eigenvalues and eigenvectors of the Jacobian restricted to the stoichiometric subspace.
 
     The field ``f`` takes values in the stoichiometric subspace (spanned by

@@ -19,7 +19,7 @@ from __future__ import annotations
 import math
 import weakref
 from dataclasses import dataclass
-from typing import Any
+from typing import TYPE_CHECKING, Any
 
 import numpy as np
 import scipy.sparse as sp
@@ -28,6 +28,10 @@ from scipy.integrate import solve_ivp
 from crn.core.errors import CRNError
 from crn.core.network import Network
 from crn.core.outcome import RunOutcome, mean_field_consensus_index
+
+if TYPE_CHECKING:
+    from collections.abc import Callable, Sequence
+
 
 __all__ = [
     "MeanFieldResult",
@@ -133,7 +137,7 @@ class MeanFieldSystem:
         ext[self.n_species] = 1.0
         return ext
 
-    def monomials(self, y) -> np.ndarray:
+    def monomials(self, y: np.ndarray) -> np.ndarray:
         """``psi_c(y) = prod_s y_s**r_sc`` for every complex, shape (n_complexes,)."""
         ext = self._extended(y)
         out = np.take(ext, self._columns[0])
@@ -141,11 +145,11 @@ class MeanFieldSystem:
             out *= np.take(ext, column)
         return out
 
-    def rhs(self, t, y) -> np.ndarray:
+    def rhs(self, t: float, y: np.ndarray) -> np.ndarray:
         """``f(y)``, shape (n_species,); ``t`` is ignored (autonomous law)."""
         return self.matrix @ self.monomials(y)
 
-    def jacobian(self, t, y) -> sp.csr_matrix:
+    def jacobian(self, t: float, y: np.ndarray) -> sp.csr_matrix:
         """``df/dy`` as a CSR matrix, shape (n_species, n_species); ``t`` is ignored."""
         ext = self._extended(y)
         weights = self._term_value.copy()
@@ -183,7 +187,7 @@ def mean_field_system(net: Network) -> MeanFieldSystem:
     return system
 
 
-def mean_field_rhs(net: Network):
+def mean_field_rhs(net: Network) -> Callable[[float, np.ndarray], np.ndarray]:
     """The right-hand side ``f(t, y)`` of the mean-field ODE.
 
     Parameters
@@ -203,7 +207,7 @@ def mean_field_rhs(net: Network):
     return mean_field_system(net).rhs
 
 
-def mean_field_jacobian(net: Network):
+def mean_field_jacobian(net: Network) -> Callable[[float, np.ndarray], sp.csr_matrix]:
     """The analytic Jacobian ``J(t, y) = df/dy`` of the mean-field ODE.
 
     Parameters
@@ -366,7 +370,9 @@ def _clip_roundoff(values: np.ndarray, rtol: float, atol: float) -> np.ndarray:
     return np.where((values <= 0) & (values >= -tol), 0.0, values)  # -0.0 too
 
 
-def solve_mean_field(net: Network, *, until=None, times=None, method: str = "LSODA",
+def solve_mean_field(net: Network, *, until: float | None = None,
+                     times: Sequence[float] | np.ndarray | None = None,
+                     method: str = "LSODA",
                      rtol: float = 1e-10, atol: float = 1e-12,
                      stop_at_consensus: bool = True) -> MeanFieldResult:
     """Solve the mean-field ODE of a network from its initial state.

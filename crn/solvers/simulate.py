@@ -14,6 +14,7 @@ import os
 import warnings
 from collections.abc import Callable
 from dataclasses import dataclass, field
+from typing import TYPE_CHECKING
 
 import numpy as np
 
@@ -23,6 +24,14 @@ from crn.core.outcome import NO_CONSENSUS, tally
 from crn.core.stats import time_summary
 from crn.engines import ENGINES
 from crn.engines.base import Trajectory
+
+if TYPE_CHECKING:
+    from collections.abc import Sequence
+
+    from numpy.typing import ArrayLike
+
+    from crn.core.types import SeedLike
+    from crn.solvers.time_course import TimeCourseAccumulator
 
 __all__ = ["Ensemble", "SimulationInterrupted", "simulate", "ENGINES", "choose_engine",
            "default_horizon", "run_chunk", "probe_scheduler", "AUTO_BATCHED_FROM"]
@@ -110,8 +119,10 @@ class Ensemble:
         return time_summary(self.consensus_times)
 
     @classmethod
-    def from_trajectories(cls, trajectories, *, engine, seed_entropy, until, species,
-                          times, run_index=None, requested=None, outcome_labels=()
+    def from_trajectories(cls, trajectories: Sequence[Trajectory], *, engine: str,
+                          seed_entropy: int, until: float, species: Sequence[str],
+                          times: np.ndarray, run_index: ArrayLike | None = None,
+                          requested: int | None = None, outcome_labels: Sequence[str] = ()
                           ) -> Ensemble:
         """Collect runs (in run order) into an ensemble."""
         trajectories = list(trajectories)
@@ -211,8 +222,9 @@ def _engine(name: str) -> Callable[..., Trajectory]:
     return getattr(importlib.import_module(module), attr)
 
 
-def run_chunk(net: Network, engine: str, until: float, times, stop_at_consensus: bool,
-              seeds, run_index: int | None = None) -> list[Trajectory]:
+def run_chunk(net: Network, engine: str, until: float, times: np.ndarray | None,
+              stop_at_consensus: bool, seeds: Sequence[np.random.SeedSequence],
+              run_index: int | None = None) -> list[Trajectory]:
     """Run one engine once per child seed (the task sent to pool and cluster workers).
 
     ``run_index`` (the index of the first seed's run) serves the worker-fault test hook.
@@ -248,10 +260,11 @@ def _root(rng) -> np.random.SeedSequence:
     raise TypeError(f"`rng` must be a Generator, int, SeedSequence or None, got {type(rng)}")
 
 
-def simulate(net: Network, *, runs: int = 1, until: float | None = None, times=None,
-             engine: str = "auto", rng=None, workers: int | None = None,
-             cluster: str | None = None, stop_at_consensus: bool = False,
-             progress: Callable[[int, int], None] | None = None, reduce=None) -> Ensemble:
+def simulate(net: Network, *, runs: int = 1, until: float | None = None,
+             times: ArrayLike | None = None, engine: str = "auto", rng: SeedLike = None,
+             workers: int | None = None, cluster: str | None = None,
+             stop_at_consensus: bool = False, progress: Callable[[int, int], None] | None = None,
+             reduce: TimeCourseAccumulator | None = None) -> Ensemble:
     """Run an ensemble of exact stochastic simulations.
 
     Parameters
