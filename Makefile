@@ -40,7 +40,7 @@ test-slow: $(TEST_STAMP)
 # ruff (style, complexity, numpy docstrings) and mypy on the public API; both configured in
 # pyproject.toml
 lint: $(TEST_STAMP)
-	$(BIN)/ruff check crn tests benchmarks
+	$(BIN)/ruff check crn tests benchmarks conftest.py
 	$(BIN)/mypy
 
 bench: $(STAMP)
