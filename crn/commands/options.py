@@ -360,7 +360,7 @@ class FigureFile(OutputFile):
     """An :class:`OutputFile` whose suffix names a figure format matplotlib writes (or none:
     PNG), checked before any work starts."""
 
-    name = "figure"
+    name = "file"
 
     def convert(self, value, param, ctx):
         from pathlib import Path

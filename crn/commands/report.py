@@ -96,7 +96,7 @@ def _ints(text, what):
 @click.option("--risk", type=click.FloatRange(0, 1, min_open=True, max_open=True), default=0.01,
               show_default=True, help="Acceptable probability of a wrong decision.")
 @click.option("--gap-fraction", type=click.FloatRange(0, 1, min_open=True, max_open=True),
-              default=None, help="Gap (share of n) of the copies answer; without it, no "
+              default=None, metavar="F", help="Gap (share of n) of the copies answer; without it, no "
                                  "copies section unless saved.")
 @click.option("--deadline", default=None, metavar="T",
               help="Deadline of the copies answer, e.g. 2h (needs --rate and --concentration).")
