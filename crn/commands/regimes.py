@@ -138,7 +138,7 @@ def _fmt(value, spec=".3g"):
               help="Write the heatmap figure (png, pdf, svg, ...).")
 @click.option("--csv", "csv_file", type=OUTPUT_FILE, default=None,
               help="Write the table as CSV.")
-@click.option("--out", "out_dir", type=click.Path(file_okay=False), default=None,
+@click.option("--out", "out_dir", type=click.Path(file_okay=False), default=None, metavar="DIR",
               help="Directory for the results file (each cell appended as it finishes) and "
                    "the final table.")
 @click.option("--resume", is_flag=True, help="Continue the sweep whose results are in --out.")
