@@ -47,4 +47,4 @@ bench: $(STAMP)
 	for b in benchmarks/bench_*.py; do $(BIN)/python $$b || exit 1; done
 
 clean:
-	rm -rf $(VENV) out .pytest_cache
+	rm -rf $(VENV) out .pytest_cache .mypy_cache .ruff_cache
