@@ -28,12 +28,11 @@ from crn.core.units import (
     parse_concentration,
     parse_rate_constant,
     parse_time,
-    seconds_per_parallel_time,
     to_parallel_time,
     to_seconds,
     volume_for,
 )
-from crn.io.atomic import atomic_path, write_atomic
+from crn.io.atomic import write_atomic
 from crn.io.jsonable import to_jsonable
 from crn.io.models import load_model
 from crn.io.regime_tables import table_csv
@@ -62,12 +61,10 @@ SETTINGS = {
 
 
 def _figure_path(out: Path, name: str, figure) -> Path:
-    import matplotlib.pyplot as plt
+    from crn.plots.save import save_figure
 
     path = out / name
-    with atomic_path(path) as tmp:
-        figure.savefig(tmp, dpi=150)
-    plt.close(figure)
+    save_figure(figure, path, dpi=150)
     return path
 
 
@@ -82,14 +79,17 @@ def _compare(net, n, gap_fraction, runs, seed, rate, concentration, echo):
     finite = np.nan_to_num(times, nan=np.inf)
     median = float(np.median(finite))
     q05, q95 = (float(q) for q in np.quantile(finite, [0.05, 0.95]))
-    unit = seconds_per_parallel_time(rate, concentration)
+
+    def seconds(t):
+        return format_time(to_seconds(t, rate, concentration))
+
     echo(f"\n== ODE against stochastic runs: n = {n:,} strands, gap {gap} "
          f"({gap / n:.0%}), at {format_concentration(concentration)} ==")
     echo(f"  ODE: consensus on {label} at parallel time {ode_time:.3g} "
-         f"(= {format_time(ode_time * unit)})")
+         f"(= {seconds(ode_time)})")
     echo(f"  {runs} stochastic runs: {wrong} disagree with the ODE, P = {p:.3g} "
          f"(95% interval {low:.2g} .. {high:.2g})")
-    echo(f"  stochastic consensus time: median {median:.3g} (= {format_time(median * unit)}), "
+    echo(f"  stochastic consensus time: median {median:.3g} (= {seconds(median)}), "
          f"5-95% range {q05:.3g} .. {q95:.3g}")
     return dict(n=n, gap=gap, ode_label=label, ode_time=ode_time, runs=runs, wrong=wrong,
                 p_wrong=p, low=low, high=high, ssa_median_time=median, ssa_q05=q05, ssa_q95=q95,
@@ -97,9 +97,9 @@ def _compare(net, n, gap_fraction, runs, seed, rate, concentration, echo):
 
 
 def _trajectory_figure(cell, ode_time, seed, runs=5):
-    import matplotlib
+    from crn.plots.save import use_file_backend
 
-    matplotlib.use("Agg")
+    use_file_backend()
     import matplotlib.pyplot as plt
 
     from crn.solvers.ode import solve_mean_field
@@ -146,10 +146,10 @@ def run_demo(out, *, quick: bool = False, seed: int = 20261201, workers: int = 2
     dict
         The summary (also written to ``out/summary.json``).
     """
-    import matplotlib
-
-    matplotlib.use("Agg")
     from crn.plots.regimes import plot_feasibility, plot_regime_map
+    from crn.plots.save import use_file_backend
+
+    use_file_backend()
 
     started = time.perf_counter()
     report: list[str] = []

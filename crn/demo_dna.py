@@ -26,21 +26,16 @@ DNA_SETTINGS = {
 
 
 def _figure(out: Path, impl, formal_result, result) -> Path:
-    import matplotlib
+    from crn.plots.save import save_figure, use_file_backend
 
-    matplotlib.use("Agg")
-    import matplotlib.pyplot as plt
-
-    from crn.io.atomic import atomic_path
+    use_file_backend()
     from crn.plots.implementation import plot_implementation
 
     ax = plot_implementation(impl, formal_result, result,
                              title="Droplet assay: formal network vs its DNA implementation "
                                    "(mean field)")
     path = out / "dna_implementation.png"
-    with atomic_path(path) as tmp:
-        ax.figure.savefig(tmp, dpi=150)
-    plt.close(ax.figure)
+    save_figure(ax.figure, path, dpi=150)
     return path
 
 

@@ -10,8 +10,8 @@ import pytest
 from click.testing import CliRunner
 from seeds import seed
 
+from crn.analyses.compare import compare_window, disagreement
 from crn.cli import cli, main
-from crn.commands.compare import compare_window, disagreement
 from crn.solvers.simulate import SimulationInterrupted
 
 AM = "models/approximate_majority.toml"

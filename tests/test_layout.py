@@ -42,3 +42,17 @@ def test_main_entry_points_are_exported_from_crn():
     for name in ["load_model", "protocol_to_network", "solve_mean_field", "simulate",
                  "exact_outcomes", "regime_map", "smallest_n", "verify", "implement"]:
         assert callable(getattr(crn, name))
+
+
+def test_the_demo_model_ships_inside_the_package():
+    # an installed wheel has no models/ folder: the demo must find its model under crn/
+    import tomllib
+    from pathlib import Path
+
+    import crn.demo
+
+    package = Path(crn.__file__).resolve().parent
+    assert crn.demo.MODEL.resolve().is_relative_to(package)
+    assert crn.demo.MODEL.is_file()
+    data = tomllib.loads((package.parent / "pyproject.toml").read_text())
+    assert "*.toml" in data["tool"]["setuptools"]["package-data"]["crn.data"]

@@ -67,9 +67,9 @@ class _Page(HTMLParser):
 @pytest.fixture(scope="module")
 def small_report():
     model = load(str(AM), SMALL)
-    from crn.commands.regimes import cell_networks
+    from crn.analyses.cells import cell_networks
 
-    _, networks = cell_networks(str(AM), SMALL)
+    networks = cell_networks(model)
     settings = ReportSettings(runs=100, seed=11, regime_n=(30, 100),
                               regime_gap_fractions=(0.1, 0.3), regime_runs_max=60, risk=0.05)
     data = collect_report(model, model_text=AM.read_text(), model_file=AM.name, sets=SMALL,

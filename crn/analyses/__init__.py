@@ -1,6 +1,7 @@
 """The analyses built on the solvers.
 
-Regime cells and maps, copy numbers, verification, inspection, DNA implementations.
+Regime cells and maps, the mean field beside the runs, copy numbers, verification,
+inspection, DNA implementations.
 
 Every public name of the layer's modules is importable from here; a module is
 imported only when one of its names is first used, so importing the layer is free.
@@ -10,13 +11,26 @@ from importlib import import_module
 
 #: Public name -> module of this layer that defines it.
 _HOME = {
+    "cell_networks": "cells",
+    "SAMPLES": "compare",
+    "WINDOW_FACTOR": "compare",
+    "Comparison": "compare",
+    "MeanFieldWindow": "compare",
+    "compare_network": "compare",
+    "compare_runs": "compare",
+    "compare_window": "compare",
+    "disagreement": "compare",
+    "mean_field_window": "compare",
     "CopiesResult": "copies",
     "Lattice": "copies",
     "Probe": "copies",
     "Prober": "copies",
     "lattice": "copies",
     "p_wrong_summary": "copies",
+    "parallel_deadline": "copies",
+    "physical_answer": "copies",
     "physical_outputs": "copies",
+    "risk_parts": "copies",
     "smallest_n": "copies",
     "FuelAnswer": "design_questions",
     "ImplementationCopies": "design_questions",

@@ -51,13 +51,14 @@ from crn.core.loading import (
 )
 from crn.core.network import Network
 from crn.core.outcome import correct_label
-from crn.core.units import concentration_for, to_seconds, volume_for
+from crn.core.units import concentration_for, to_parallel_time, to_seconds, volume_for
 
 if TYPE_CHECKING:
     from crn.core.types import Seed
 
 __all__ = ["Probe", "CopiesResult", "Prober", "Lattice", "lattice", "smallest_n",
-           "physical_outputs", "p_wrong_summary"]
+           "physical_outputs", "physical_answer", "p_wrong_summary", "risk_parts",
+           "parallel_deadline"]
 
 _TIMING_RUNS = 200
 
@@ -700,6 +701,105 @@ def physical_outputs(n: int | None, *, concentration_molar: float | None = None,
         seconds = to_seconds(parallel_time, rate, conc)
     return {"concentration_molar": conc, "volume_liters": vol, "seconds": seconds,
             "hours": None if seconds is None else seconds / 3600.0}
+
+
+def parallel_deadline(seconds: float, rate: float, *, concentration_molar: float | None = None,
+                      volume_liters: float | None = None) -> float | Callable[[int], float]:
+    """A deadline in seconds as parallel time, the unit :func:`smallest_n` searches in.
+
+    Parameters
+    ----------
+    seconds : float
+    rate : float
+        Bimolecular rate constant k_phys (1/(M s)) a protocol reaction of rate 1 is built at.
+    concentration_molar, volume_liters : float
+        Exactly one: the total concentration, or the droplet volume.
+
+    Returns
+    -------
+    float or callable n -> float
+        At a fixed concentration one number (:func:`crn.core.units.to_parallel_time`);
+        in a fixed volume the concentration, and so the time unit, grows with n:
+        a picklable function of n (pass ``scale_deadline=True`` to :func:`smallest_n`).
+
+    Raises
+    ------
+    CRNError
+        Without exactly one of a concentration and a volume.
+
+    Examples
+    --------
+    >>> parallel_deadline(7200.0, 1e6, concentration_molar=1e-8)
+    72.0
+    """
+    if (concentration_molar is None) == (volume_liters is None):
+        raise CRNError("a deadline in seconds needs exactly one of a concentration and a volume "
+                       "(to convert it into parallel time)")
+    if concentration_molar is not None:
+        return to_parallel_time(seconds, rate, concentration_molar)
+    return _VolumeDeadline(float(seconds), float(rate), float(cast(float, volume_liters)))
+
+
+@dataclass(frozen=True)
+class _VolumeDeadline:
+    """A deadline in seconds as parallel time at n molecules in a fixed volume."""
+
+    seconds: float
+    rate: float
+    volume_liters: float
+
+    def __call__(self, n: int) -> float:
+        return to_parallel_time(self.seconds, self.rate, concentration_for(n, self.volume_liters))
+
+
+def physical_answer(result: CopiesResult, *, concentration_molar: float | None = None,
+                    volume_liters: float | None = None, rate: float | None = None) -> dict:
+    """A copies answer in lab units: concentration, volume and time at the answer, and the
+    volume and concentration over its range.
+
+    Parameters
+    ----------
+    result : CopiesResult
+    concentration_molar, volume_liters : float, optional
+        At most one (see :func:`physical_outputs`).
+    rate : float, optional
+        Bimolecular rate constant (1/(M s)); with a concentration the median
+        consensus time is given in seconds and hours.
+
+    Returns
+    -------
+    dict
+        :func:`physical_outputs` at ``result.estimate`` (with the median time),
+        plus ``volume_liters_interval`` and ``concentration_molar_interval``
+        (each ``[at low, at high]``, None where they do not follow).
+    """
+    out = physical_outputs(result.estimate, concentration_molar=concentration_molar,
+                           volume_liters=volume_liters, rate=rate,
+                           parallel_time=result.median_time)
+    ends = [physical_outputs(n, concentration_molar=concentration_molar,
+                             volume_liters=volume_liters) for n in (result.low, result.high)]
+    out["volume_liters_interval"] = [end["volume_liters"] for end in ends]
+    out["concentration_molar_interval"] = [end["concentration_molar"] for end in ends]
+    return out
+
+
+def risk_parts(probe: Probe | None) -> dict | None:
+    """Poisson loading: P(wrong) from reversed or tied loadings and from the kinetics.
+
+    Parameters
+    ----------
+    probe : Probe or None
+
+    Returns
+    -------
+    dict or None
+        ``{loading, kinetics, reversal}`` (see :class:`Probe`); None without a
+        probe or for a fixed loading.
+    """
+    if probe is None or probe.loading != "poisson":
+        return None
+    return {"loading": probe.wrong_loading, "kinetics": probe.wrong_kinetics,
+            "reversal": probe.reversal}
 
 
 def p_wrong_summary(probe: Probe | None) -> dict | None:

@@ -8,16 +8,15 @@ from crn.commands.implementing import dna_only_options, dna_settings, implement_
 from crn.commands.options import (
     emit_json,
     json_option,
+    load,
     model_argument,
     seed_notice,
     seed_option,
     set_option,
 )
-from crn.commands.regimes import cell_networks
 from crn.core.errors import CRNError
 from crn.core.units import (
     WET_LAB_CAUTION,
-    concentration_for,
     format_concentration,
     format_time,
     format_volume,
@@ -25,7 +24,6 @@ from crn.core.units import (
     parse_rate_constant,
     parse_time,
     parse_volume,
-    to_parallel_time,
 )
 
 __all__ = ["copies", "parse_deadline"]
@@ -89,7 +87,9 @@ def copies(model, sets, gap_fraction, gap, risk, deadline, concentration, volume
     With --implement the search runs on the DNA implementation, beside the formal answer:
     more copies, a later decision, or no droplet size at all and why (fuel runs out, leak
     dominates)."""
-    from crn.analyses.copies import p_wrong_summary, physical_outputs, smallest_n
+    from crn.analyses.cells import cell_networks
+    from crn.analyses.copies import p_wrong_summary, physical_answer, risk_parts, smallest_n
+    from crn.analyses.copies import parallel_deadline as deadline_in_parallel_time
 
     settings = dna_settings(implement, fuel=fuel, max_rate=max_rate, toehold=toehold,
                             leak=leak, rate=rate, concentration=concentration)
@@ -105,13 +105,11 @@ def copies(model, sets, gap_fraction, gap, risk, deadline, concentration, volume
         if k is None or (conc is None and vol is None):
             raise CRNError("a deadline in physical time needs --rate and --concentration or "
                            "--volume (to convert it into parallel time)")
-        if conc is not None:
-            parallel_deadline = to_parallel_time(deadline_seconds, k, conc)
-        else:
-            # a fixed volume: the concentration, and so the time unit, grows with n
-            def parallel_deadline(n, _s=deadline_seconds, _k=k, _v=vol):
-                return to_parallel_time(_s, _k, concentration_for(n, _v))
-    model_obj, networks = cell_networks(model, sets)
+        parallel_deadline = deadline_in_parallel_time(deadline_seconds, k,
+                                                      concentration_molar=conc,
+                                                      volume_liters=vol)
+    model_obj = load(model, sets)
+    networks = cell_networks(model_obj)
     answer = None
     try:
         if settings is None:
@@ -134,12 +132,7 @@ def copies(model, sets, gap_fraction, gap, risk, deadline, concentration, volume
 
         stop_interrupted("before the search finished; no answer (an unfinished search has no "
                          "safe n to report)")
-    phys = physical_outputs(result.estimate, concentration_molar=conc, volume_liters=vol,
-                            rate=k, parallel_time=result.median_time)
-    bounds = {}
-    for name in ("low", "high"):
-        value = getattr(result, name)
-        bounds[name] = physical_outputs(value, concentration_molar=conc, volume_liters=vol)
+    phys = physical_answer(result, concentration_molar=conc, volume_liters=vol, rate=k)
     if as_json:
         emit_json({
             "model": model_obj.name,
@@ -150,10 +143,8 @@ def copies(model, sets, gap_fraction, gap, risk, deadline, concentration, volume
             "deadline_seconds": deadline_seconds,
             "concentration_molar": phys["concentration_molar"],
             "volume_liters": phys["volume_liters"],
-            "volume_liters_interval": [bounds["low"]["volume_liters"],
-                                       bounds["high"]["volume_liters"]],
-            "concentration_molar_interval": [bounds["low"]["concentration_molar"],
-                                             bounds["high"]["concentration_molar"]],
+            "volume_liters_interval": phys["volume_liters_interval"],
+            "concentration_molar_interval": phys["concentration_molar_interval"],
             "median_time": result.median_time,
             "seconds": phys["seconds"],
             "hours": phys["hours"],
@@ -162,7 +153,7 @@ def copies(model, sets, gap_fraction, gap, risk, deadline, concentration, volume
             "bracket": {"passes": result.estimate, "fails": result.below},
             "p_wrong": p_wrong_summary(result.at_estimate),
             "p_wrong_below": p_wrong_summary(result.at_below),
-            "risk_parts": _risk_parts(result.at_estimate),
+            "risk_parts": risk_parts(result.at_estimate),
             "seed": result.seed_entropy,
             "probes": [p.__dict__ for p in result.probes],
             "caution": WET_LAB_CAUTION,
@@ -171,7 +162,7 @@ def copies(model, sets, gap_fraction, gap, risk, deadline, concentration, volume
         return
     if seed is None:
         seed_notice(result.seed_entropy)
-    click.echo(_text(model_obj.name, result, phys, bounds, deadline_seconds))
+    click.echo(_text(model_obj.name, result, phys, deadline_seconds))
     if answer is not None:
         click.echo(_implementation_text(answer, settings))
 
@@ -218,14 +209,6 @@ def _implementation_text(answer, settings) -> str:
     return "\n".join(lines)
 
 
-def _risk_parts(probe) -> dict | None:
-    """Poisson loading: the risk from reversed or tied loadings and from the kinetics."""
-    if probe is None or probe.loading != "poisson":
-        return None
-    return {"loading": probe.wrong_loading, "kinetics": probe.wrong_kinetics,
-            "reversal": probe.reversal}
-
-
 def _interval(probe) -> str:
     p, low, high = probe.p_wrong
     if probe.method == "exact":
@@ -233,7 +216,7 @@ def _interval(probe) -> str:
     return f"P(wrong) = {p:.3g} (95% interval {low:.3g} .. {high:.3g}, {probe.trials:,} runs)"
 
 
-def _text(name, result, phys, bounds, deadline_seconds) -> str:
+def _text(name, result, phys, deadline_seconds) -> str:
     target = f"P(correct consensus{'' if result.deadline is None else ' by the deadline'})"
     mean = " (mean per droplet, Poisson loading)" if result.loading == "poisson" else ""
     lines = [f"{name}: smallest population{mean} with {target} >= {1 - result.risk:g}"]

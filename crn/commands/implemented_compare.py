@@ -7,11 +7,12 @@ from types import SimpleNamespace
 import click
 import numpy as np
 
-from crn.commands.compare import _SAMPLES, compare_window, disagreement
+from crn.analyses.compare import SAMPLES as _SAMPLES
+from crn.analyses.compare import compare_window, disagreement
+from crn.commands.ensembles import ensemble_summary, finish_interrupted, run_ensemble
 from crn.commands.implemented_ode import save_implementation_plot
 from crn.commands.implementing import format_fuel, implement_network, implementation_json
 from crn.commands.options import emit_json
-from crn.commands.ssa import _finish_interrupted, ensemble_summary, run_ensemble
 
 __all__ = ["compare_implemented"]
 
@@ -102,4 +103,4 @@ def compare_implemented(loaded, settings, *, runs, until, engine, workers, clust
         lines.append(format_fuel(ode_fuel) + " (DNA ODE, at its consensus or horizon)")
         click.echo("\n".join(lines))
     if interrupted:
-        _finish_interrupted(ensemble)
+        finish_interrupted(ensemble)

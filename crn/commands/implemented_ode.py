@@ -69,7 +69,7 @@ def fuel_answer_text(answer, concentration: float) -> str:
             f"{answer.formal_time:.4g}")
 
 
-def run_implemented_ode(loaded, settings, *, until, times, method, plot_file, csv_file, as_json,
+def run_implemented_ode(loaded, settings, *, until, times, method, plot_path, csv_path, as_json,
                         equations, latex, fuel_needed, within, every=None, in_counts=False,
                         force=False) -> None:
     """Solve the implementation's mean field and print or write it (the ``ode`` command)."""
@@ -101,16 +101,16 @@ def run_implemented_ode(loaded, settings, *, until, times, method, plot_file, cs
         from crn.solvers.time_course import TimeCourse
 
         course = TimeCourse.from_mean_field(result, counts=in_counts)
-    if csv_file and course is not None:
+    if csv_path and course is not None:
         from crn.io.time_course import write_time_course_csv
 
-        write_time_course_csv(csv_file, course)
-    elif csv_file:
+        write_time_course_csv(csv_path, course)
+    elif csv_path:
         from crn.io.ode_files import write_mean_field_csv
 
-        write_mean_field_csv(csv_file, result)
-    if plot_file:
-        save_implementation_plot(plot_file, impl, formal_result, result, None,
+        write_mean_field_csv(csv_path, result)
+    if plot_path:
+        save_implementation_plot(plot_path, impl, formal_result, result, None,
                                  title=f"Mean-field ODE of {loaded.name}: formal vs "
                                        f"{impl.scheme} implementation")
     if as_json:
@@ -170,17 +170,11 @@ def _text(name, impl, result, formal_result, fuel, answer) -> str:
 def save_implementation_plot(path, impl, formal_result, result, ensemble, *, title,
                              disagreement=None):
     """Write the formal ODE / implementation ODE (/ implementation runs) figure."""
-    import matplotlib
+    from crn.plots.save import save_figure, use_file_backend
 
-    matplotlib.use("Agg")
-    import matplotlib.pyplot as plt
-
-    from crn.io.atomic import save_figure
+    use_file_backend()
     from crn.plots.implementation import plot_implementation
 
     ax = plot_implementation(impl, formal_result, result, ensemble, title=title,
                              disagreement=disagreement)
-    try:
-        save_figure(path, ax.figure, dpi=120)
-    finally:
-        plt.close(ax.figure)
+    save_figure(ax.figure, path, dpi=120)

@@ -21,6 +21,7 @@ from crn.commands.options import (
     seconds_per_time,
     set_option,
 )
+from crn.io.ode_files import mean_field_json
 
 __all__ = ["mean_field_json", "ode"]
 
@@ -45,38 +46,6 @@ def _parse_times(text: str | None):
     return np.unique(np.asarray(times, dtype=np.float64))
 
 
-def _number(x: float):
-    x = float(x)
-    return x if math.isfinite(x) else None
-
-
-def _eigenvalue(z: complex, tol: float = 1e-7):
-    z = complex(z)
-    return _number(z.real) if abs(z.imag) <= tol * max(1.0, abs(z)) else {
-        "re": _number(z.real), "im": _number(z.imag)}
-
-
-def _free(point, species) -> list[str]:
-    """Species left free along a continuum of fixed points (the others follow from them)."""
-    if point.exact is not None:
-        return [s for s in species if point.exact[s] == s]
-    return [s for s, v in zip(species, point.point, strict=True) if not math.isfinite(v)]
-
-
-def _fixed_point_dict(point, species) -> dict:
-    return {
-        "point": {s: _number(v) for s, v in zip(species, point.point, strict=True)},
-        "classification": point.classification,
-        "eigenvalues": [_eigenvalue(z) for z in point.eigenvalues],
-        "unstable_directions": [{s: _number(v) for s, v in zip(species, d, strict=True)}
-                                for d in point.unstable_directions],
-        "consensus": point.consensus,
-        "tie": point.tie,
-        "exact": point.exact,
-        "free": _free(point, species),
-    }
-
-
 def _format_point(point, species) -> str:
     if point.exact is not None:
         return ", ".join(f"{s}={point.exact[s]}" for s in species)
@@ -84,7 +53,9 @@ def _format_point(point, species) -> str:
 
 
 def _format_continuum(point, species) -> str:
-    free = _free(point, species)
+    from crn.io.ode_files import free_species
+
+    free = free_species(point, species)
     fixed = [s for s in species if s not in free]
     if point.exact is not None:
         where = ", ".join(f"{s}={point.exact[s]}" for s in fixed)
@@ -113,10 +84,10 @@ def _format_eigenvalues(values) -> str:
                                 "consensus, capped at a multiple of the natural time scale.")
 @click.option("--at", "at", default=None, metavar="t1,t2,...",
               help="Report the solution at these times (the solve then runs past consensus).")
-@click.option("--plot", "plot_file", type=FIGURE_FILE, default=None,
+@click.option("--plot", "plot_path", type=FIGURE_FILE, default=None,
               metavar="FILE", help="Save a figure of the fractions against time (png, pdf, "
                                    "svg, ...).")
-@click.option("--csv", "csv_file", type=OUTPUT_FILE, default=None,
+@click.option("--csv", "csv_path", type=OUTPUT_FILE, default=None,
               metavar="FILE", help="Write the trajectory as CSV (time, then one column per "
                                    "species).")
 @json_option
@@ -140,7 +111,7 @@ def _format_eigenvalues(values) -> str:
 @click.option("--within", type=click.FloatRange(0, 1, min_open=True, max_open=True),
               default=0.1, show_default=True,
               help="Relative tolerance of --fuel-needed.")
-def ode(model, sets, until, at, plot_file, csv_file, as_json, equations, latex, method,
+def ode(model, sets, until, at, plot_path, csv_path, as_json, equations, latex, method,
         with_fixed_points, every, in_counts, force, implement, fuel, max_rate, toehold, leak,
         rate, concentration, fuel_needed, within):
     """Solve the mean-field ODE of MODEL: fractions of the population against parallel
@@ -159,7 +130,7 @@ def ode(model, sets, until, at, plot_file, csv_file, as_json, equations, latex, 
         from crn.commands.implemented_ode import run_implemented_ode
 
         run_implemented_ode(loaded, settings, until=until, times=_parse_times(at),
-                            method=method, plot_file=plot_file, csv_file=csv_file,
+                            method=method, plot_path=plot_path, csv_path=csv_path,
                             as_json=as_json, equations=equations, latex=latex,
                             fuel_needed=fuel_needed, within=within, every=every,
                             in_counts=in_counts, force=force)
@@ -185,16 +156,16 @@ def ode(model, sets, until, at, plot_file, csv_file, as_json, equations, latex, 
         from crn.solvers.fixed_points import find_fixed_points
 
         points = find_fixed_points(net)
-    if csv_file and course is not None:
+    if csv_path and course is not None:
         from crn.io.time_course import write_time_course_csv
 
-        write_time_course_csv(csv_file, course)
-    elif csv_file:
+        write_time_course_csv(csv_path, course)
+    elif csv_path:
         from crn.io.ode_files import write_mean_field_csv
 
-        write_mean_field_csv(csv_file, result)
-    if plot_file:
-        _plot(result, loaded.name, plot_file, seconds)
+        write_mean_field_csv(csv_path, result)
+    if plot_path:
+        _plot(result, loaded.name, plot_path, seconds)
     if as_json:
         obj = mean_field_json(loaded, result, points)
         if course is not None:
@@ -258,71 +229,13 @@ def _print_equations(net, latex: bool, as_json: bool) -> None:
 
 
 def _plot(result, name: str, path, seconds=None) -> None:
-    import matplotlib
+    from crn.plots.save import save_figure, use_file_backend
 
-    matplotlib.use("Agg")
-    import matplotlib.pyplot as plt
-
-    from crn.io.atomic import save_figure
+    use_file_backend()
     from crn.plots.ode import plot_mean_field
 
     ax = plot_mean_field(result, title=f"{name}\nmean-field ODE", seconds_per_time=seconds)
-    try:
-        save_figure(path, ax.figure)
-    finally:
-        plt.close(ax.figure)
-
-
-def mean_field_json(model, result, fixed_points, *, consensus=None) -> dict:
-    """The ``crn ode --json`` object (docs/design.md CLI contract) of a mean-field solve.
-
-    Parameters
-    ----------
-    model : crn.core.model.Model
-        The loaded model (its ``name`` and ``network`` are used).
-    result : MeanFieldResult
-        The solve whose ``times`` and ``fractions`` (shape ``(n_times,)`` per
-        species) are reported.
-    fixed_points : list of FixedPoint or None
-        From :func:`crn.solvers.fixed_points.find_fixed_points`; None when not searched
-        (reported as null).
-    consensus : RunOutcome, optional
-        The consensus to report instead of ``result.consensus`` (``crn compare``
-        reports its sampled window beside the consensus of its stop-at-consensus solve).
-
-    Returns
-    -------
-    dict
-        At least ``times``, ``fractions`` (name -> list), ``consensus``
-        (``{label, time}`` or None) and ``fixed_points``; plus ``model``, ``units``,
-        ``molecules_per_unit``, ``method``, ``status``, ``message``, ``final_label``,
-        ``held``, ``correct`` and, for a network, ``concentrations``. Values may be
-        numpy arrays: pass it through ``emit_json``/``to_jsonable``.
-    """
-    from crn.core.outcome import correct_label
-
-    net = model.network
-    outcome = result.consensus if consensus is None else consensus
-    obj = {
-        "model": model.name,
-        "units": result.units,
-        "molecules_per_unit": result.molecules_per_unit,
-        "method": result.method,
-        "status": result.status,
-        "message": result.message,
-        "times": result.times,
-        "fractions": result.fractions,
-        "consensus": (None if outcome.label is None
-                      else {"label": outcome.label, "time": outcome.time}),
-        "final_label": outcome.final_label,
-        "held": outcome.held,
-        "correct": correct_label(net),
-        "fixed_points": None if fixed_points is None else [_fixed_point_dict(p, net.species)
-                                                           for p in fixed_points],
-    }
-    if result.units == "concentration":
-        obj["concentrations"] = {s: result.values[:, i] for i, s in enumerate(net.species)}
-    return obj
+    save_figure(ax.figure, path)
 
 
 def _text(loaded, result, points, requested: bool = False) -> str:

@@ -2,7 +2,6 @@
 
 from __future__ import annotations
 
-import hashlib
 import json
 import os
 import signal
@@ -12,6 +11,7 @@ from typing import TYPE_CHECKING
 import click
 
 from crn.commands.implementing import dna_options, dna_settings, implement_option
+from crn.commands.lists import parse_float_list, parse_int_list
 from crn.commands.options import (
     CLUSTER_ADDRESS,
     FIGURE_FILE,
@@ -30,39 +30,16 @@ from crn.commands.options import (
     to_jsonable,
 )
 from crn.core.errors import CRNError
-from crn.io.atomic import save_figure, write_atomic
+from crn.io.atomic import write_atomic
 from crn.io.regime_tables import table_csv
 
 if TYPE_CHECKING:
     from crn.analyses.regimes import RegimeMap
 
-__all__ = ["regimes", "parse_int_list", "parse_float_list", "cell_networks"]
+__all__ = ["regimes"]
 
 #: Test hook: the process kills itself (SIGKILL) after appending this many cells.
 KILL_HOOK = "CRN_TEST_KILL_AFTER_CELLS"
-
-
-def _number(text: str, what: str) -> float:
-    try:
-        return float(text)
-    except ValueError as err:
-        raise CRNError(f"{what}: cannot read {text!r} as a number") from err
-
-
-def parse_int_list(text: str, what: str) -> list[int]:
-    """``"100,1e3,10000"`` -> ``[100, 1000, 10000]``; whole numbers only."""
-    out = []
-    for item in text.split(","):
-        value = _number(item.strip(), what)
-        if not value.is_integer():
-            raise CRNError(f"{what}: {item.strip()!r} is not a whole number")
-        out.append(int(value))
-    return out
-
-
-def parse_float_list(text: str, what: str) -> list[float]:
-    """``"0.001,0.01"`` -> ``[0.001, 0.01]``."""
-    return [_number(item.strip(), what) for item in text.split(",")]
 
 
 def _gap_fractions(text: str) -> list[float]:
@@ -75,20 +52,6 @@ def _gap_fractions(text: str) -> list[float]:
             raise CRNError(GAP_FRACTION_RANGE.replace("--gap-fraction", "--gap-fractions", 1)
                            + f", got {fraction}")
     return fractions
-
-
-def cell_networks(model_path: str, sets):
-    """The per-cell network builder: model parameters n and gap when the TOML model has both."""
-    from crn.analyses.probes import InitialSplit, ModelParameters
-    from crn.core.model import parse_overrides
-
-    model = load(model_path, sets)
-    path = Path(model_path)
-    if path.suffix != ".py" and {"n", "gap"} <= set(model.parameters):
-        overrides = {k: v for k, v in parse_overrides(sets).items() if k not in ("n", "gap")}
-        return model, ModelParameters(path.read_text(encoding="utf-8"), str(path),
-                                      tuple(sorted(overrides.items())))
-    return model, InitialSplit(model.network)
 
 
 def result_json(model_name: str, result: RegimeMap) -> dict:
@@ -134,9 +97,9 @@ def _fmt(value, spec=".3g"):
               show_default=True, help="Flag times when SSA median and ODE differ by more.")
 @click.option("--method", type=click.Choice(["auto", "exact", "stochastic"]), default="auto",
               show_default=True, help="Exact analysis, stochastic runs, or exact when small.")
-@click.option("--plot", "plot_file", type=FIGURE_FILE, default=None,
+@click.option("--plot", "plot_path", type=FIGURE_FILE, default=None,
               help="Write the heatmap figure (png, pdf, svg, ...).")
-@click.option("--csv", "csv_file", type=OUTPUT_FILE, default=None,
+@click.option("--csv", "csv_path", type=OUTPUT_FILE, default=None,
               help="Write the table as CSV.")
 @click.option("--out", "out_dir", type=click.Path(file_okay=False), default=None, metavar="DIR",
               help="Directory for the results file (each cell appended as it finishes) and "
@@ -155,7 +118,7 @@ def _fmt(value, spec=".3g"):
               help="With --implement: for each cell, the largest leak rate constant at which "
                    "it stays ok with the correct decision (many more runs).")
 def regimes(model, sets, n_list, gap_list, fraction_list, risk, until, runs_max, time_factor,
-            method, plot_file, csv_file, out_dir, resume, workers, cluster, max_memory, force,
+            method, plot_path, csv_path, out_dir, resume, workers, cluster, max_memory, force,
             seed, as_json, implement, fuel, max_rate, toehold, leak, rate, concentration,
             with_leak_tolerance):
     """Sweep MODEL over populations n and gaps: for each cell, the ODE's decision, the
@@ -163,10 +126,9 @@ def regimes(model, sets, n_list, gap_list, fraction_list, risk, until, runs_max,
     sequential looks (Clopper-Pearson, Bonferroni)), the flag, the times;
     and the fitted growth of the critical gap with n. With --implement every cell runs on
     the DNA implementation of its network (same time unit, decisions from the signals)."""
-    import numpy as np
-
-    from crn.analyses.regimes import RegimeCell, plan_cells, regime_map
-    from crn.io.sweep_store import SweepStore
+    from crn.analyses.cells import cell_networks
+    from crn.analyses.regimes import plan_cells, regime_map
+    from crn.io.regime_store import open_regime_sweep, regime_sweep_parameters
 
     settings = dna_settings(implement, fuel=fuel, max_rate=max_rate, toehold=toehold,
                             leak=leak, rate=rate, concentration=concentration)
@@ -182,7 +144,8 @@ def regimes(model, sets, n_list, gap_list, fraction_list, risk, until, runs_max,
     gaps = None if gap_list is None else parse_int_list(gap_list, "--gaps")
     fractions = None if fraction_list is None else _gap_fractions(fraction_list)
     cells, skipped = plan_cells(ns, gaps, fractions)
-    model_obj, networks = cell_networks(model, sets)
+    model_obj = load(model, sets)
+    networks = cell_networks(model_obj)
     formal_networks = networks
     if settings is not None:
         from crn.analyses.implemented import ImplementedCells
@@ -199,31 +162,20 @@ def regimes(model, sets, n_list, gap_list, fraction_list, risk, until, runs_max,
                               exact_max=DEFAULT_EXACT_MAX, workers=workers or 1),
           max_memory, force, announce=not as_json)
 
-    entropy = np.random.SeedSequence(seed).entropy
-    done, store, new_cells = {}, None, []
+    parameters = None
     if out_dir:
-        parameters = {
-            "model": Path(model).name,
-            "model_sha256": hashlib.sha256(Path(model).read_bytes()).hexdigest(),
-            "sets": sorted(sets), "n": ns, "gap": gaps, "gap_fraction": fractions,
-            "risk": risk, "until": until, "runs_max": runs_max, "time_factor": time_factor,
-            "method": method,
-        }
-        if settings is not None:
-            parameters["implement"] = {"scheme": settings[0],
-                                       "parameters": settings[1].as_dict()}
-        store = SweepStore(out_dir, "regimes", parameters, seed_entropy=entropy, resume=resume,
-                           check_seed=seed is not None)
-        entropy = store.seed_entropy
-        done = {(c["n"], c["gap"]): RegimeCell.from_dict(c) for c in store.finished}
+        parameters = regime_sweep_parameters(
+            model_obj, sets=sets, n=ns, gap=gaps, gap_fraction=fractions, risk=risk,
+            until=until, runs_max=runs_max, time_factor=time_factor, method=method,
+            implementation=settings)
+    sweep = open_regime_sweep(out_dir, parameters, seed=seed, resume=resume)
+    entropy = sweep.seed_entropy
     kill_after = os.environ.get(KILL_HOOK)
 
     def on_cell(cell):
-        new_cells.append(cell)
-        if store is None:
-            return
-        store.append(cell.to_dict())
-        if kill_after is not None and len(store.finished) >= int(kill_after):
+        sweep.record(cell)
+        if (sweep.store is not None and kill_after is not None
+                and len(sweep.store.finished) >= int(kill_after)):
             os.kill(os.getpid(), signal.SIGKILL)
     if seed is None and not as_json:
         seed_notice(entropy)
@@ -233,10 +185,9 @@ def regimes(model, sets, n_list, gap_list, fraction_list, risk, until, runs_max,
             result = regime_map(networks, ns, gaps=gaps, gap_fractions=fractions, risk=risk,
                                 until=until, runs_max=runs_max, time_factor=time_factor,
                                 method=method, rng=entropy, workers=workers, cluster=cluster,
-                                done=done, on_cell=on_cell, progress=update)
+                                done=sweep.done, on_cell=on_cell, progress=update)
     except KeyboardInterrupt:
-        _report_interrupted(sorted([*done.values(), *new_cells], key=lambda c: (c.n, c.gap)),
-                            len(cells), out_dir)
+        _report_interrupted(sweep.finished(), len(cells), sweep.path)
     table = table_csv(result.cells)
     payload = result_json(model_obj.name, result)
     tolerances = None
@@ -251,10 +202,10 @@ def regimes(model, sets, n_list, gap_list, fraction_list, risk, until, runs_max,
         write_atomic(Path(out_dir) / "regimes.csv", table)
         write_atomic(Path(out_dir) / "regimes.json",
                      json.dumps(to_jsonable(payload), indent=2) + "\n")
-    if csv_file:
-        write_atomic(csv_file, table)
-    if plot_file:
-        _save_plot(result, plot_file, model_obj.name)
+    if csv_path:
+        write_atomic(csv_path, table)
+    if plot_path:
+        _save_plot(result, plot_path, model_obj.name)
     if as_json:
         emit_json(payload)
         return
@@ -295,7 +246,7 @@ def _tolerance_text(tolerances, risk) -> str:
     return "\n".join(lines)
 
 
-def _report_interrupted(finished, total, out_dir):
+def _report_interrupted(finished, total, results_path):
     """After Ctrl-C or SIGTERM: the finished cells, where they are kept, and the exit status."""
     from crn.runtime import interrupts
 
@@ -304,27 +255,23 @@ def _report_interrupted(finished, total, out_dir):
     if lines:
         click.echo("\n".join([f"{'n':>10} {'gap':>8} {'P(disagree)':>12} {'95% interval':>19} "
                                f"{'flag':>10}", *lines]))
-    kept = (f"kept in {Path(out_dir) / 'regimes.jsonl'}; add --resume to finish the sweep"
-            if out_dir else "not kept (give --out DIR to keep cells across interruptions)")
+    kept = (f"kept in {results_path}; add --resume to finish the sweep"
+            if results_path is not None
+            else "not kept (give --out DIR to keep cells across interruptions)")
     click.echo(f"crn: {interrupts.reason()} after {len(finished)} of {total} cells; "
                f"finished cells {kept}", err=True)
     click.get_current_context().exit(interrupts.exit_status())
 
 
 def _save_plot(result, path, name):
-    import matplotlib
+    from crn.plots.save import save_figure, use_file_backend
 
-    matplotlib.use("Agg")
-    import matplotlib.pyplot as plt
-
+    use_file_backend()
     from crn.plots.regimes import plot_regime_map
 
     ax = plot_regime_map(result, title=f"{name}: where the mean field misleads "
                                        f"(risk {result.risk:g})")
-    try:
-        save_figure(path, ax.figure, dpi=150)
-    finally:
-        plt.close(ax.figure)
+    save_figure(ax.figure, path, dpi=150)
 
 
 def _text(name, result: RegimeMap) -> str:

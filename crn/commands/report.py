@@ -17,6 +17,7 @@ from crn.commands.options import (
     dna_parameters,
     emit_json,
     json_option,
+    load,
     model_argument,
     progress_bar,
     seed_option,
@@ -64,13 +65,13 @@ def read_saved(folder) -> dict:
 
 
 def _floats(text, what):
-    from crn.commands.regimes import parse_float_list
+    from crn.commands.lists import parse_float_list
 
     return tuple(parse_float_list(text, what)) if text else ()
 
 
 def _ints(text, what):
-    from crn.commands.regimes import parse_int_list
+    from crn.commands.lists import parse_int_list
 
     return tuple(parse_int_list(text, what)) if text else ()
 
@@ -96,8 +97,9 @@ def _ints(text, what):
 @click.option("--risk", type=click.FloatRange(0, 1, min_open=True, max_open=True), default=0.01,
               show_default=True, help="Acceptable probability of a wrong decision.")
 @click.option("--gap-fraction", type=click.FloatRange(0, 1, min_open=True, max_open=True),
-              default=None, metavar="F", help="Gap (share of n) of the copies answer; without it, no "
-                                 "copies section unless saved.")
+              default=None, metavar="F",
+              help="Gap (share of n) of the copies answer; without it, no copies section "
+                   "unless saved.")
 @click.option("--deadline", default=None, metavar="T",
               help="Deadline of the copies answer, e.g. 2h (needs --rate and --concentration).")
 @click.option("--rate", default=None, metavar="K",
@@ -119,7 +121,7 @@ def report(model, sets, output, from_dir, runs, regime_n, regime_gap_fraction, r
     mean field with fixed points, stochastic runs with bands next to the ODE, exact results
     when small, the regime map, the copies answer, cautions and the commands that reproduce
     every number. Figures are embedded as SVG; the page needs no network and no scripts."""
-    from crn.commands.regimes import cell_networks
+    from crn.analyses.cells import cell_networks
     from crn.core.units import parse_concentration, parse_rate_constant, parse_time
     from crn.io.atomic import write_atomic
     from crn.report import ReportSettings, collect_report, render_report
@@ -137,7 +139,8 @@ def report(model, sets, output, from_dir, runs, regime_n, regime_gap_fraction, r
                                                   or settings.concentration_molar is None):
         raise CRNError("--deadline needs --rate and --concentration (to convert it into "
                        "parallel time)")
-    loaded, networks = cell_networks(model, sets)
+    loaded = load(model, sets)
+    networks = cell_networks(loaded)
     implementation = None
     if scheme is not None:
         params = dna_parameters(rate=rate, concentration=concentration, fuel=fuel,

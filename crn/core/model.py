@@ -12,7 +12,7 @@ import re
 import tomllib
 import warnings
 from collections.abc import Mapping
-from dataclasses import dataclass, field
+from dataclasses import dataclass, field, replace
 from typing import TYPE_CHECKING
 
 from crn.core.errors import ExpressionError, ModelError
@@ -64,6 +64,12 @@ class Model:
         The protocol, when the model is one.
     rules : tuple of Rule
         The rules as written (protocols only), with their lines.
+    text : str
+        The TOML text the model was parsed from ("" for models built otherwise:
+        Python model files, exported networks), so that it can be parsed again
+        with other parameter values.
+    overrides : tuple of (str, number)
+        The parameter values given on top of the text (``--set``), sorted by name.
     """
 
     name: str
@@ -73,6 +79,8 @@ class Model:
     network: Network
     protocol: Protocol | None = None
     rules: tuple[Rule, ...] = field(default=())
+    text: str = field(default="", repr=False)
+    overrides: tuple = ()
 
     @property
     def kind(self) -> str:
@@ -304,7 +312,9 @@ def parse_model(text: str, *, source: str = "<string>", overrides: Mapping | Non
     except RecursionError as err:
         raise ModelError("malformed TOML: arrays or tables nested too deeply",
                          file=source) from err
-    return _Builder(data, _Locator(text), source).build(dict(overrides or {}))
+    overrides = dict(overrides or {})
+    model = _Builder(data, _Locator(text), source).build(overrides)
+    return replace(model, text=text, overrides=tuple(sorted(overrides.items())))
 
 
 class _Builder:

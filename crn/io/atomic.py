@@ -28,7 +28,7 @@ from pathlib import Path
 
 from crn.core.errors import CRNError
 
-__all__ = ["atomic_open", "atomic_path", "write_atomic", "save_figure", "file_mode",
+__all__ = ["atomic_open", "atomic_path", "write_atomic", "file_mode",
            "TEMP_MARK", "PAUSE_HOOK"]
 
 TEMP_MARK = ".crn-tmp-"
@@ -273,27 +273,6 @@ def write_atomic(path, data) -> Path:
     with atomic_open(path, "wb" if isinstance(data, bytes) else "w") as fh:
         fh.write(data)
     return Path(path)
-
-
-def save_figure(path, figure, dpi: int = 150) -> None:
-    """Save a matplotlib figure atomically; the format follows the file suffix.
-
-    Parameters
-    ----------
-    path : str or Path
-        The file to create or replace; with no suffix the format is PNG.
-    figure : matplotlib.figure.Figure
-    dpi : int, default 150
-        Resolution of raster formats.
-
-    Raises
-    ------
-    CRNError
-        When the folder does not exist or cannot be written.
-    """
-    fmt = Path(path).suffix.lstrip(".").lower() or "png"
-    with atomic_open(path, "wb") as fh:
-        figure.savefig(fh, format=fmt, dpi=dpi)
 
 
 def _fsync_folder(folder: Path) -> None:

@@ -133,8 +133,8 @@ def collect_report(model, *, model_text: str, model_file: str, sets=(), networks
     -------
     ReportData
     """
-    from crn.solvers.ode import solve_mean_field
-    from crn.solvers.simulate import default_horizon, simulate
+    from crn.analyses.compare import compare_runs, mean_field_window
+    from crn.solvers.simulate import simulate
 
     settings = settings or ReportSettings()
     saved = saved or {}
@@ -160,20 +160,17 @@ def collect_report(model, *, model_text: str, model_file: str, sets=(), networks
             f" {e}" for e in extra))
 
     step("mean field")
-    horizon = default_horizon(net)
-    first = solve_mean_field(net, until=horizon)
-    window = _window(first.consensus.time, horizon)
-    times = np.linspace(0.0, window, 201)
-    data.mean_field = solve_mean_field(net, times=times, until=window, stop_at_consensus=False)
-    data.mean_field_consensus = first.consensus
+    window = mean_field_window(net)
+    data.mean_field = window.ode
+    data.mean_field_consensus = window.consensus
     data.fixed_points = _fixed_points(net, data)
     command("ode", "--json")
 
     if settings.runs > 0 and net.n_reactions:
         step("stochastic runs")
-        data.ensemble = simulate(net, runs=settings.runs, until=horizon, times=times,
-                                 rng=seeds[0], workers=1)
-        data.disagreement = _disagreement(data.ensemble.labels, first.consensus.label)
+        data.ensemble = simulate(net, runs=settings.runs, until=window.horizon,
+                                 times=window.times, rng=seeds[0], workers=1)
+        data.disagreement = compare_runs(window, data.ensemble).disagreement
         command("compare", f"--runs {settings.runs}", f"--seed {seeds[0]}")
 
     step("exact analysis")
@@ -221,19 +218,6 @@ def _entropy(seed_sequence) -> int:
     return int(seed_sequence.generate_state(1, dtype=np.uint32)[0])
 
 
-def _window(ode_time, until):
-    if ode_time is None or not ode_time > 0:
-        return until
-    return min(until, 2.0 * ode_time)
-
-
-def _disagreement(labels, ode_label):
-    from crn.core.stats import wilson_interval
-
-    differ = sum(1 for label in labels if label is None or label != ode_label)
-    return wilson_interval(differ, len(labels))
-
-
 def _fixed_points(net, data):
     from crn.solvers.fixed_points import find_fixed_points
 
@@ -261,15 +245,19 @@ def _exact(net):
 
 
 def _copies(networks, settings, seed) -> dict:
-    from crn.analyses.copies import p_wrong_summary, physical_outputs, smallest_n
-    from crn.core.units import to_parallel_time
+    from crn.analyses.copies import (
+        p_wrong_summary,
+        parallel_deadline,
+        physical_outputs,
+        smallest_n,
+    )
 
     deadline = None
     if settings.deadline_seconds is not None:
         if settings.rate is None or settings.concentration_molar is None:
             raise CRNError("a deadline in seconds needs --rate and --concentration")
-        deadline = to_parallel_time(settings.deadline_seconds, settings.rate,
-                                    settings.concentration_molar)
+        deadline = parallel_deadline(settings.deadline_seconds, settings.rate,
+                                     concentration_molar=settings.concentration_molar)
     result = smallest_n(networks, gap_fraction=settings.gap_fraction, risk=settings.risk,
                         deadline=deadline, runs_max=settings.copies_runs_max,
                         rng=seed)

@@ -20,13 +20,10 @@ class Figure:
 
 
 def _svg_uri(figure) -> str:
-    import matplotlib.pyplot as plt
+    from crn.plots.save import save_figure
 
     buffer = io.BytesIO()
-    try:
-        figure.savefig(buffer, format="svg", metadata={"Date": None})
-    finally:
-        plt.close(figure)
+    save_figure(figure, buffer, format="svg", dpi=None, metadata={"Date": None})
     return "data:image/svg+xml;base64," + base64.b64encode(buffer.getvalue()).decode("ascii")
 
 
@@ -42,9 +39,9 @@ def report_figures(data) -> dict[str, Figure]:
     dict of str to Figure
         Keyed ``"mean_field"``, ``"compare"``, ``"regimes"`` (present when drawn).
     """
-    import matplotlib
+    from crn.plots.save import use_file_backend
 
-    matplotlib.use("Agg")
+    use_file_backend()
     from crn.plots.compare import plot_compare
     from crn.plots.ode import plot_mean_field
     from crn.plots.regimes import plot_regime_map

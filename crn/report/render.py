@@ -98,12 +98,15 @@ def _implementation_view(data):
 def _outcome_rows(ensemble, labels):
     from crn.core.stats import wilson_interval
 
-    counts = ensemble.outcomes()
+    intervals = ensemble.outcome_intervals()
     rows = []
     for label in [*labels, "none"]:
-        k = counts.get(label, 0)
-        p, low, high = wilson_interval(k, ensemble.runs)
-        rows.append({"label": label, "runs": k, "p": _g(p), "low": _g(low), "high": _g(high)})
+        row = intervals.get(label)
+        if row is None:  # a label of the model no run could report
+            p, low, high = wilson_interval(0, ensemble.runs)
+            row = {"runs": 0, "p": p, "low": low, "high": high}
+        rows.append({"label": label, "runs": row["runs"], "p": _g(row["p"]),
+                     "low": _g(row["low"]), "high": _g(row["high"])})
     return rows
 
 

@@ -18,7 +18,8 @@ from __future__ import annotations
 
 import math
 import weakref
-from dataclasses import dataclass
+from collections.abc import Callable
+from dataclasses import dataclass, field, replace
 from typing import TYPE_CHECKING, Any
 
 import numpy as np
@@ -30,7 +31,7 @@ from crn.core.network import Network
 from crn.core.outcome import RunOutcome, mean_field_consensus_index
 
 if TYPE_CHECKING:
-    from collections.abc import Callable, Sequence
+    from collections.abc import Sequence
 
 
 __all__ = [
@@ -283,6 +284,9 @@ class MeanFieldResult:
     molecules_per_unit : float
         n for fractions, the volume for concentrations.
     method : str
+    interpolant : callable or None
+        With ``solve_mean_field(..., dense_output=True)``: the solver's continuous
+        solution, used by :meth:`sampled`.
     """
 
     times: np.ndarray
@@ -294,6 +298,32 @@ class MeanFieldResult:
     units: str = "fraction"
     molecules_per_unit: float = 1.0
     method: str = "LSODA"
+    interpolant: Callable | None = field(default=None, repr=False, compare=False)
+
+    def sampled(self, times: Sequence[float] | np.ndarray) -> MeanFieldResult:
+        """The same solution at other times, from the solver's continuous solution.
+
+        Parameters
+        ----------
+        times : array_like of float, shape (n_times,)
+            Increasing times within the solved span.
+
+        Returns
+        -------
+        MeanFieldResult
+            With ``times`` and ``values`` at those times; everything else as here.
+
+        Raises
+        ------
+        ValueError
+            When the solve kept no continuous solution (``dense_output=False``) or a
+            time lies outside the solved span.
+        """
+        if self.interpolant is None:
+            raise ValueError("this solution has no continuous form; solve with "
+                             "dense_output=True")
+        _, grid = _validate_times(None, times)
+        return replace(self, times=grid, values=self.interpolant(grid))
 
     @property
     def fractions(self) -> dict[str, np.ndarray]:
@@ -374,7 +404,8 @@ def solve_mean_field(net: Network, *, until: float | None = None,
                      times: Sequence[float] | np.ndarray | None = None,
                      method: str = "LSODA",
                      rtol: float = 1e-10, atol: float = 1e-12,
-                     stop_at_consensus: bool = True) -> MeanFieldResult:
+                     stop_at_consensus: bool = True,
+                     dense_output: bool = False) -> MeanFieldResult:
     """Solve the mean-field ODE of a network from its initial state.
 
     Parameters
@@ -398,6 +429,10 @@ def solve_mean_field(net: Network, *, until: float | None = None,
     stop_at_consensus : bool, default True
         Stop at the first mean-field consensus: the molecules not reporting the
         leading label number fewer than one (fraction < 1/n).
+    dense_output : bool, default False
+        Keep the solver's continuous solution, so that
+        :meth:`MeanFieldResult.sampled` gives the solution at any other times of
+        the solved span without solving again.
 
     Returns
     -------
@@ -466,7 +501,8 @@ def solve_mean_field(net: Network, *, until: float | None = None,
     t_eval = times if times is None or times[-1] >= until else np.append(times, until)
     with np.errstate(over="ignore", invalid="ignore"):
         sol = solve_ivp(system.rhs, (0.0, until), y0, method=method, t_eval=t_eval,
-                        events=events, rtol=rtol, atol=atol, **options)
+                        events=events, rtol=rtol, atol=atol, dense_output=dense_output,
+                        **options)
     values = _clip_roundoff(np.asarray(sol.y, dtype=np.float64).T.reshape(-1, net.n_species),
                             rtol, atol)
     shown_t = np.asarray(sol.t, dtype=np.float64)
@@ -484,6 +520,32 @@ def solve_mean_field(net: Network, *, until: float | None = None,
         end = horizon_state
     last = mean_field_consensus_index(labels, n_labels, np.asarray(end, dtype=np.float64),
                                       scale)
+    interpolant = None
+    if dense_output and sol.sol is not None:
+        interpolant = _Interpolant(sol.sol, t_end=float(sol.t[-1]) if sol.t.size else 0.0,
+                                   n_species=net.n_species, rtol=rtol, atol=atol)
     return MeanFieldResult(times=shown_t, values=values,
                            consensus=RunOutcome.from_indices(net, first, first_time, last),
-                           status=int(sol.status), message=str(sol.message), **common)
+                           status=int(sol.status), message=str(sol.message),
+                           interpolant=interpolant, **common)
+
+
+@dataclass(frozen=True)
+class _Interpolant:
+    """The solver's continuous solution on [0, t_end], negative roundoff clipped as the
+    reported values are.
+    """
+
+    solution: Callable
+    t_end: float
+    n_species: int
+    rtol: float
+    atol: float
+
+    def __call__(self, times: np.ndarray) -> np.ndarray:
+        if times.size and times[-1] > self.t_end * (1 + 1e-12):
+            raise ValueError(f"`times` must lie within the solved span [0, {self.t_end:g}]; "
+                             f"got {times[-1]:g}")
+        with np.errstate(over="ignore", invalid="ignore"):
+            values = np.asarray(self.solution(times), dtype=np.float64)
+        return _clip_roundoff(values.T.reshape(-1, self.n_species), self.rtol, self.atol)

@@ -21,7 +21,7 @@ import numpy as np
 from crn.core.errors import CRNError, WorkerError
 from crn.core.network import Network
 from crn.core.outcome import NO_CONSENSUS, tally
-from crn.core.stats import time_summary
+from crn.core.stats import time_summary, wilson_interval
 from crn.engines import ENGINES
 from crn.engines.base import Trajectory
 
@@ -114,9 +114,58 @@ class Ensemble:
         out.setdefault(NO_CONSENSUS, 0)
         return out
 
+    def outcome_intervals(self, confidence: float = 0.95) -> dict[str, dict[str, float]]:
+        """Each outcome's probability with its Wilson score interval.
+
+        Parameters
+        ----------
+        confidence : float, default 0.95
+
+        Returns
+        -------
+        dict of str to dict
+            For each key of :meth:`outcomes` (in the same order): ``{"runs", "p", "low",
+            "high"}``; ``p`` is NaN and the interval [0, 1] when no run finished.
+
+        References
+        ----------
+        Wilson, J. Amer. Statist. Assoc. 22:209-212, 1927 (the score interval).
+        """
+        out = {}
+        for label, k in self.outcomes().items():
+            p, low, high = wilson_interval(k, self.runs, confidence)
+            out[label] = {"runs": k, "p": float(p), "low": float(low), "high": float(high)}
+        return out
+
     def consensus_time_summary(self) -> dict | None:
         """``{mean, median, q05, q95}`` of the consensus times of runs that reached one."""
         return time_summary(self.consensus_times)
+
+    def summary(self) -> dict:
+        """The ensemble in plain values: what ``crn ssa --json`` reports about it.
+
+        Returns
+        -------
+        dict
+            ``runs``, ``requested``, ``interrupted``, ``engine``, ``seed_entropy``,
+            ``until``, ``outcomes`` (:meth:`outcomes`), ``outcome_intervals``
+            (:meth:`outcome_intervals`, 95%), ``consensus_time``
+            (:meth:`consensus_time_summary`) and ``events_mean`` (None when the
+            engine does not count events).
+        """
+        events = self.events
+        return {
+            "runs": self.runs,
+            "requested": self.requested,
+            "interrupted": not self.complete,
+            "engine": self.engine,
+            "seed_entropy": self.seed_entropy,
+            "until": self.until,
+            "outcomes": self.outcomes(),
+            "outcome_intervals": self.outcome_intervals(),
+            "consensus_time": self.consensus_time_summary(),
+            "events_mean": float(events.mean()) if events.size and (events >= 0).all() else None,
+        }
 
     @classmethod
     def from_trajectories(cls, trajectories: Sequence[Trajectory], *, engine: str,
