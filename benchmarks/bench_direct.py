@@ -27,8 +27,8 @@ from pathlib import Path
 import numpy as np
 
 from crn.engines.direct import run_direct
+from crn.engines.gillespy2_bridge import _scons_on_path, to_gillespy2
 from crn.io.models import load_model
-from crn.reference import _scons_on_path, to_gillespy2
 
 
 def main() -> None:

@@ -66,7 +66,7 @@ def gillespy2_solve(net, until: float, rtol: float, atol: float) -> float:
     """Wall time of GillesPy2's ODESolver on ``net`` to ``until`` (101 output points)."""
     import gillespy2
 
-    from crn.reference import to_gillespy2
+    from crn.engines.gillespy2_bridge import to_gillespy2
 
     model = to_gillespy2(net)
     for name, value in zip(net.species, initial_state(net), strict=True):

@@ -1,7 +1,8 @@
-"""Old flat module paths (``crn.generate``, ``crn.errors``, ...) kept for one release.
+"""Old flat module paths (``crn.generate``, ``crn.reference``, ...) kept for one release.
 
-The modules moved into the layer subpackages in 0.2; model files and scripts
-written against 0.1 still import them by their old names. A finder on
+The modules moved into the layer subpackages in 0.2 (``crn.reference``, the
+GillesPy2 bridge, became the engine ``crn.engines.gillespy2_bridge``); model
+files and scripts written against 0.1 still import them by their old names. A finder on
 ``sys.meta_path`` maps an old name to the module's new home (the same module
 object, so ``isinstance`` checks keep holding) with a :class:`FutureWarning`.
 """
@@ -26,6 +27,19 @@ MOVED = {
     **dict.fromkeys(["guards", "interrupts", "workers"], "runtime"),
 }
 
+#: Old module name (under ``crn``) -> new module path (under ``crn``), for modules renamed
+#: as they moved.
+RENAMED = {"reference": "engines.gillespy2_bridge"}
+
+
+def new_name(old: str) -> str | None:
+    """The module ``crn.<old>`` is now, or None if it did not move."""
+    if old in RENAMED:
+        return f"crn.{RENAMED[old]}"
+    if old in MOVED:
+        return f"crn.{MOVED[old]}.{old}"
+    return None
+
 
 class _Alias(importlib.abc.Loader):
     def __init__(self, target: str):
@@ -43,9 +57,9 @@ class MovedModuleFinder(importlib.abc.MetaPathFinder):
 
     def find_spec(self, fullname, path=None, target=None):
         package, _, name = fullname.partition(".")
-        if package != "crn" or name not in MOVED:
+        new = new_name(name) if package == "crn" else None
+        if new is None:
             return None
-        new = f"crn.{MOVED[name]}.{name}"
         warnings.warn(f"{fullname} moved to {new}; the old name goes in the next release",
                       FutureWarning, stacklevel=2)
         return importlib.util.spec_from_loader(fullname, _Alias(new))

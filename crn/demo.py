@@ -36,6 +36,7 @@ from crn.io.atomic import write_atomic
 from crn.io.jsonable import to_jsonable
 from crn.io.models import load_model
 from crn.io.regime_tables import table_csv
+from crn.runtime.seeds import root_seed
 
 __all__ = ["run_demo", "main", "SETTINGS", "REPORT"]
 
@@ -157,7 +158,7 @@ def run_demo(out, *, quick: bool = False, seed: int = 20261201, workers: int = 2
     s = SETTINGS["quick" if quick else "full"]
     out = Path(out)
     out.mkdir(parents=True, exist_ok=True)
-    root = np.random.SeedSequence(seed)
+    root = root_seed(seed)
     seeds = root.spawn(4)
     rate = parse_rate_constant(s["rate"])
     deadline_s = parse_time(s["deadline"])

@@ -290,7 +290,7 @@ def test_gillespy2_mass_action_convention_is_ours():
 
 
 def test_sbml_import_converted_to_gillespy2_gives_our_propensities_at_random_states():
-    from crn.reference import to_gillespy2
+    from crn.engines.gillespy2_bridge import to_gillespy2
 
     rng = np.random.default_rng(20240611)
     net = Network.from_reactions("mix", ["A", "B", "C"], [

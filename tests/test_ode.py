@@ -245,7 +245,7 @@ def test_protocol_without_agents_is_refused():
 
 
 def _gillespy2_ode(net, times):
-    """GillesPy2's ODESolver on the network built by crn.reference.to_gillespy2.
+    """GillesPy2's ODESolver on the network built by crn.engines.gillespy2_bridge.to_gillespy2.
 
     Read in gillespy2/core/reaction.py (_create_mass_action) and
     solvers/numpy/ode_solver.py: its mass-action ODE rate is ``k * prod x**r`` in the
@@ -255,7 +255,7 @@ def _gillespy2_ode(net, times):
     """
     import gillespy2
 
-    from crn.reference import to_gillespy2
+    from crn.engines.gillespy2_bridge import to_gillespy2
 
     model = to_gillespy2(net)
     for name, value in zip(net.species, initial_state(net), strict=True):

@@ -6,8 +6,8 @@ from seeds import seed
 
 from crn.core.errors import CRNError
 from crn.core.network import Network, Reaction, propensities
+from crn.engines.gillespy2_bridge import reference_propensities, run_reference, to_gillespy2
 from crn.io.models import load_model
-from crn.reference import reference_propensities, run_reference, to_gillespy2
 
 
 def mixed_order_network():

@@ -105,7 +105,7 @@ def test_engine_choice_and_horizon(am_net):
 def test_direct_and_reference_engines_agree_in_distribution():
     # Same network, two independent SSA implementations (ours; GillesPy2's pure-Python
     # solver): counts of X at t = 2 compared by a two-sample chi-square test, alpha = 0.001.
-    from crn.reference import run_reference
+    from crn.engines.gillespy2_bridge import run_reference
 
     net = load_model("models/approximate_majority.toml", {"n": 40, "gap": 4}).network
     times = [0.0, 1.0, 2.0]

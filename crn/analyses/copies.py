@@ -52,9 +52,10 @@ from crn.core.loading import (
 from crn.core.network import Network
 from crn.core.outcome import correct_label
 from crn.core.units import concentration_for, to_parallel_time, to_seconds, volume_for
+from crn.runtime.seeds import root_seed
 
 if TYPE_CHECKING:
-    from crn.core.types import Seed
+    from crn.core.types import SeedLike
 
 __all__ = ["Probe", "CopiesResult", "Prober", "Lattice", "lattice", "smallest_n",
            "physical_outputs", "physical_answer", "p_wrong_summary", "risk_parts",
@@ -210,7 +211,7 @@ class Prober:
 
     def __init__(self, networks: Callable[[int, int], Network], *, horizon: float | None = None,
                  method: str = "auto", exact_max: int = 100_000, transient_max: int = 10_000,
-                 runs_max: int = 4000, rng: Seed = None, workers: int = 1,
+                 runs_max: int = 4000, rng: SeedLike = None, workers: int = 1,
                  cluster: str | None = None, loading: str = "fixed", scale_deadline: bool = False,
                  loading_exact_max: int = 300_000):
         if method not in ("auto", "exact", "stochastic"):
@@ -220,7 +221,7 @@ class Prober:
         self.loading = loading
         self.scale_deadline = bool(scale_deadline)
         self.loading_exact_max = int(loading_exact_max)
-        seq = rng if isinstance(rng, np.random.SeedSequence) else np.random.SeedSequence(rng)
+        seq = root_seed(rng)
         self.entropy = int(cast(int, seq.entropy))
         self._stream = seq if seq.spawn_key else self.entropy
         self.networks = networks
@@ -566,7 +567,7 @@ def smallest_n(networks: Callable[[int, int], Network], *, gap_fraction: float |
                gap: int | None = None, risk: float = 0.01,
                deadline: float | Callable[[int], float] | None = None, n_max: int = 10**7,
                prober: Prober | None = None, method: str = "auto", runs_max: int = 4000,
-               rng: Seed = None, workers: int = 1, cluster: str | None = None,
+               rng: SeedLike = None, workers: int = 1, cluster: str | None = None,
                loading: str = "fixed", scale_deadline: bool = False) -> CopiesResult:
     """Smallest n with P(correct consensus by the deadline) >= 1 - risk, on the safe side.
 

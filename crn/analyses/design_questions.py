@@ -32,7 +32,7 @@ from crn.core.errors import CRNError
 from crn.core.network import Network
 
 if TYPE_CHECKING:
-    from crn.core.types import Seed
+    from crn.core.types import SeedLike
     from crn.dna.parameters import DnaParameters
 
 __all__ = ["FuelAnswer", "fuel_for_time", "LeakAnswer", "leak_tolerance",
@@ -187,7 +187,7 @@ class LeakAnswer:
 
 def leak_tolerance(formal_cells: Callable[[int, int], Network], n: int, gap: int,
                    scheme: str, params: DnaParameters, *, risk: float = 0.01,
-                   runs_max: int = 1000, rng: Seed = None, leak_start: float = 0.01,
+                   runs_max: int = 1000, rng: SeedLike = None, leak_start: float = 0.01,
                    leak_max: float = 1e6,
                    refine: int = 3, until: float | None = None) -> LeakAnswer:
     """Largest leak rate constant at which the implementation's cell (n, gap) stays ``ok``.
@@ -221,15 +221,14 @@ def leak_tolerance(formal_cells: Callable[[int, int], Network], n: int, gap: int
     -------
     LeakAnswer
     """
-    import numpy as np
-
     from crn.analyses.probes import ode_decision
     from crn.analyses.regimes import evaluate_cell
     from crn.core.outcome import correct_label
+    from crn.runtime.seeds import root_seed
 
     if not 0 < leak_start < leak_max:
         raise CRNError(f"need 0 < leak_start < leak_max, got {leak_start}, {leak_max}")
-    seq = rng if isinstance(rng, np.random.SeedSequence) else np.random.SeedSequence(rng)
+    seq = root_seed(rng)
     formal = formal_cells(int(n), int(gap))
     truth = correct_label(formal)
     if until is None:
@@ -311,7 +310,7 @@ def implementation_copies(formal_cells: Callable[[int, int], Network], scheme: s
                           params: DnaParameters, *, volume_liters: float | None = None,
                           gap_fraction: float | None = None, gap: int | None = None,
                           risk: float = 0.01, deadline: float | None = None, n_max: int = 10**7,
-                          method: str = "auto", runs_max: int = 4000, rng: Seed = None,
+                          method: str = "auto", runs_max: int = 4000, rng: SeedLike = None,
                           workers: int = 1, with_formal: bool = True) -> ImplementationCopies:
     """Smallest population meeting the risk on the implementation, beside the formal answer.
 

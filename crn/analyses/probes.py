@@ -135,11 +135,9 @@ def cell_seed(entropy: int | np.random.SeedSequence, *key: int) -> np.random.See
     the order cells were reached, so a resumed or parallel sweep draws the
     same numbers.
     """
-    if isinstance(entropy, np.random.SeedSequence):
-        # a child of a root: extend its own spawn key, so siblings never share streams
-        return np.random.SeedSequence(entropy=entropy.entropy,
-                                      spawn_key=(*entropy.spawn_key, *(int(k) for k in key)))
-    return np.random.SeedSequence(entropy=entropy, spawn_key=tuple(int(k) for k in key))
+    from crn.runtime.seeds import keyed_stream
+
+    return keyed_stream(entropy, *key)
 
 
 def ode_decision(net: Network, until: float) -> tuple[str | None, float | None]:

@@ -33,9 +33,11 @@ from crn.analyses.probes import (
 from crn.core.errors import CRNError
 from crn.core.network import Network
 from crn.core.outcome import correct_label
+from crn.runtime.executor import Executor
+from crn.runtime.seeds import root_seed
 
 if TYPE_CHECKING:
-    from crn.core.types import Seed, SeedLike
+    from crn.core.types import SeedLike
 
 __all__ = [
     "FLAGS",
@@ -429,7 +431,7 @@ def regime_map(networks: Callable[[int, int], Network], ns: Sequence[int], *,
                gaps: Sequence[int] | None = None, gap_fractions: Sequence[float] | None = None,
                risk: float = 0.01, until: float | None = None, runs_max: int = 1000,
                time_factor: float = 2.0, method: str = "auto",
-               exact_max: int = DEFAULT_EXACT_MAX, rng: Seed = None,
+               exact_max: int = DEFAULT_EXACT_MAX, rng: SeedLike = None,
                workers: int | None = None, cluster: str | None = None, done: Mapping | None = None,
                on_cell: Callable[[RegimeCell], None] | None = None,
                progress: Callable | None = None) -> RegimeMap:
@@ -492,7 +494,7 @@ def regime_map(networks: Callable[[int, int], Network], ns: Sequence[int], *,
         raise CRNError(f"runs_max must be >= 1, got {runs_max}")
     if until is not None and not until > 0:
         raise CRNError(f"until must be positive, got {until}")
-    seq = rng if isinstance(rng, np.random.SeedSequence) else np.random.SeedSequence(rng)
+    seq = root_seed(rng)
     entropy = int(cast(int, seq.entropy))
     stream = seq if seq.spawn_key else entropy
     cells, skipped = plan_cells(ns, gaps, gap_fractions)
@@ -514,20 +516,12 @@ def regime_map(networks: Callable[[int, int], Network], ns: Sequence[int], *,
         if progress:
             progress(count, total)
 
-    if workers and workers > 1 and cluster is None and len(todo) > 1:
-        from concurrent.futures import as_completed
-
-        from crn.runtime.workers import process_pool
-
-        # the costliest cells (largest n) first, so no worker idles at the end
-        ordered = sorted(todo, key=lambda c: -c[0])
-        with process_pool(workers, context=None) as pool:
-            futures = [pool.submit(_cell_task, (networks, n, g, options)) for n, g in ordered]
-            for future in as_completed(futures):
-                finish(future.result())
-    else:
-        for n, g in todo:
-            finish(evaluate_cell(networks, n, g, **options))
+    # cells run on local processes; with a cluster they run here and send their runs there.
+    # The costliest cells (largest n) first, so no worker idles at the end.
+    ordered = sorted(todo, key=lambda c: -c[0]) if workers and workers > 1 else todo
+    with Executor((workers or 1) if cluster is None else 1, context=None) as executor:
+        executor.run(_cell_task, [(networks, n, g, options) for n, g in ordered],
+                     lambda i, cell: finish(cell), noun="cells")
     ordered_cells = tuple(finished[c] for c in cells)
     return RegimeMap(cells=ordered_cells, boundary=fit_boundary(ordered_cells, risk, rng=entropy),
                      risk=float(risk), time_factor=float(time_factor), seed_entropy=entropy,

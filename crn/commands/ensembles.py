@@ -64,8 +64,6 @@ def run_ensemble(net, *, runs, until, engine, seed, workers, cluster, as_json, t
     """
     import os
 
-    import numpy as np
-
     from crn.runtime.guards import ensemble_estimate
     from crn.solvers.simulate import SimulationInterrupted, choose_engine, default_horizon, simulate
 
@@ -82,7 +80,9 @@ def run_ensemble(net, *, runs, until, engine, seed, workers, cluster, as_json, t
             len(times), net.n_species, runs)))
     guard(estimate, max_memory, force, announce=not as_json)
 
-    root = np.random.SeedSequence(seed)
+    from crn.runtime.seeds import root_seed
+
+    root = root_seed(seed)
     if seed is None:
         seed_notice(root.entropy)
     with progress_bar(description, runs, enabled=not as_json) as update:

@@ -83,11 +83,10 @@ def ssa(model, sets, runs, until, engine, workers, cluster, max_memory, force, s
     of the DNA implementation (same time unit, default horizon of the formal
     network), and the fuel left at the horizon is reported.
     """
-    import numpy as np
-
     from crn.core.errors import WorkerError
     from crn.core.outcome import correct_label
     from crn.io.runs import write_runs_csv
+    from crn.runtime.seeds import root_seed, seed_entropy
     from crn.solvers.simulate import default_horizon
     from crn.solvers.time_course import TimeCourseAccumulator, time_course_of_counts
 
@@ -110,10 +109,10 @@ def ssa(model, sets, runs, until, engine, workers, cluster, max_memory, force, s
         times = sample_times_option_value(every, horizon, force)
         until = float(times[-1])
         if seed is None:  # the kept runs are drawn from the root seed, so fix it now
-            seed = int(np.random.SeedSequence().entropy)
+            seed = seed_entropy(None)
             seed_notice(seed)
         accumulator = TimeCourseAccumulator(times, net.species, runs,
-                                            rng=np.random.SeedSequence(seed),
+                                            rng=root_seed(seed),
                                             time_units=time_units)
     try:
         ensemble, interrupted = run_ensemble(net, runs=runs, until=until, engine=engine,

@@ -59,7 +59,6 @@ _HOME = {
     "Protocol": "protocol",
     "is_identifier": "protocol",
     "time_summary": "stats",
-    "Seed": "types",
     "SeedLike": "types",
     "wilson_interval": "stats",
     "network_to_protocol": "translate",

@@ -10,12 +10,9 @@ from typing import TypeAlias
 
 import numpy as np
 
-__all__ = ["Seed", "SeedLike"]
+__all__ = ["SeedLike"]
 
 #: What every stochastic function accepts as ``rng``: a root seed, a ``SeedSequence``
-#: or a ``Generator`` (None: fresh entropy from the operating system).
-SeedLike: TypeAlias = int | np.random.SeedSequence | np.random.Generator | None
-
-#: A root seed or ``SeedSequence`` (None: fresh entropy), for analyses that address their
-#: child streams by key (cell, round) so that any order of work draws the same numbers.
-Seed: TypeAlias = int | np.random.SeedSequence | None
+#: or a ``Generator`` (None: fresh entropy from the operating system); see
+#: :func:`crn.runtime.seeds.root_seed`.
+SeedLike: TypeAlias = int | np.integer | np.random.SeedSequence | np.random.Generator | None

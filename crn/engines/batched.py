@@ -49,7 +49,7 @@ from crn.core.errors import CRNError
 from crn.core.network import Network
 from crn.core.outcome import RunOutcome, consensus_index
 from crn.core.translate import network_to_protocol
-from crn.engines.base import Trajectory
+from crn.engines.base import NetworkCache, Trajectory, check_horizon
 from crn.engines.hypergeometric import (
     MAX_POPULATION,
     _lgamma_excess,
@@ -1053,31 +1053,8 @@ def _kernel(rng, n_states, w, det, code, out_ptr, out_c, out_d, out_p, nn_ptr, n
 
 
 # --------------------------------------------------------------------------- driver
-_cache: dict[int, tuple] = {}
-
-
-def _tables(net: Network) -> dict:
-    hit = _cache.get(id(net))
-    if hit is not None and hit[0] is net:
-        return hit[1]
-    tables = protocol_tables(net)
-    if len(_cache) > 16:
-        _cache.clear()
-    _cache[id(net)] = (net, tables)
-    return tables
-
-
-def _check_times(until, times):
-    until = float(until)
-    if math.isnan(until) or until <= 0:
-        raise ValueError(f"`until` must be a positive time, got {until}")
-    if times is None:
-        times = np.linspace(0.0, until, 101) if math.isfinite(until) else np.zeros(0)
-    times = np.ascontiguousarray(times, dtype=np.float64).reshape(-1)
-    if times.size and ((np.diff(times) < 0).any() or times[0] < 0 or times[-1] > until
-                       or not np.isfinite(times).all()):
-        raise ValueError("`times` must be finite, non-decreasing and within [0, until]")
-    return until, times
+_tables = NetworkCache(protocol_tables)
+"""Transition tables of a network, built once per (immutable) network object."""
 
 
 def run_batched(net: Network, *, until: float, times=None, rng=None,
@@ -1147,7 +1124,7 @@ def run_batched(net: Network, *, until: float, times=None, rng=None,
         raise ValueError(f"`clock` must be 'continuous' or 'discrete', got {clock!r}")
     if not batch_threshold >= 0:
         raise ValueError(f"`batch_threshold` must be >= 0, got {batch_threshold}")
-    until, times = _check_times(until, times)
+    until, times = check_horizon(until, times, infinite=True)
     n = net.population
     if n > MAX_POPULATION:
         raise CRNError(f"the batched engine handles at most 2**60 agents, got {n}")

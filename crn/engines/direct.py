@@ -17,7 +17,7 @@ import numpy as np
 
 from crn.core.network import Network
 from crn.core.outcome import RunOutcome
-from crn.engines.base import Trajectory
+from crn.engines.base import NetworkCache, Trajectory, check_horizon
 
 __all__ = ["run_direct", "dependency_graph"]
 
@@ -310,18 +310,6 @@ def _kernel(rs, rc, c, ch_ptr, ch_sp, ch_d, dep_ptr, dep_idx, species_label, n_l
     return counts, first_label, first_time, last, events, end_time, status
 
 
-def _check_times(until, times):
-    until = float(until)
-    if not np.isfinite(until) or until <= 0:
-        raise ValueError(f"`until` must be a positive finite time, got {until}")
-    if times is None:
-        times = np.linspace(0.0, until, 101)
-    times = np.ascontiguousarray(times, dtype=np.float64).reshape(-1)
-    if times.size and ((np.diff(times) < 0).any() or times[0] < 0 or times[-1] > until):
-        raise ValueError("`times` must be non-decreasing and within [0, until]")
-    return until, times
-
-
 def run_direct(net: Network, *, until: float, times=None, rng=None,
                stop_at_consensus: bool = False) -> Trajectory:
     """One exact stochastic run of a mass-action network (optimised direct method).
@@ -372,7 +360,7 @@ def run_direct(net: Network, *, until: float, times=None, rng=None,
     >>> run.outcome.label, run.status
     ('I', 'consensus')
     """
-    until, times = _check_times(until, times)
+    until, times = check_horizon(until, times)
     rng = np.random.default_rng(rng)
     arrays = _prepared(net)
     counts, first, first_time, last, events, end_time, status = _kernel(
@@ -384,15 +372,8 @@ def run_direct(net: Network, *, until: float, times=None, rng=None,
                       events=int(events), end_time=float(end_time), status=_STATUS[status])
 
 
-_cache: dict[int, tuple] = {}
-
-
-def _prepared(net: Network) -> tuple:
-    """Kernel arrays of a network, cached on the (immutable) network object."""
-    key = id(net)
-    hit = _cache.get(key)
-    if hit is not None and hit[0] is net:
-        return hit[1]
+def _kernel_arrays(net: Network) -> tuple:
+    """Kernel arrays of a network."""
     orders = net.orders.astype(np.float64)
     c = np.ascontiguousarray(net.rates / net.volume ** (orders - 1.0), dtype=np.float64)
     ch_ptr, ch_sp, ch_d = _changes(net)
@@ -400,7 +381,8 @@ def _prepared(net: Network) -> tuple:
     arrays = (np.ascontiguousarray(net.reactant_species), np.ascontiguousarray(net.reactant_counts),
               c, ch_ptr, ch_sp, ch_d, dep_ptr, dep_idx,
               np.ascontiguousarray(net.species_label, dtype=np.int64), len(net.labels))
-    if len(_cache) > 16:
-        _cache.clear()
-    _cache[key] = (net, arrays)
     return arrays
+
+
+_prepared = NetworkCache(_kernel_arrays)
+"""Kernel arrays of a network, built once per (immutable) network object."""

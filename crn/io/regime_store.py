@@ -16,6 +16,7 @@ from dataclasses import dataclass, field
 from pathlib import Path
 
 from crn.core.errors import CRNError
+from crn.runtime.seeds import seed_entropy
 
 __all__ = ["RegimeSweep", "open_regime_sweep", "regime_sweep_parameters", "RESULTS_NAME"]
 
@@ -129,12 +130,10 @@ def open_regime_sweep(out, parameters: dict, *, seed=None, resume: bool = False)
         On resume, when the file records other parameters or another seed than the
         one given, or is not a results file; when ``out`` cannot be written.
     """
-    import numpy as np
-
     from crn.analyses.regimes import RegimeCell
     from crn.io.sweep_store import SweepStore
 
-    entropy = np.random.SeedSequence(seed).entropy
+    entropy = seed_entropy(seed)
     if out is None:
         return RegimeSweep(seed_entropy=entropy)
     store = SweepStore(out, RESULTS_NAME, parameters, seed_entropy=entropy, resume=resume,

@@ -134,12 +134,13 @@ def collect_report(model, *, model_text: str, model_file: str, sets=(), networks
     ReportData
     """
     from crn.analyses.compare import compare_runs, mean_field_window
+    from crn.runtime.seeds import root_seed
     from crn.solvers.simulate import simulate
 
     settings = settings or ReportSettings()
     saved = saved or {}
     step = progress or (lambda name: None)
-    root = np.random.SeedSequence(settings.seed)
+    root = root_seed(settings.seed)
     # integer seeds, so that the commands in the reproduce box give the same numbers
     seeds = [_entropy(child) for child in root.spawn(3)]
     net = model.network

@@ -1,4 +1,4 @@
-"""Running work safely: resource guards, interruption by signals, worker processes.
+"""Running work safely: resource guards, signals, seeds and the executor of parallel tasks.
 
 Every public name of the layer's modules is importable from here; a module is
 imported only when one of its names is first used, so importing the layer is free.
@@ -24,11 +24,18 @@ _HOME = {
     "regime_map_estimate": "guards",
     "time_course_bytes": "guards",
     "verify_estimate": "guards",
+    "Executor": "executor",
+    "POOL_RESTARTS": "executor",
+    "probe_scheduler": "executor",
     "call_interruptibly": "interrupts",
     "exit_status": "interrupts",
     "handling": "interrupts",
     "reason": "interrupts",
     "received": "interrupts",
+    "child_streams": "seeds",
+    "keyed_stream": "seeds",
+    "root_seed": "seeds",
+    "seed_entropy": "seeds",
     "process_pool": "workers",
     "stop_workers": "workers",
     "worker_initializer": "workers",

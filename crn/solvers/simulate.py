@@ -8,10 +8,8 @@ and on a Dask cluster.
 
 from __future__ import annotations
 
-import importlib
 import math
 import os
-import warnings
 from collections.abc import Callable
 from dataclasses import dataclass, field
 from typing import TYPE_CHECKING
@@ -23,7 +21,9 @@ from crn.core.network import Network
 from crn.core.outcome import NO_CONSENSUS, tally
 from crn.core.stats import time_summary, wilson_interval
 from crn.engines import ENGINES
-from crn.engines.base import Trajectory
+from crn.engines.base import DEFAULT_SAMPLES, Trajectory
+from crn.runtime.executor import POOL_RESTARTS, Executor, probe_scheduler
+from crn.runtime.seeds import root_seed
 
 if TYPE_CHECKING:
     from collections.abc import Sequence
@@ -260,15 +260,10 @@ def choose_engine(net: Network, engine: str = "auto") -> str:
 
 def _available(engine: str) -> bool:
     try:
-        _engine(engine)
-    except (ImportError, AttributeError):
+        ENGINES[engine].load()
+    except ImportError:
         return False
     return True
-
-
-def _engine(name: str) -> Callable[..., Trajectory]:
-    module, attr = ENGINES[name]
-    return getattr(importlib.import_module(module), attr)
 
 
 def run_chunk(net: Network, engine: str, until: float, times: np.ndarray | None,
@@ -280,9 +275,16 @@ def run_chunk(net: Network, engine: str, until: float, times: np.ndarray | None,
     """
     if run_index is not None and os.environ.get(KILL_WORKER_HOOK):
         _maybe_die(run_index, len(seeds))
-    run = _engine(engine)
+    run = ENGINES[engine].load()
     return [run(net, until=until, times=times, rng=np.random.default_rng(s),
                 stop_at_consensus=stop_at_consensus) for s in seeds]
+
+
+def _chunk_task(shared, task) -> list[Trajectory]:
+    """One executor task: the runs of one chunk (``task``: first run index, child seeds)."""
+    first, seeds = task
+    net, engine, until, times, stop_at_consensus = shared
+    return run_chunk(net, engine, until, times, stop_at_consensus, seeds, run_index=first)
 
 
 def _maybe_die(first: int, size: int) -> None:
@@ -297,16 +299,6 @@ def _maybe_die(first: int, size: int) -> None:
         except FileExistsError:
             return
     os.kill(os.getpid(), signal.SIGKILL)
-
-
-def _root(rng) -> np.random.SeedSequence:
-    if isinstance(rng, np.random.SeedSequence):
-        return np.random.SeedSequence(rng.entropy, spawn_key=rng.spawn_key)
-    if isinstance(rng, np.random.Generator):
-        return np.random.SeedSequence(int(rng.integers(0, 2**63)))
-    if rng is None or isinstance(rng, int | np.integer):
-        return np.random.SeedSequence(None if rng is None else int(rng))
-    raise TypeError(f"`rng` must be a Generator, int, SeedSequence or None, got {type(rng)}")
 
 
 def simulate(net: Network, *, runs: int = 1, until: float | None = None,
@@ -384,26 +376,32 @@ def simulate(net: Network, *, runs: int = 1, until: float | None = None,
     until = default_horizon(net) if until is None else float(until)
     if not np.isfinite(until) or until <= 0:
         raise ValueError(f"`until` must be a positive finite time, got {until}")
-    times = (np.linspace(0.0, until, 101) if times is None
+    times = (np.linspace(0.0, until, DEFAULT_SAMPLES) if times is None
              else np.asarray(times, dtype=np.float64).reshape(-1))
-    root = _root(rng)
+    root = root_seed(rng)
     children = root.spawn(int(runs))
-    workers = (os.cpu_count() or 1) if workers is None else int(workers)
     done: dict[int, Trajectory] = {} if reduce is None else _Reducing(reduce)
     report = progress or (lambda d, t: None)
-    task = (net, name, until, times, bool(stop_at_consensus))
+    shared = (net, name, until, times, bool(stop_at_consensus))
+    executor = Executor(workers, cluster, restarts=POOL_RESTARTS)
     try:
-        if cluster is not None:
-            _on_cluster(cluster, task, children, done, report)
-        elif workers == 1 or runs == 1:
-            _in_thread(task, children, done, report)
-        else:
-            _on_pool(workers, task, children, done, report)
+        with executor:
+            chunks = (_chunks(len(children), executor.size) if executor.kind != "inline"
+                      else [range(i, i + 1) for i in range(len(children))])
+
+            def keep(index, trajectories):
+                for i, trajectory in zip(chunks[index], trajectories, strict=True):
+                    done[i] = trajectory
+                report(len(done), len(children))
+
+            executor.run(_chunk_task, [(c.start, [children[i] for i in c]) for c in chunks],
+                         keep, shared=shared, weight=lambda task: len(task[1]), noun="runs")
     except KeyboardInterrupt as err:
         raise SimulationInterrupted(_collect(done, name, root, until, net, times, runs)) from err
     except WorkerError as err:
-        err.partial = _collect(done, name, root, until, net, times, runs)
-        raise
+        raise WorkerError(f"{err}; {len(done)} of {len(children)} runs finished, "
+                          f"{len(children) - len(done)} lost",
+                          partial=_collect(done, name, root, until, net, times, runs)) from err
     return _collect(done, name, root, until, net, times, runs)
 
 
@@ -437,177 +435,6 @@ def _chunks(n_runs: int, workers: int) -> list[range]:
     return [range(i, min(i + size, n_runs)) for i in range(0, n_runs, size)]
 
 
-def _in_thread(task, children, done, report):
-    """Run in turn on a helper thread while this thread waits, so that Ctrl-C and SIGTERM
-    (handled in the main thread only) stop the ensemble at once even during a long run.
-
-    The engines' kernels release the GIL; on an interruption the run under way
-    is abandoned (its thread stops after it) and the finished runs are kept.
-    """
-    import queue
-    import threading
-
-    stop = threading.Event()
-    finished: queue.SimpleQueue = queue.SimpleQueue()
-    failure = []
-
-    def work():
-        try:
-            for i, child in enumerate(children):
-                if stop.is_set():
-                    return
-                finished.put((i, run_chunk(*task, [child])[0]))
-        except BaseException as err:  # handed to the waiting thread
-            failure.append(err)
-        finally:
-            finished.put(None)
-
-    thread = threading.Thread(target=work, name="crn-runs", daemon=True)
-    thread.start()
-    try:
-        while True:
-            try:
-                item = finished.get(timeout=0.05)
-            except queue.Empty:
-                continue
-            if item is None:
-                break
-            done[item[0]] = item[1]
-            report(len(done), len(children))
-    except BaseException:
-        stop.set()
-        raise
-    if failure:
-        raise failure[0]
-
-
-POOL_RESTARTS = 3
-"""How many times a local pool whose worker died is replaced before the ensemble gives up."""
-
 KILL_WORKER_HOOK = "CRN_TEST_KILL_WORKER"
 """Test hook ``RUN[:MARKER]``: a pool worker SIGKILLs itself on starting the chunk holding run
 RUN (once, if the MARKER file does not exist yet; it is then created; always without one)."""
-
-
-def _on_pool(workers, task, children, done, report):
-    """Run the chunks on local processes; a chunk lost with a dead worker is rerun on a new pool.
-
-    A chunk's runs use the chunk's own child streams, so rerunning it gives the
-    same trajectories: the ensemble is the same as if no worker had died.
-    """
-    from concurrent.futures.process import BrokenProcessPool
-
-    chunks = _chunks(len(children), workers)
-    for restart in range(POOL_RESTARTS + 1):
-        todo = [chunk for chunk in chunks if chunk[0] not in done]
-        if not todo:
-            return
-        try:
-            _pool_pass(workers, task, children, todo, done, report)
-            return
-        except BrokenProcessPool as err:
-            lost = sum(len(chunk) for chunk in chunks if chunk[0] not in done)
-            if restart == POOL_RESTARTS:
-                raise WorkerError(
-                    f"worker processes died {restart + 1} times (killed or out of memory); "
-                    f"{len(done)} of {len(children)} runs finished, {lost} lost") from err
-            warnings.warn(f"a worker process died; rerunning its {lost} unfinished runs "
-                          "on their own random streams", RuntimeWarning, stacklevel=2)
-
-
-def _pool_pass(workers, task, children, chunks, done, report):
-    from concurrent.futures import FIRST_COMPLETED, wait
-    from concurrent.futures.process import BrokenProcessPool
-
-    from crn.runtime.workers import process_pool
-
-    with process_pool(workers) as pool:
-        futures = {pool.submit(run_chunk, *task, [children[i] for i in chunk],
-                               run_index=chunk.start): chunk
-                   for chunk in chunks}
-        pending = set(futures)
-        while pending:
-            finished, pending = wait(pending, return_when=FIRST_COMPLETED)
-            broken = None
-            for future in finished:
-                try:
-                    result = future.result()
-                except BrokenProcessPool as err:
-                    broken = err
-                    continue
-                for i, trajectory in zip(futures[future], result, strict=True):
-                    done[i] = trajectory
-            report(len(done), len(children))
-            if broken is not None:
-                raise broken
-
-
-def probe_scheduler(address: str) -> None:
-    """Fail fast on a malformed or refused TCP address instead of waiting out Dask's retries.
-
-    Parameters
-    ----------
-    address : str
-        ``tcp://HOST:PORT``, ``tls://HOST:PORT`` or ``HOST:PORT``; other schemes pass unchecked.
-
-    Raises
-    ------
-    CRNError
-        When a TCP or TLS address has no host or port, or nothing listens there.
-    """
-    import socket
-    from urllib.parse import urlsplit
-
-    parts = urlsplit(address if "://" in address else f"tcp://{address}")
-    if parts.scheme not in ("tcp", "tls"):
-        return
-    try:
-        port = parts.port
-    except ValueError:
-        port = None
-    if not parts.hostname or port is None:
-        raise CRNError(f"{address!r} is not a scheduler address; expected tcp://HOST:PORT")
-    try:
-        socket.create_connection((parts.hostname, port), timeout=5).close()
-    except OSError as err:
-        raise CRNError(f"cannot reach the Dask scheduler at {address}: {err}") from err
-
-
-def _on_cluster(address, task, children, done, report):
-    try:
-        from distributed import Client, as_completed
-        from distributed.scheduler import KilledWorker
-    except ImportError as err:  # pragma: no cover - dask is a dependency
-        raise CRNError("--cluster needs dask.distributed") from err
-    probe_scheduler(address)
-    try:
-        client = Client(address, timeout="10s", set_as_default=False)
-    except (OSError, TimeoutError) as err:
-        raise CRNError(f"cannot reach the Dask scheduler at {address}: {err}") from err
-    futures = []
-    try:
-        n_workers = max(1, len(client.scheduler_info().get("workers", {})))
-        scattered = client.scatter(task[0], broadcast=True)
-        chunk_of = {}
-        for chunk in _chunks(len(children), n_workers):
-            future = client.submit(run_chunk, scattered, *task[1:],
-                                   [children[i] for i in chunk], pure=False)
-            chunk_of[future.key] = chunk
-            futures.append(future)
-        with client.as_current():
-            # a chunk whose worker dies is rescheduled by the scheduler on another worker
-            # (same child streams, same numbers); one that kills workers repeatedly fails
-            for future in as_completed(futures):
-                try:
-                    result = future.result()
-                except KilledWorker as err:
-                    raise WorkerError(f"cluster workers died running the same runs again and "
-                                      f"again ({err}); {len(done)} of {len(children)} runs "
-                                      "finished") from err
-                for i, trajectory in zip(chunk_of[future.key], result, strict=True):
-                    done[i] = trajectory
-                report(len(done), len(children))
-    finally:
-        if futures:
-            client.cancel([f for f in futures if not f.done()])
-        client.close()

@@ -396,11 +396,11 @@ class TimeCourseAccumulator:
 
 
 def _reservoir_stream(rng) -> np.random.SeedSequence:
-    if isinstance(rng, np.random.SeedSequence):
-        return np.random.SeedSequence(rng.entropy, spawn_key=(*rng.spawn_key, _RESERVOIR_KEY))
+    from crn.runtime.seeds import keyed_stream, root_seed
+
     if isinstance(rng, np.random.Generator):
-        return np.random.SeedSequence(int(rng.integers(0, 2**63)))
-    return np.random.SeedSequence(rng, spawn_key=(_RESERVOIR_KEY,))
+        return root_seed(rng)
+    return keyed_stream(rng, _RESERVOIR_KEY)
 
 
 def time_course_of_counts(times: ArrayLike, counts: ArrayLike, species: Sequence[str], *,

@@ -28,7 +28,6 @@ import hashlib
 import os
 import shutil
 import sys
-import threading
 import warnings
 from pathlib import Path
 
@@ -37,13 +36,11 @@ import numpy as np
 from crn.core.errors import CRNError
 from crn.core.network import Network
 from crn.core.outcome import RunOutcome, consensus_index
-from crn.engines.base import Trajectory
+from crn.engines.base import NetworkCache, Trajectory, check_horizon
 
 __all__ = ["to_gillespy2", "run_reference", "reference_propensities"]
 
 _SOLVERS = ("auto", "c", "numpy")
-_compiled: dict[str, object] = {}
-_compiled_lock = threading.Lock()
 _c_unavailable: list[str] = []
 
 
@@ -171,27 +168,25 @@ def _fingerprint(net: Network, grid: np.ndarray) -> str:
     return h.hexdigest()
 
 
-def _compiled_solver(net: Network, model, grid: np.ndarray):
-    """A built SSACSolver for this network, cached per process; None if it cannot be built."""
+def _build_solver(net: Network, model, grid: np.ndarray):
+    """Build the SSACSolver for this network; None if it cannot be built here."""
     import gillespy2
 
     if _c_unavailable:
         return None
-    key = _fingerprint(net, grid)
-    with _compiled_lock:
-        if key in _compiled:
-            return _compiled[key]
-        try:
-            with _scons_on_path(), warnings.catch_warnings():
-                warnings.simplefilter("ignore")
-                solver = gillespy2.SSACSolver(model=model)
-        except Exception as err:  # no compiler or build tool: fall back to NumPy
-            _c_unavailable.append(f"{type(err).__name__}: {err}")
-            return None
-        if len(_compiled) >= 8:
-            _compiled.pop(next(iter(_compiled)))
-        _compiled[key] = solver
-        return solver
+    try:
+        with _scons_on_path(), warnings.catch_warnings():
+            warnings.simplefilter("ignore")
+            return gillespy2.SSACSolver(model=model)
+    except Exception as err:  # no compiler or build tool: fall back to NumPy
+        _c_unavailable.append(f"{type(err).__name__}: {err}")
+        return None
+
+
+# built solvers by network content and grid: a build takes seconds, and equal networks
+# built separately (one per process task) share it
+_compiled_solver = NetworkCache(_build_solver, size=8,
+                                key=lambda net, model, grid: _fingerprint(net, grid))
 
 
 def _uniform_grid(times: np.ndarray) -> tuple[np.ndarray, np.ndarray]:
@@ -254,13 +249,9 @@ def run_reference(net: Network, *, until: float, times=None, rng=None,
 
     if solver not in _SOLVERS:
         raise ValueError(f"`solver` must be one of {_SOLVERS}, got {solver!r}")
-    until = float(until)
-    if not np.isfinite(until) or until <= 0:
-        raise ValueError(f"`until` must be a positive finite time, got {until}")
-    times = (np.linspace(0.0, until, 101) if times is None
-             else np.asarray(times, dtype=np.float64).reshape(-1))
-    if times.size == 0 or (np.diff(times) <= 0).any() or times[-1] > until * (1 + 1e-12):
-        raise ValueError("`times` must be increasing and within [0, until]")
+    until, times = check_horizon(until, times, increasing=True)
+    if times.size == 0:
+        raise ValueError("the reference engine needs at least one sample time in `times`")
     rng = np.random.default_rng(rng)
     seed = int(rng.integers(1, 2**31 - 1))
     grid, index = _uniform_grid(times)
