@@ -14,10 +14,14 @@ from pathlib import Path
 
 __all__ = ["DNA_SETTINGS", "dna_section"]
 
-#: Full and quick settings of the DNA section (``quick`` for the test suite).
+#: Full and quick settings of the DNA section (``quick`` for the test suite). The risk
+#: of the stochastic questions must lie above what the run budgets can certify
+#: (:func:`crn.analyses.design_questions.risk_floor`: 400 runs certify nothing below
+#: 1.26%, so a 1% risk would need about 550 runs per cell even when no run goes wrong,
+#: and about 1,000 to allow for the circuit's own errors, some ten minutes more).
 DNA_SETTINGS = {
     "full": dict(concentration="10nM", slow_rate="1e5/M/s", leaks=[10.0],
-                 stochastic_fuel="100nM", gap_fraction=0.2, risk=0.01, copies_runs_max=400,
+                 stochastic_fuel="100nM", gap_fraction=0.2, risk=0.05, copies_runs_max=400,
                  tolerance_n=60, tolerance_gap=30, tolerance_runs_max=400, n_max=1000),
     "quick": dict(concentration="10nM", slow_rate="1e5/M/s", leaks=[10.0],
                   stochastic_fuel="100nM", gap_fraction=0.4, risk=0.05, copies_runs_max=100,
@@ -63,7 +67,12 @@ def dna_section(out, net, *, n: int, gap: int, rate: float, deadline_seconds: fl
     dict
         The ``dna`` record of ``summary.json``.
     """
-    from crn.analyses.design_questions import fuel_for_time, implementation_copies, leak_tolerance
+    from crn.analyses.design_questions import (
+        fuel_for_time,
+        implementation_copies,
+        leak_tolerance,
+        risk_floor,
+    )
     from crn.analyses.implemented import formal_ode_horizon, fuel_left_ode, implementation_of
     from crn.analyses.probes import InitialSplit, gap_for_fraction
     from crn.core.units import (
@@ -76,6 +85,10 @@ def dna_section(out, net, *, n: int, gap: int, rate: float, deadline_seconds: fl
     from crn.solvers.ode import solve_mean_field
 
     s = DNA_SETTINGS["quick" if quick else "full"]
+    for budget in ("copies_runs_max", "tolerance_runs_max"):
+        if risk_floor(s[budget]) >= s["risk"]:
+            raise ValueError(f"DNA_SETTINGS: {budget} = {s[budget]} runs cannot certify the "
+                             f"risk {s['risk']}")
     conc = parse_concentration(s["concentration"])
     params = DnaParameters(rate=rate, concentration=conc)
     cells = InitialSplit(net)
@@ -142,27 +155,35 @@ def dna_section(out, net, *, n: int, gap: int, rate: float, deadline_seconds: fl
     deadline = deadline_seconds * rate * conc
     fraction = s["gap_fraction"]
     copies = []
+    runs = s["copies_runs_max"]
+    floor = risk_floor(runs)
     echo(f"  copies for a {fraction:.0%} gap at risk {s['risk']:g} within "
-         f"{format_time(deadline_seconds)} (gates at {format_concentration(fuel)}):")
+         f"{format_time(deadline_seconds)} (gates at {format_concentration(fuel)}; every "
+         f"droplet holds exactly n; up to {runs:,} runs per n on the circuit, which can "
+         f"certify P(wrong) down to {floor:.2%}):")
     for leak in [0.0, *s["leaks"]]:
         answer = implementation_copies(
             cells, "ssw", dataclasses.replace(lean, leak=leak), gap_fraction=fraction,
             risk=s["risk"], deadline=deadline, n_max=s["n_max"],
-            runs_max=s["copies_runs_max"], rng=seed, with_formal=leak == 0.0)
+            runs_max=runs, rng=seed, with_formal=leak == 0.0)
         got = answer.implemented
         row = dict(leak_per_molar_second=leak, copies=got.estimate, copies_low=got.low,
                    copies_high=got.high, median_time=got.median_time, verdict=answer.verdict,
+                   method=got.method,
                    reason=None if answer.diagnosis is None else answer.diagnosis.reason)
         if answer.formal is not None:
             row["formal_copies"] = answer.formal.estimate
-            echo(f"    formal network: n = {_n(answer.formal.estimate)}")
+            echo(f"    formal network: n = {_n(answer.formal.estimate)} "
+                 f"[{answer.formal.method}]")
         if got.estimate is None:
             why = "" if answer.diagnosis is None else f": {answer.diagnosis.text()}"
             echo(f"    leak {leak:g} /M/s: no droplet size works{why}")
         else:
-            echo(f"    leak {leak:g} /M/s: n = {got.estimate:,} ({_n(got.low)}..{_n(got.high)}), "
-                 f"median decision {format_time(got.median_time * unit)}"
-                 if got.median_time else f"    leak {leak:g} /M/s: n = {got.estimate:,}")
+            echo(f"    leak {leak:g} /M/s: n = {got.estimate:,} ({_n(got.low)}..{_n(got.high)})"
+                 + (f", median decision {format_time(got.median_time * unit)}"
+                    if got.median_time else "")
+                 + (f": {answer.verdict}" if answer.formal is not None else
+                    _against_no_leak(copies)))
         copies.append(row)
     echo(f"  figure: {Path(out) / 'dna_implementation.png'}")
     echo("  DNA numbers are model predictions of an idealised construction (no strand "
@@ -181,7 +202,8 @@ def dna_section(out, net, *, n: int, gap: int, rate: float, deadline_seconds: fl
                            "fuel_molar": fuel, "leak_per_molar_second": tol.leak,
                            "failing_per_molar_second": tol.failing},
         "copies": {"gap_fraction": fraction, "risk": s["risk"], "fuel_molar": fuel,
-                   "deadline": deadline, "rows": copies,
+                   "deadline": deadline, "loading": "fixed", "runs_max": runs,
+                   "risk_floor": floor, "rows": copies,
                    "gap_at_copies": [None if r["copies"] is None
                                      else gap_for_fraction(r["copies"], fraction)
                                      for r in copies]},
@@ -190,3 +212,9 @@ def dna_section(out, net, *, n: int, gap: int, rate: float, deadline_seconds: fl
 
 def _n(value):
     return "-" if value is None else f"{value:,}"
+
+
+def _against_no_leak(rows) -> str:
+    """`` (n = 80 without leak)``, from the leak-free row of the copies table, or nothing."""
+    base = rows[0]["copies"] if rows and rows[0]["leak_per_molar_second"] == 0 else None
+    return "" if base is None else f" (n = {base:,} without leak)"

@@ -73,8 +73,12 @@ def test_json_object(tmp_path):
     assert data["formal"]["species"] == ["X", "Y", "B"]
     assert data["parameters"]["leak_per_molar_second"] == 10.0
     assert len(data["leak_reactions"]) == 4
-    net = network_from_dict(data)  # loadable as a network, non-signal species ignored
-    assert set(net.ignored) == {s for s, r in data["roles"].items() if r != "signal"}
+    net = network_from_dict(data)  # loadable as a network, labelled by the decision rule
+    assert set(net.ignored) == set(data["species"]) - set(data["decision_labels"])
+    assert {s for s, r in data["roles"].items() if r in ("fuel", "waste")} <= set(net.ignored)
+    assert data["decision_labels"]["H_r1"] == "X" and data["decision_labels"]["O_r1"] is None
+    assert data["output"]["H_r1"] == "X"  # the contract's output carries the same labels
+    assert "intermediate" in data["decision_rule"]
 
 
 def test_exports_like_translate(tmp_path):

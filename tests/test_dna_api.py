@@ -87,14 +87,20 @@ def test_ssw_roles_units_and_fuel_counts():
     assert set(SCHEMES) >= {"ssw"}
     assert set(imp.roles.values()) <= {"signal", "fuel", "intermediate", "waste"}
     assert [s for s in imp.network.species if imp.roles[s] == "signal"] == list(net.species)
-    assert set(imp.network.ignored) == {s for s, r in imp.roles.items() if r != "signal"}
+    # the decision rule (crn.dna.labels): fuel and waste are ignored, signals never;
+    # intermediates count as what they hold (tests/test_dna_labels.py)
+    ignored = set(imp.network.ignored)
+    assert {s for s, r in imp.roles.items() if r in ("fuel", "waste")} <= ignored
+    assert not ignored & set(net.species)
+    assert set(imp.decision_labels) == set(imp.network.species) - ignored
     # derived: 1e-6 M fuel at v / C = 99 / 1e-8 molecules per M -> 9900 molecules
     for s in imp.fuel:
         assert imp.network.initial[imp.network.index[s]] == 9900
     # derived: a bimolecular constant q /M/s is q / rate in formal units
     for r, q in zip(imp.network.reactions(), imp.physical_rates, strict=True):
         assert r.rate == pytest.approx(q / 1e5)
-    assert imp.network.majority == net.majority and imp.network.output == net.output
+    assert imp.network.majority == net.majority and imp.network.labels == net.labels
+    assert {s: v for s, v in imp.network.output.items() if s in net.species} == net.output
     assert imp.fuel_remaining(imp.network.initial) == {s: 1.0 for s in imp.fuel}
 
 

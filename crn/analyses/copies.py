@@ -306,6 +306,16 @@ class Prober:
         return Probe(n, gap, est.p, est.low, est.high, est.successes, est.trials, "stochastic",
                      deadline)
 
+    def _droplet_cells(self, n: int):
+        """Builder of the droplets of a sample whose mean droplet holds n.
+
+        ``networks`` itself, or ``networks.droplets(n)`` when the builder fixes a
+        droplet's volume and fuel by the mean (a DNA implementation:
+        :class:`crn.analyses.design_questions.LoadedCells`).
+        """
+        droplets = getattr(self.networks, "droplets", None)
+        return self.networks if droplets is None else droplets(int(n))
+
     def _droplet_deadline(self, deadline, n, totals):
         if deadline is None:
             return None
@@ -322,7 +332,7 @@ class Prober:
             grid = loading_grid(n, gap, tail)
             totals = grid.totals
             top = int(totals[-1])
-            cost = float(configurations(self.networks(top, top % 2)) * len(totals))
+            cost = float(configurations(self._droplet_cells(n)(top, top % 2)) * len(totals))
             if deadline is not None:
                 # a matrix-exponential action costs about (rate norm) x (deadline) products
                 cost *= 1 + top * float(np.max(self._droplet_deadline(deadline, n, [top]))) / 10
@@ -352,6 +362,7 @@ class Prober:
             seq = cell_seed(self._stream, n, gap, round_index, 1)
             load_seed, run_seed = seq.spawn(2)
             major, minor = draw_droplets(n, gap, size, np.random.default_rng(load_seed))
+            droplets = self._droplet_cells(n)
             labels = [None] * size
             times = np.full(size, np.nan)
             pairs, inverse = np.unique(np.stack([major, minor], axis=1), axis=0,
@@ -363,7 +374,7 @@ class Prober:
                 if a + b == 0:
                     continue  # an empty droplet decides nothing
                 horizon = store["horizon"] * ((a + b) / n if self.scale_deadline else 1.0)
-                got, t = stochastic_decisions(droplet_network(self.networks, a, b), where.size,
+                got, t = stochastic_decisions(droplet_network(droplets, a, b), where.size,
                                               horizon, child, workers=self.workers,
                                               cluster=self.cluster)
                 for i, label, time_ in zip(where, got, t, strict=True):
@@ -394,13 +405,14 @@ class Prober:
     def _poisson_exact(self, n, gap, deadline, truth, grid) -> Probe:
         p = wrong_loading = wrong_kinetics = 0.0
         totals = grid.major + grid.minor
+        droplets = self._droplet_cells(n)
         for total in grid.totals:
             sel = np.flatnonzero(totals == total)
             if total == 0:
                 right = np.zeros(sel.size)
             else:
                 limit = self._droplet_deadline(deadline, n, [total])
-                right = split_decisions(self.networks, int(total), grid.major[sel], truth,
+                right = split_decisions(droplets, int(total), grid.major[sel], truth,
                                         None if limit is None else float(limit[0]))
             w = grid.weight[sel]
             rev = grid.minor[sel] >= grid.major[sel]

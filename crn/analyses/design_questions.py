@@ -6,9 +6,10 @@
 * :func:`leak_tolerance`: the largest leak rate constant at which a regime
   cell stays ``ok`` at the given risk with the correct decision.
 * :func:`implementation_copies`: the copy-number search on the implementation
-  beside the formal one: more copies, a later decision (a shorter deadline
-  left for the formal kinetics), or no droplet size at all and why (fuel runs
-  out, leak dominates).
+  beside the formal one, with fixed or Poisson droplet loading: more copies, a
+  later decision (a shorter deadline left for the formal kinetics), or no
+  droplet size at all and why (fuel runs out, leak dominates, or too few runs
+  to certify the risk: :func:`risk_floor`).
 
 Pure functions: no printing, no files.
 """
@@ -36,7 +37,8 @@ if TYPE_CHECKING:
     from crn.dna.parameters import DnaParameters
 
 __all__ = ["FuelAnswer", "fuel_for_time", "LeakAnswer", "leak_tolerance",
-           "ImplementationCopies", "implementation_copies"]
+           "ImplementationCopies", "implementation_copies", "LoadedCells", "risk_floor",
+           "runs_for_risk"]
 
 
 @dataclass(frozen=True)
@@ -220,6 +222,11 @@ def leak_tolerance(formal_cells: Callable[[int, int], Network], n: int, gap: int
     Returns
     -------
     LeakAnswer
+
+    Raises
+    ------
+    CRNError
+        When ``runs_max`` runs cannot certify ``risk`` at all (:func:`risk_floor`).
     """
     from crn.analyses.probes import ode_decision
     from crn.analyses.regimes import evaluate_cell
@@ -228,6 +235,11 @@ def leak_tolerance(formal_cells: Callable[[int, int], Network], n: int, gap: int
 
     if not 0 < leak_start < leak_max:
         raise CRNError(f"need 0 < leak_start < leak_max, got {leak_start}, {leak_max}")
+    floor = risk_floor(runs_max)
+    if floor >= risk:
+        raise CRNError(f"runs_max = {runs_max} runs cannot certify a risk of {risk:g} (with no "
+                       f"wrong run the 95% upper bound of P(wrong) is {floor:.3g}): every leak "
+                       f"level would fail; use at least {runs_for_risk(risk)} runs")
     seq = root_seed(rng)
     formal = formal_cells(int(n), int(gap))
     truth = correct_label(formal)
@@ -275,6 +287,85 @@ def leak_tolerance(formal_cells: Callable[[int, int], Network], n: int, gap: int
     return LeakAnswer(good, bad, tried=tuple(tried), **answer)
 
 
+def risk_floor(runs_max: int, confidence: float = 0.95) -> float:
+    """Smallest upper bound on P(wrong) that ``runs_max`` sequential runs can give.
+
+    The copy search (:func:`crn.analyses.probes.sample_until_decided`) certifies
+    a population when the upper end of its interval (Clopper-Pearson,
+    simultaneous over the looks of the schedule up to ``runs_max``) lies below
+    the risk. With every run correct the upper end is this floor: a risk at or
+    below it cannot be certified by sampling, whatever n.
+
+    Parameters
+    ----------
+    runs_max : int
+    confidence : float, default 0.95
+
+    Returns
+    -------
+    float
+    """
+    from crn.analyses.probes import FIRST_ROUND, look_schedule, simultaneous_interval
+
+    runs_max = int(runs_max)
+    schedule = look_schedule(runs_max, FIRST_ROUND)
+    _, low, _ = simultaneous_interval(schedule[-1], schedule[-1], len(schedule), confidence)
+    return 1.0 - float(low)
+
+
+def runs_for_risk(risk: float, confidence: float = 0.95, limit: int = 10**7) -> int:
+    """Fewest runs whose :func:`risk_floor` lies below ``risk`` (searched in steps of 5%).
+
+    Raises
+    ------
+    CRNError
+        When even ``limit`` runs cannot certify ``risk``.
+    """
+    runs = 1
+    while risk_floor(runs, confidence) >= risk:
+        runs = max(runs + 1, int(math.ceil(runs * 1.05)))
+        if runs > limit:
+            raise CRNError(f"no run budget up to {limit:,} certifies a risk of {risk:g}")
+    return runs
+
+
+@dataclass(frozen=True)
+class LoadedCells:
+    """The cells of a Poisson-loaded sample on a DNA implementation: droplets of one volume.
+
+    Called as ``(n, gap)`` it is the implemented cell of :class:`ImplementedCells`
+    (the mean droplet). ``droplets(n)`` builds the droplets of a sample whose
+    mean droplet holds n signal molecules, as :class:`crn.analyses.copies.Prober`
+    asks for: every droplet has the mean droplet's volume and fuel
+    concentration (the fuel is in the sample, not in the signal strands), so a
+    droplet that received t molecules has signal concentration ``C t / n`` and
+    its formal time unit is ``n / t`` times the mean's (the copy search then
+    scales a physical deadline by ``t / n``, as for the formal network).
+
+    Attributes
+    ----------
+    cells : ImplementedCells
+    """
+
+    cells: ImplementedCells
+
+    def __call__(self, n: int, gap: int) -> Network:
+        """The implementation's network of cell ``(n, gap)``."""
+        return self.cells(n, gap)
+
+    def droplets(self, n: int) -> ImplementedCells:
+        """Builder ``(t, gap) -> Network`` of the droplets around a mean of n molecules."""
+        from crn.core.units import AVOGADRO
+
+        cells = self.cells
+        mean = cells.params_for(int(n))
+        volume = cells.volume_liters
+        if volume is None:
+            volume = int(n) / (float(mean.concentration) * AVOGADRO)
+        params = dataclasses.replace(mean, fuel=mean.fuel_molar, fuel_check=False)
+        return dataclasses.replace(cells, params=params, volume_liters=volume)
+
+
 @dataclass(frozen=True)
 class ImplementationCopies:
     """Copy numbers of the formal network and of its DNA implementation, side by side.
@@ -309,9 +400,12 @@ class ImplementationCopies:
 def implementation_copies(formal_cells: Callable[[int, int], Network], scheme: str,
                           params: DnaParameters, *, volume_liters: float | None = None,
                           gap_fraction: float | None = None, gap: int | None = None,
-                          risk: float = 0.01, deadline: float | None = None, n_max: int = 10**7,
-                          method: str = "auto", runs_max: int = 4000, rng: SeedLike = None,
-                          workers: int = 1, with_formal: bool = True) -> ImplementationCopies:
+                          risk: float = 0.01,
+                          deadline: float | Callable[[int], float] | None = None,
+                          n_max: int = 10**7, method: str = "auto", runs_max: int = 4000,
+                          rng: SeedLike = None, workers: int = 1, with_formal: bool = True,
+                          loading: str = "fixed",
+                          scale_deadline: bool = False) -> ImplementationCopies:
     """Smallest population meeting the risk on the implementation, beside the formal answer.
 
     Parameters
@@ -326,6 +420,14 @@ def implementation_copies(formal_cells: Callable[[int, int], Network], scheme: s
         or a callable of n).
     with_formal : bool
         Also search the formal network (to compare); otherwise ``formal`` is None.
+    loading : {"fixed", "poisson"}
+        As :func:`crn.analyses.copies.smallest_n`, for both searches. With
+        ``poisson`` n is the mean droplet's content; each droplet has the mean
+        droplet's volume and fuel concentration (:class:`LoadedCells`).
+    scale_deadline : bool
+        Poisson loading with a deadline in physical time: in each droplet's own
+        time unit the deadline scales with its total (as
+        :func:`crn.analyses.copies.smallest_n`).
 
     Returns
     -------
@@ -335,10 +437,11 @@ def implementation_copies(formal_cells: Callable[[int, int], Network], scheme: s
 
     common: dict[str, Any] = dict(gap_fraction=gap_fraction, gap=gap, risk=risk,
                                   deadline=deadline, n_max=n_max, method=method,
-                                  runs_max=runs_max, rng=rng, workers=workers)
+                                  runs_max=runs_max, rng=rng, workers=workers, loading=loading,
+                                  scale_deadline=scale_deadline)
     cells = ImplementedCells(formal_cells, scheme, params, volume_liters)
     formal = smallest_n(formal_cells, **common) if with_formal else None
-    implemented = smallest_n(cells, **common)
+    implemented = smallest_n(LoadedCells(cells) if loading == "poisson" else cells, **common)
     extra = slowdown = None
     diagnosis = None
     if implemented.estimate is None:
@@ -353,6 +456,11 @@ def implementation_copies(formal_cells: Callable[[int, int], Network], scheme: s
             else:
                 limit = deadline(n) if callable(deadline) else float(deadline)
             diagnosis = diagnose(formal_net, scheme, cells.params_for(n), limit)
+            floor = risk_floor(runs_max)
+            if diagnosis.reason == "decides" and method != "exact" and floor >= risk:
+                diagnosis = dataclasses.replace(diagnosis, reason="too few runs",
+                                                runs_max=int(runs_max), risk_floor=floor,
+                                                runs_needed=runs_for_risk(risk))
     elif formal is None:
         verdict = "implemented"
     elif formal.estimate is None:

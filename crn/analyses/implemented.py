@@ -6,8 +6,9 @@ a sweep. :class:`ImplementedCells` wraps a formal builder so that each cell's
 formal network is implemented in DNA (:func:`crn.dna.implement`) and the
 analysis runs on the implementation network: same volume convention and same
 time unit as the formal run (parallel time for a protocol), decisions read from
-the signal species only (fuel, intermediates and waste are ignored by the
-consensus rule, :data:`crn.core.network.IGNORED`).
+the signal species and the intermediates that stand for them (the rule of
+:mod:`crn.dna.labels`, the same that ``crn implement`` prints; fuel, waste and
+released strands are ignored).
 
 The helpers here also say how much fuel is left at the end of a run and why an
 implementation fails to decide where its formal network decides (fuel runs
@@ -26,6 +27,7 @@ import numpy as np
 
 from crn.core.network import Network
 from crn.core.units import AVOGADRO
+from crn.dna.labels import held_matrix
 
 if TYPE_CHECKING:
     from crn.dna.implementation import Implementation
@@ -43,20 +45,7 @@ FUEL_OUT = 0.05
 
 
 def held_labels(impl: Implementation) -> dict[str, int]:
-    """Label index each intermediate species reports: what it holds, in formal terms.
-
-    The rule (the same formal state the intermediate stands for): an
-    intermediate that carries strands of signal species (a signal bound
-    reversibly to a gate, or sequestered by a buffering module) reports their
-    common label; one that carries none but releases signals when it meets a
-    fuel species (a committed output waiting for its translator or fork)
-    reports the common label of its formal reaction's products; any other
-    (a released by-product strand) stays ignored.
-    Mixed labels, or a species that reports nothing, give -1 (blocks consensus,
-    as the formal species would); a reaction without products keeps the
-    intermediate ignored. So a configuration of the implementation is in
-    consensus exactly when the formal configuration it stands for is, and the
-    last minority molecule held in a gate still counts.
+    """Label index each intermediate species reports (the rule of :mod:`crn.dna.labels`).
 
     Parameters
     ----------
@@ -66,91 +55,25 @@ def held_labels(impl: Implementation) -> dict[str, int]:
     -------
     dict of str to int
         Intermediate species -> label index (into ``impl.network.labels``), -1
-        for none, :data:`crn.core.network.IGNORED` to keep it ignored.
+        for none, :data:`crn.core.network.IGNORED` when ignored.
     """
-    from crn.core.network import IGNORED
-
-    formal = impl.formal
     net = impl.network
-    strand_of = {f"{s}_strand": s for s in formal.species}
-    module_of = {}
-    for module in impl.modules:
-        for s in module.species:
-            module_of[s] = module
-
-    def common(species) -> int:
-        labels = {int(net.species_label[net.index[s]]) for s in species}
-        return labels.pop() if len(labels) == 1 else -1
-
-    # intermediates that meet a fuel species and release signals: outputs
-    releases: set[str] = set()
-    for r in net.reactions():
-        if any(impl.roles[x] == "fuel" for x in r.reactants) and \
-                any(impl.roles[x] == "signal" for x in r.products):
-            releases.update(x for x in r.reactants if impl.roles[x] == "intermediate")
-    out = {}
-    for s, role in impl.roles.items():
-        if role != "intermediate":
-            continue
-        held = [strand_of[k] for k in impl.strands.get(s, {}) if k in strand_of]
-        if held:
-            out[s] = common(held)
-            continue
-        owner = module_of.get(s)
-        if s not in releases or owner is None or owner.formal is None:
-            continue
-        products = formal.reaction(owner.formal).products
-        out[s] = common(products) if products else IGNORED
-    return out
-
-
-def held_matrix(impl: Implementation) -> np.ndarray:
-    """Signal strands each implementation species carries while not consumed.
-
-    Returns
-    -------
-    ndarray of float64, shape (n_species, n_formal_species)
-        Row of a signal species: 1 at itself; row of an intermediate: the
-        number of each signal's strands it carries; fuel and waste rows are 0.
-        ``counts @ held_matrix(impl)`` gives each formal species free plus held
-        in gates.
-    """
-    net, formal = impl.network, impl.formal
-    out = np.zeros((net.n_species, formal.n_species))
-    strand_of = {f"{s}_strand": formal.index[s] for s in formal.species}
-    for s, role in impl.roles.items():
-        i = net.index[s]
-        if role == "signal":
-            out[i, formal.index[s]] = 1.0
-        elif role == "intermediate":
-            for k, m in impl.strands.get(s, {}).items():
-                if k in strand_of:
-                    out[i, strand_of[k]] += m
-    return out
+    return {s: int(net.species_label[net.index[s]])
+            for s, role in impl.roles.items() if role == "intermediate"}
 
 
 def decision_network(impl: Implementation) -> Network:
-    """``impl.network`` with its intermediates labelled by :func:`held_labels`.
+    """The network every analysis runs on: ``impl.network``, labelled when it was built.
 
-    The network every analysis runs on: decisions are read from the signal
-    species and from the signals the gates hold, so a minority molecule
+    Decisions are read from the signal species and from the signals the gates
+    hold (:func:`crn.dna.labels.decision_labels`), so a minority molecule
     momentarily inside a gate does not let a run reach a false consensus.
     """
-    import dataclasses as _dc
-
-    net = impl.network
-    labels = np.array(net.species_label, dtype=np.int64)
-    for s, k in held_labels(impl).items():
-        labels[net.index[s]] = k
-    labels.flags.writeable = False
-    return _dc.replace(net, species_label=labels)
+    return impl.network
 
 
 def implementation_of(formal: Network, scheme: str, params: DnaParameters) -> Implementation:
     """Implement one formal network in DNA (:func:`crn.dna.implement`), for analysis.
-
-    The returned implementation's ``network`` is :func:`decision_network`'s:
-    intermediates report what they hold.
 
     Parameters
     ----------
@@ -165,8 +88,7 @@ def implementation_of(formal: Network, scheme: str, params: DnaParameters) -> Im
     """
     from crn.dna import implement
 
-    impl = implement(formal, scheme, params)
-    return dataclasses.replace(impl, network=decision_network(impl))
+    return implement(formal, scheme, params)
 
 
 @dataclass(frozen=True)
@@ -289,7 +211,9 @@ class Diagnosis:
         minority signal is made faster than it is removed, and the leak burns
         fuel as it goes), ``too slow`` (no decision by the deadline with fuel
         left and no leak to blame) or ``formal fails`` (the formal network
-        itself does not decide correctly by the deadline).
+        itself does not decide correctly by the deadline) or ``too few runs``
+        (the mean field decides, but ``runs_max`` runs without a single wrong
+        one still leave the 95% upper bound of P(wrong) above the risk).
     formal_time, time : float or None
         Mean-field consensus time of the formal network and of the
         implementation (formal time units).
@@ -301,6 +225,13 @@ class Diagnosis:
     time_without_leak : float or None
         Consensus time of the implementation with the leak set to 0 (only
         computed when the leak is positive and the implementation fails).
+    runs_max : int or None
+        ``too few runs``: the runs allowed per population.
+    risk_floor : float or None
+        ``too few runs``: the smallest 95% upper bound of P(wrong) that
+        ``runs_max`` runs can give (all of them correct).
+    runs_needed : int or None
+        ``too few runs``: the fewest runs whose floor lies below the risk.
     """
 
     reason: str
@@ -310,9 +241,17 @@ class Diagnosis:
     correct: str | None
     fuel_left: dict
     time_without_leak: float | None = None
+    runs_max: int | None = None
+    risk_floor: float | None = None
+    runs_needed: int | None = None
 
     def text(self) -> str:
         """One sentence for the designer."""
+        if self.reason == "too few runs":
+            return (f"too few runs: its mean field decides {self.label} at {self.time:.4g}, "
+                    f"but {self.runs_max:,} runs without a wrong one bound P(wrong) only "
+                    f"below {self.risk_floor:.3g} (95%, simultaneous over the looks), not "
+                    f"below the risk: raise --runs-max to at least {self.runs_needed:,}")
         if self.reason == "decides":
             return (f"its mean field decides {self.label} at {self.time:.4g}, so the risk stays "
                     "above the target through stochastic error alone up to the largest n "

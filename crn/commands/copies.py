@@ -125,7 +125,8 @@ def copies(model, sets, gap_fraction, gap, risk, deadline, concentration, volume
                 implementation_copies, networks, *settings,
                 volume_liters=vol if conc is None else None, gap_fraction=gap_fraction,
                 gap=gap, risk=risk, deadline=parallel_deadline, n_max=n_max, method=method,
-                runs_max=runs_max, rng=seed, workers=1)
+                runs_max=runs_max, rng=seed, workers=1, loading=loading,
+                scale_deadline=deadline_seconds is not None)
             result = answer.implemented
     except KeyboardInterrupt:
         from crn.commands.options import stop_interrupted

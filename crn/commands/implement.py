@@ -42,6 +42,13 @@ def implement(model, sets, scheme, fuel, max_rate, toehold, leak, rate, concentr
     by the formal reaction they implement, with rate constants in /M/s and /s.
     The summary line counts fuel complexes and strands per formal reaction and
     compares the fuel a decision consumes with the fuel supplied.
+
+    Decision labels (the same in every export and in every analysis run with
+    --implement): a signal reports its formal label; an intermediate holding
+    signal strands counts as those signals, a committed output waiting for its
+    fuel as its formal reaction's products; fuel, waste and released strands are
+    ignored; mixed or unlabelled contents block consensus. The text marks each
+    intermediate [counts as L] or [no label]; the JSON has "decision_labels".
     """
     from crn.dna.budget import decision_fuel, inventory
     from crn.io.exports import export_network

@@ -91,15 +91,11 @@ def implement_network(formal, settings):
     """The :class:`crn.dna.Implementation` of ``formal`` for ``(scheme, params)``, for analysis.
 
     Errors name ``--implement SCHEME`` or the parameter's option; the network's
-    intermediates report what they hold (:func:`crn.analyses.implemented.decision_network`).
+    intermediates report what they hold (:mod:`crn.dna.labels`), as ``crn implement``
+    shows.
     """
-    import dataclasses
-
-    from crn.analyses.implemented import decision_network
-
     scheme, params = settings
-    impl = _options.build_implementation(formal, scheme, params, option="--implement")
-    return dataclasses.replace(impl, network=decision_network(impl))
+    return _options.build_implementation(formal, scheme, params, option="--implement")
 
 
 def implementation_json(impl) -> dict:

@@ -3,12 +3,14 @@
 ``implement(formal, scheme, params)`` turns a formal network into the network
 of a DNA implementation (:class:`Implementation`), in lab-unit parameters
 (:class:`DnaParameters`); :data:`SCHEMES` is the table of schemes, one module
-each (a new scheme is one file and one entry here).
+each (a new scheme is one file and one entry here). Which species count toward
+a decision is the one rule of :mod:`crn.dna.labels` (:data:`DECISION_RULE`).
 """
 
 from __future__ import annotations
 
 from crn.dna.implementation import ROLES, Implementation, Module
+from crn.dna.labels import DECISION_RULE, decision_labels, held_matrix
 from crn.dna.parameters import (
     DEFAULT_FUEL_EXCESS,
     DEFAULT_TOEHOLD,
@@ -21,4 +23,4 @@ from crn.dna.schemes import SCHEMES, implement
 
 __all__ = ["DnaParameters", "DnaParameterError", "Implementation", "Module", "implement",
            "SCHEMES", "ROLES", "toehold_rate", "DEFAULT_FUEL_EXCESS", "DEFAULT_TOEHOLD",
-           "LEAK_TYPICAL"]
+           "LEAK_TYPICAL", "DECISION_RULE", "decision_labels", "held_matrix"]

@@ -15,10 +15,11 @@ own units, so every engine's times compare directly with the formal run:
 * rates: a bimolecular constant q (/M/s) becomes ``q / rate``, a unimolecular
   one k (/s) becomes ``k / (rate C)``.
 
-Signal species keep their formal names, labels and question; every other
-species is ignored by the consensus rule (:data:`crn.core.network.IGNORED`), so a
-formal species held inside an intermediate counts toward no label until a
-later step releases it.
+Signal species keep their formal names, labels and question. Which other
+species count toward a decision is the rule of :mod:`crn.dna.labels`
+(intermediates count as the signals they hold, fuel and waste are ignored),
+applied here once, so ``crn implement`` and every analysis read the same
+labels.
 """
 
 from __future__ import annotations
@@ -32,8 +33,9 @@ from typing import TYPE_CHECKING
 import numpy as np
 
 from crn.core.errors import CRNError
-from crn.core.network import MAX_COUNT, Network, Reaction
+from crn.core.network import IGNORED, MAX_COUNT, Network, Reaction
 from crn.core.protocol import is_identifier
+from crn.dna.labels import IGNORE, decision_labels
 from crn.dna.parameters import DnaParameterError, DnaParameters
 
 if TYPE_CHECKING:
@@ -80,8 +82,8 @@ class Implementation:
         The formal network.
     network : Network
         The implementation, in the formal network's volume convention and time
-        unit (see the module notes); non-signal species are ignored by the
-        consensus rule.
+        unit (see the module notes), its species labelled for the consensus
+        rule by :func:`crn.dna.labels.decision_labels`.
     roles : dict of str to str
         Every implementation species -> ``signal``, ``fuel``, ``intermediate``
         or ``waste``.
@@ -112,6 +114,17 @@ class Implementation:
     modules: tuple[Module, ...] = ()
     leak_reactions: tuple[int, ...] = ()
     molecules_per_molar: float = 1.0
+
+    @property
+    def decision_labels(self) -> dict[str, str | None]:
+        """Species the consensus rule reads -> the label each reports (None: blocks consensus).
+
+        The signal species and the intermediates that stand for them
+        (:mod:`crn.dna.labels`); the species left out are ignored.
+        """
+        net = self.network
+        return {s: None if k < 0 else net.labels[k]
+                for s, k in zip(net.species, net.species_label, strict=True) if k != IGNORED}
 
     def species_with_role(self, role: str) -> list[str]:
         """The species with ``role``, in network order."""
@@ -238,10 +251,14 @@ class Builder:
             unit = p.rate if r.order == 2 else p.rate * p.concentration
             formal_reactions.append(Reaction(r.reactants, r.products, r.rate / unit))
             physical.append(r.rate)
-        ignore = [s for s in species if self.roles[s] != "signal"]
+        labels = decision_labels(formal, self.roles, self.strands, self.modules, self.reactions)
+        rank = {label: k for k, label in enumerate(formal.labels)}
+        output = dict(sorted(((s, v) for s, v in labels.items() if v not in (None, IGNORE)),
+                             key=lambda item: rank.get(item[1], len(rank))))
+        ignore = [s for s in species if labels[s] == IGNORE]
         net = Network.from_reactions(
             f"{formal.name} ({self.scheme} DNA implementation)", species, formal_reactions,
-            volume=volume, initial=initial, output=formal.output, majority=formal.majority,
+            volume=volume, initial=initial, output=output, majority=formal.majority,
             from_protocol=False, about=formal.about, ignore=ignore)
         physical_rates = np.array(physical, dtype=np.float64)
         physical_rates.flags.writeable = False

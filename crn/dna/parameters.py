@@ -34,9 +34,13 @@ DEFAULT_FUEL_EXCESS = 100.0
 #: long enough that the displacement rate is saturated (Zhang & Winfree 2009).
 DEFAULT_TOEHOLD = 7
 #: Saturated toehold-mediated strand-displacement rate constant (/M/s). From memory of
-#: Zhang & Winfree, JACS 131:17303-17314, 2009 (Fig. 3: strong toeholds of 6-7 nt or
-#: more plateau at a few 10^6 /M/s, 25 C, 12.5 mM Mg2+); check against the paper
-#: before relying on the third digit.
+#: Zhang & Winfree, "Control of DNA strand displacement kinetics using toehold
+#: exchange", JACS 131:17303-17314, 2009 (Fig. 3: strong toeholds of 6-7 nt or more
+#: plateau at a few 10^6 /M/s, 25 C, 12.5 mM Mg2+); check against the paper before
+#: relying on the third digit. Checked against a secondary source only: toehold
+#: strength tunes the displacement rate over about six orders of magnitude (Wikipedia,
+#: "Toehold mediated strand displacement"), the span of the curve below (1 to
+#: 6e6 /M/s); the paper's title and year are checked against a copy of its first page.
 TOEHOLD_SATURATED_RATE = 6.0e6
 #: Rate constant of displacement with no toehold (/M/s), the low end of the same
 #: curve; from memory of Zhang & Winfree 2009 (order 1 /M/s).
@@ -47,13 +51,20 @@ _FOLD_PER_NT = 10.0
 #: Typical leak rate constants (/M/s) for a fuel-gate (or fuel-fuel) reaction that
 #: releases an output without its input, with their sources. They are order-of-magnitude
 #: guides for choosing ``leak``; the leak of a real design must be measured.
+#: The references are checked (Qian & Winfree, Science 332(6034):1196-1201, 2011,
+#: doi:10.1126/science.1200520; the titles and authors of Thachuk, Winfree &
+#: Soloveichik, "Leakless DNA strand displacement systems" (its venue, DNA 21, from
+#: memory), and of Wang, Thachuk,
+#: Ellington & Soloveichik, "The design space of strand displacement cascades with
+#: toehold-size clamps", whose abstract confirms that clamping helix ends against
+#: fraying is the common way to reduce leak); the magnitudes are from memory.
 LEAK_TYPICAL = {
     "blunt-end (no toehold) displacement, Zhang & Winfree 2009 (from memory)": 1.0,
     "translator and seesaw gates with clamps, order reported in Qian & Winfree, "
     "Science 332:1196, 2011 and Thachuk, Winfree & Soloveichik, DNA 21, 2015 "
-    "(from memory)": 10.0,
-    "unclamped gates, a few frayed base pairs acting as a toehold (same sources, "
-    "from memory)": 100.0,
+    "(magnitude from memory)": 10.0,
+    "unclamped gates, a few frayed base pairs acting as a toehold (Wang, Thachuk, "
+    "Ellington & Soloveichik, toehold-size clamps; magnitude from memory)": 100.0,
 }
 
 
@@ -136,6 +147,11 @@ class DnaParameters:
         Rate constant (/M/s) of the fuel-fuel reaction that releases a formal
         reaction's outputs without its inputs; 0 (default) for no leak.
         Typical magnitudes: :data:`LEAK_TYPICAL`.
+    fuel_check : bool, default True
+        Refuse fuel at or below the signal concentration. False for one
+        droplet of a Poisson-loaded sample, whose own loading may exceed the
+        fuel the sample was designed with (its gates then run out: a wrong or
+        late decision, not an error).
 
     Raises
     ------
@@ -149,6 +165,7 @@ class DnaParameters:
     max_rate: float | None = None
     toehold: int | None = None
     leak: float = 0.0
+    fuel_check: bool = True
 
     def __post_init__(self):
         _positive(self.rate, "rate", "/M/s")
@@ -166,7 +183,7 @@ class DnaParameters:
                 or leak < 0:
             raise DnaParameterError(f"leak must be a finite rate constant >= 0 in /M/s, "
                                     f"got {leak!r}", "leak")
-        if self.fuel_molar <= self.concentration:
+        if self.fuel_check and self.fuel_molar <= self.concentration:
             raise DnaParameterError(
                 f"fuel ({self.fuel_molar:.3g} M) must exceed the signal concentration "
                 f"({self.concentration:.3g} M): the gates would run out before the signals "

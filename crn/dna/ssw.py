@@ -25,13 +25,17 @@ fuel concentration):
   rate ``lambda - s_X`` and back rate q_max (split into several modules when
   that exceeds q_max).
 
-The gate structure, the rates (q = k for a bimolecular reaction, k / C_max for a
-unimolecular one, q_max for every other step) and the buffering rule
-``lambda - s_X`` are quoted from memory of the paper's construction (its
-Fig. 1 and the section on buffering); the strand names and the leak reaction
-are ours. The first reactant of each bimolecular reaction is a free choice of
-the construction; here it is chosen greedily (reactions in order, the reactant
-with the smaller first-step total so far) to keep lambda small.
+The reference (journal, volume, issue, pages) and the paper's claim that such
+cascades closely approximate the dynamics of arbitrary systems of coupled
+chemical reactions are checked against the paper's abstract page (pnas.org,
+107/12/5393). The gate structure, the rates (q = k for a bimolecular reaction,
+k / C_max for a unimolecular one, q_max for every other step) and the buffering
+rule ``lambda - s_X`` are still quoted from memory of the paper's construction
+(its Fig. 1 and the section on buffering): no copy of the paper's body could
+be consulted. The strand names and the leak reaction are ours. The first
+reactant of each bimolecular reaction is a free choice of the construction;
+here it is chosen greedily (reactions in order, the reactant with the smaller
+first-step total so far) to keep lambda small.
 
 Leak (``DnaParameters.leak`` > 0): the first gate and the translator of each
 reaction react directly, ``L + T -> P + B + WL`` (``G + T -> P + WL`` for a

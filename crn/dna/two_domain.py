@@ -1,10 +1,13 @@
 """The two-domain construction of Cardelli (2013): join and fork gates of nicked double strands.
 
 Cardelli, "Two-domain DNA strand displacement", Mathematical Structures in
-Computer Science 23(2):247-271, 2013 (first version EPTCS 26:47-61, 2010).
-Signals are two-domain strands ``<t x>`` (a toehold shared by all, a long
-domain naming the species); gates are double strands nicked in the top
-strand, and helper strands drive each gate to completion. A bimolecular
+Computer Science 23(2):247-271, 2013 (journal volume and pages from memory);
+first version EPTCS 26:47-61, 2010, doi:10.4204/EPTCS.26.5 (checked against
+the DOAJ record of the proceedings). Signals are two-domain strands ``<t x>``
+(one toehold domain and one recognition domain naming the species); gates are
+double strands nicked in the top strand, and the paper's signal-processing
+gates are forks and joins (these three points checked against the paper's
+abstract); helper strands drive each gate to completion. A bimolecular
 reaction with one or two products, ``X1 + X2 -> Y1 (+ Y2)`` (rate k, /M/s), is a
 join gate followed by a fork gate::
 
@@ -15,11 +18,12 @@ join gate followed by a fork gate::
     F1 + HF   -> F2 + Y2     q_max                    (HF helper; a spare strand
                                                         for a one-product reaction)
 
-The fork's structure and the reversibility of each step are quoted from memory
-of the paper's figures. Released strands that the two-domain paper leaves to
-accumulate are here supplied like every fuel for the first step: R1 starts at
-C_max, so the first step is buffered as in the 2010 construction (Soloveichik,
-Seelig & Winfree, PNAS 107:5393) and J1 sits at (q / q_max) X1; the same
+The steps inside the join and the fork, their helper strands and the
+reversibility of each step are quoted from memory of the paper's figures.
+Released strands that the two-domain paper leaves to accumulate are here
+supplied like every fuel for the first step: R1 starts at C_max, so the first
+step is buffered as in the 2010 construction (Soloveichik, Seelig & Winfree,
+PNAS 107:5393) and J1 sits at (q / q_max) X1; the same
 buffering modules then make every species' sequestration equal. With J, R1,
 HJ, F and HF at C_max the output is made at ``q X1 X2 J / (R1 + X2)`` -> ``k X1 X2``.
 

@@ -5,7 +5,10 @@ The JSON object is the network contract of the implementation network
 formal network's units) plus ``scheme``, ``roles``, ``fuel`` (species ->
 molar), ``formal`` (the formal network's contract object), ``parameters`` (lab
 units, defaults applied), ``lab_rates`` (per reaction ``{rate, unit}`` in /M/s
-or /s), ``seconds_per_time_unit``, ``summary`` and ``caution``.
+or /s), ``seconds_per_time_unit``, ``decision_labels`` (every species the
+consensus rule reads -> its label or null, the rule of :mod:`crn.dna.labels`;
+the contract's ``output`` and ``ignore`` say the same), ``decision_rule``,
+``summary`` and ``caution``.
 """
 
 from __future__ import annotations
@@ -13,6 +16,7 @@ from __future__ import annotations
 from crn.core.units import format_concentration, format_time
 from crn.dna.budget import FuelBudget, Inventory
 from crn.dna.implementation import ROLES, Implementation
+from crn.dna.labels import DECISION_RULE
 from crn.io.contract import network_to_dict
 
 __all__ = ["implementation_to_dict", "implementation_to_text", "summary_line", "CAUTION"]
@@ -80,6 +84,8 @@ def implementation_to_dict(impl: Implementation, budget: FuelBudget | None = Non
                         for r, q in zip(impl.network.reactions(), impl.physical_rates,
                                         strict=True)]
     out["leak_reactions"] = list(impl.leak_reactions)
+    out["decision_labels"] = impl.decision_labels
+    out["decision_rule"] = DECISION_RULE
     if budget is not None and inv is not None:
         worst, frac = budget.worst
         out["summary"] = {
@@ -125,6 +131,8 @@ def implementation_to_text(impl: Implementation, budget: FuelBudget | None = Non
              + f"; leak {p.leak:.3g} /M/s",
              f"# one unit of formal time = {format_time(p.seconds_per_time_unit)}; "
              f"{impl.molecules_per_molar:.4g} molecules per M in the formal volume"]
+    lines.append(f"# {DECISION_RULE}")
+    reads = impl.decision_labels
     for role in ROLES:
         names = [s for s in net.species if impl.roles[s] == role]
         if not names:
@@ -134,7 +142,9 @@ def implementation_to_text(impl: Implementation, budget: FuelBudget | None = Non
         elif role == "signal":
             items = [f"{s} ({int(net.initial[net.index[s]])})" for s in names]
         else:
-            items = names
+            items = [s if s not in reads else
+                     f"{s} [{'no label' if reads[s] is None else 'counts as ' + reads[s]}]"
+                     for s in names]
         lines.append(f"{role} ({len(names)}): " + ", ".join(items))
     reactions = net.reactions()
     width = max((len(str(r)) for r in reactions), default=0)

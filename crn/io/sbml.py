@@ -7,7 +7,8 @@ and kinetic laws equal to this project's stochastic propensity
 ``k * prod_s x_s (x_s - 1) ... (x_s - r_s + 1) / V^(order - 1)`` (the whole
 numbers in it are constant parameters of j items and the power is repeated
 division, so no number in a law carries a unit annotation). Output
-labels, the majority question, the protocol flag and the exact values of
+labels, the species the consensus rule ignores (the fuel and waste of a DNA
+implementation), the majority question, the protocol flag and the exact values of
 numbers (libsbml writes 15 significant digits) travel in annotations, so an
 export read back gives the identical network.
 
@@ -196,6 +197,7 @@ def network_to_sbml(net: Network) -> str:
     comp.setSpatialDimensions(3)
     comp.setUnits("dimensionless")
 
+    ignored = set(net.ignored)
     for name, count in zip(net.species, net.initial, strict=True):
         sp = model.createSpecies()
         _check(sp.setId(name), f"species {name!r}")
@@ -209,6 +211,8 @@ def network_to_sbml(net: Network) -> str:
         label = net.label_of(name)
         if label is not None:
             attrs["label"] = label
+        elif name in ignored:
+            attrs["ignored"] = "true"
         _check(sp.setAnnotation(_annotation("species", attrs)), f"species {name!r}")
 
     rate_units: dict[int, str] = {}
@@ -615,7 +619,8 @@ def network_from_sbml(text: str, *, source: str = "<sbml>") -> Network:
         for cid, size in sizes.items()}
     values = _initial_values(model, {c: v for c, v in symbols.items()
                                      if not isinstance(v, _Missing)}, refuse)
-    species, initial, output, fixed = _read_species(model, sizes, values, symbols, refuse)
+    species, initial, output, fixed, ignore = _read_species(model, sizes, values, symbols,
+                                                             refuse)
     for k in range(model.getNumParameters()):
         pid = model.getParameter(k).getId()
         symbols[pid] = values[pid]
@@ -626,7 +631,7 @@ def network_from_sbml(text: str, *, source: str = "<sbml>") -> Network:
     try:
         return Network.from_reactions(
             model.getName() or model.getId() or "network", species, reactions, volume=volume,
-            initial=initial, output=output,
+            initial=initial, output=output, ignore=ignore,
             majority=tuple(majority.split()) if majority else None,
             from_protocol=model_attrs.get("fromProtocol") == "true", about=about or "")
     except ModelError as err:
@@ -671,14 +676,14 @@ def _species_amount(sp, sizes, values, refuse) -> float:
 
 
 def _read_species(model, sizes, values, symbols, refuse):
-    """Species ids, initial counts, labels and held (boundary or constant) species.
+    """Species ids, initial counts, labels, held (boundary or constant) and ignored species.
 
     Adds each species' symbol in kinetic laws to ``symbols``: its amount, or
     amount / size for a concentration.
     """
     import sympy
 
-    species, initial, output, fixed = [], {}, {}, {}
+    species, initial, output, fixed, ignore = [], {}, {}, {}, []
     for k in range(model.getNumSpecies()):
         sp = model.getSpecies(k)
         sid, cid = sp.getId(), sp.getCompartment()
@@ -692,6 +697,8 @@ def _read_species(model, sizes, values, symbols, refuse):
         initial[sid] = int(rounded)
         if "label" in attrs:
             output[sid] = attrs["label"]
+        elif attrs.get("ignored") == "true":
+            ignore.append(sid)
         x = sympy.Symbol(sid)
         if sp.getHasOnlySubstanceUnits():
             symbols[sid] = x
@@ -703,7 +710,7 @@ def _read_species(model, sizes, values, symbols, refuse):
             symbols[sid] = x / _q(sizes[cid])
         if sp.getBoundaryCondition() or sp.getConstant():
             fixed[sid] = int(rounded)
-    return species, initial, output, fixed
+    return species, initial, output, fixed, ignore
 
 
 def _reaction_sides(rx, level, refuse) -> list[dict[str, int]]:
