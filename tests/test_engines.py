@@ -25,7 +25,7 @@ def net():
 
 
 def test_the_registry_holds_lazy_callables_that_load_the_named_function():
-    assert set(ENGINES) == {"direct", "batched", "reference"}
+    assert set(ENGINES) == {"direct", "batched", "reduced", "reference"}
     for name, engine in ENGINES.items():
         assert isinstance(engine, LazyEngine)
         function = get_engine(name)

@@ -106,3 +106,21 @@ def test_an_output_folder_that_cannot_be_made_is_a_crn_error(tmp_path):
     blocker.write_text("x")
     with pytest.raises(CRNError, match="cannot create the folder"):
         SweepStore(blocker / "sub", "regimes", {}, 1)
+
+
+def test_resume_refuses_a_switch_between_reduced_and_full_implementation(tmp_path):
+    # a map whose stochastic cells ran on the reduced model must not be completed on the
+    # full network (or the other way round): the switch is a recorded parameter
+    from crn.core.model import parse_model
+    from crn.dna import DnaParameters
+    from crn.io.regime_store import regime_sweep_parameters
+
+    model = parse_model(Path(AM).read_text(), source=AM)
+    common = dict(n=[100], gap=[10], risk=0.01, runs_max=50, time_factor=2.0,
+                  method="stochastic",
+                  implementation=("ssw", DnaParameters(rate=1e5, concentration=1e-8)))
+    reduced = regime_sweep_parameters(model, **common)
+    full = regime_sweep_parameters(model, full_network=True, **common)
+    assert reduced["implement"]["full_network"] is False
+    assert full["implement"]["full_network"] is True
+    assert reduced != full

@@ -405,7 +405,8 @@ def implementation_copies(formal_cells: Callable[[int, int], Network], scheme: s
                           n_max: int = 10**7, method: str = "auto", runs_max: int = 4000,
                           rng: SeedLike = None, workers: int = 1, with_formal: bool = True,
                           loading: str = "fixed",
-                          scale_deadline: bool = False) -> ImplementationCopies:
+                          scale_deadline: bool = False,
+                          full_network: bool = False) -> ImplementationCopies:
     """Smallest population meeting the risk on the implementation, beside the formal answer.
 
     Parameters
@@ -428,6 +429,9 @@ def implementation_copies(formal_cells: Callable[[int, int], Network], scheme: s
         Poisson loading with a deadline in physical time: in each droplet's own
         time unit the deadline scales with its total (as
         :func:`crn.analyses.copies.smallest_n`).
+    full_network : bool
+        Run the implementation's stochastic runs on its full network, not on its
+        reduced model (:class:`crn.analyses.implemented.ImplementedCells`).
 
     Returns
     -------
@@ -439,7 +443,8 @@ def implementation_copies(formal_cells: Callable[[int, int], Network], scheme: s
                                   deadline=deadline, n_max=n_max, method=method,
                                   runs_max=runs_max, rng=rng, workers=workers, loading=loading,
                                   scale_deadline=scale_deadline)
-    cells = ImplementedCells(formal_cells, scheme, params, volume_liters)
+    cells = ImplementedCells(formal_cells, scheme, params, volume_liters,
+                             full_network=full_network)
     formal = smallest_n(formal_cells, **common) if with_formal else None
     implemented = smallest_n(LoadedCells(cells) if loading == "poisson" else cells, **common)
     extra = slowdown = None

@@ -19,7 +19,7 @@ from __future__ import annotations
 
 import dataclasses
 import math
-from collections.abc import Callable
+from collections.abc import Callable, Iterable
 from dataclasses import dataclass
 from typing import TYPE_CHECKING, Any
 
@@ -110,12 +110,19 @@ class ImplementedCells:
         A fixed droplet volume: the signal concentration of cell n is then
         ``n / (V N_A)`` instead of ``params.concentration`` (fuel given in M
         stays as given; the default fuel follows C).
+    full_network : bool, default False
+        Run the stochastic cells on the full implementation network. By
+        default a cell whose implementation has a reduced model
+        (:mod:`crn.dna.reduced`: the fast reversible binding at quasi-steady
+        state, used where the fuel excess makes it valid) runs its stochastic
+        runs on that model; :meth:`stochastic_model` says which one a cell uses.
     """
 
     formal: Callable[[int, int], Network]
     scheme: str
     params: DnaParameters
     volume_liters: float | None = None
+    full_network: bool = False
 
     def params_for(self, n: int) -> DnaParameters:
         """The DNA parameters of the cell with n agents."""
@@ -129,8 +136,46 @@ class ImplementedCells:
         return implementation_of(self.formal(int(n), int(gap)), self.scheme, self.params_for(n))
 
     def __call__(self, n: int, gap: int) -> Network:
-        """The implementation's network of cell ``(n, gap)``."""
-        return self.implementation(n, gap).network
+        """The implementation's network of cell ``(n, gap)`` (the reduced model when valid)."""
+        impl = self.implementation(n, gap)
+        if self.full_network:
+            return impl.network
+        from crn.dna.reduced import reduced_network
+
+        reduced = reduced_network(impl)
+        return impl.network if isinstance(reduced, str) else reduced
+
+    def stochastic_model(self, n: int, gap: int) -> tuple[str, str]:
+        """Which network the stochastic runs of cell (n, gap) use, and why.
+
+        Returns
+        -------
+        model : str
+            ``reduced`` (the quasi-steady-state model of :mod:`crn.dna.reduced`)
+            or ``full`` (the whole implementation network).
+        reason : str
+            Empty for the reduced model; else ``asked for`` (``full_network``)
+            or why the implementation has no valid reduced model.
+        """
+        if self.full_network:
+            return "full", "asked for"
+        from crn.dna.reduced import reduction_of
+
+        reduction = reduction_of(self.implementation(n, gap))
+        return ("full", reduction) if isinstance(reduction, str) else ("reduced", "")
+
+    def stochastic_models(self, cells: Iterable[tuple[int, int]]) -> dict:
+        """:meth:`stochastic_model` over cells, for an output: ``{"reduced": [[n, gap], ...],
+        "full": [{"n", "gap", "reason"}, ...]}``.
+        """
+        out: dict = {"reduced": [], "full": []}
+        for n, gap in cells:
+            model, reason = self.stochastic_model(n, gap)
+            if model == "reduced":
+                out["reduced"].append([int(n), int(gap)])
+            else:
+                out["full"].append({"n": int(n), "gap": int(gap), "reason": reason})
+        return out
 
     def with_params(self, **changes: Any) -> ImplementedCells:
         """The same builder with some DNA parameters changed (``leak=...``, ``fuel=...``)."""

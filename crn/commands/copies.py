@@ -14,6 +14,7 @@ from crn.commands.options import (
     seed_option,
     set_option,
 )
+from crn.commands.stochastic_model import full_network_option, stochastic_model_text
 from crn.core.errors import CRNError
 from crn.core.units import (
     WET_LAB_CAUTION,
@@ -77,8 +78,10 @@ def parse_deadline(text: str | None):
 @json_option
 @implement_option
 @dna_only_options
+@full_network_option
 def copies(model, sets, gap_fraction, gap, risk, deadline, concentration, volume, rate, n_max,
-           runs_max, method, loading, seed, as_json, implement, fuel, max_rate, toehold, leak):
+           runs_max, method, loading, seed, as_json, implement, fuel, max_rate, toehold, leak,
+           full_network):
     """Smallest number of agents (molecules) of MODEL that reach the correct consensus by the
     deadline with probability at least 1 - risk, on the safe side: the 95% upper bound of the
     risk at the reported n lies below --risk (per population a 95% interval, simultaneous over
@@ -93,6 +96,8 @@ def copies(model, sets, gap_fraction, gap, risk, deadline, concentration, volume
 
     settings = dna_settings(implement, fuel=fuel, max_rate=max_rate, toehold=toehold,
                             leak=leak, rate=rate, concentration=concentration)
+    if full_network and settings is None:
+        raise CRNError("--full-network needs --implement SCHEME")
     if (gap_fraction is None) == (gap is None):
         raise CRNError("give exactly one of --gap-fraction and --gap")
     if concentration is not None and volume is not None:
@@ -126,7 +131,7 @@ def copies(model, sets, gap_fraction, gap, risk, deadline, concentration, volume
                 volume_liters=vol if conc is None else None, gap_fraction=gap_fraction,
                 gap=gap, risk=risk, deadline=parallel_deadline, n_max=n_max, method=method,
                 runs_max=runs_max, rng=seed, workers=1, loading=loading,
-                scale_deadline=deadline_seconds is not None)
+                scale_deadline=deadline_seconds is not None, full_network=full_network)
             result = answer.implemented
     except KeyboardInterrupt:
         from crn.commands.options import stop_interrupted
@@ -134,6 +139,9 @@ def copies(model, sets, gap_fraction, gap, risk, deadline, concentration, volume
         stop_interrupted("before the search finished; no answer (an unfinished search has no "
                          "safe n to report)")
     phys = physical_answer(result, concentration_molar=conc, volume_liters=vol, rate=k)
+    models = None if answer is None else _stochastic_models(
+        networks, settings, vol if conc is None else None, full_network,
+        answer.implemented.probes)
     if as_json:
         emit_json({
             "model": model_obj.name,
@@ -158,7 +166,7 @@ def copies(model, sets, gap_fraction, gap, risk, deadline, concentration, volume
             "seed": result.seed_entropy,
             "probes": [p.__dict__ for p in result.probes],
             "caution": WET_LAB_CAUTION,
-            **({} if answer is None else _implementation_json(answer, settings)),
+            **({} if answer is None else _implementation_json(answer, settings, models)),
         })
         return
     if seed is None:
@@ -166,13 +174,23 @@ def copies(model, sets, gap_fraction, gap, risk, deadline, concentration, volume
     click.echo(_text(model_obj.name, result, phys, deadline_seconds))
     if answer is not None:
         click.echo(_implementation_text(answer, settings))
+        click.echo(stochastic_model_text(models))
 
 
-def _implementation_json(answer, settings) -> dict:
+def _stochastic_models(networks, settings, volume_liters, full_network, probes) -> dict:
+    """Which model ran the stochastic probes of the implementation's search."""
+    from crn.analyses.implemented import ImplementedCells
+
+    cells = ImplementedCells(networks, *settings, volume_liters, full_network=full_network)
+    return cells.stochastic_models([(p.n, p.gap) for p in probes if p.method != "exact"])
+
+
+def _implementation_json(answer, settings, models) -> dict:
     formal = answer.formal
     diagnosis = answer.diagnosis
     return {
-        "implementation": {"scheme": settings[0], "parameters": settings[1].as_dict()},
+        "implementation": {"scheme": settings[0], "parameters": settings[1].as_dict(),
+                           "stochastic_model": models},
         "formal": None if formal is None else {
             "n": {"estimate": formal.estimate, "low": formal.low, "high": formal.high},
             "median_time": formal.median_time, "method": formal.method,

@@ -29,6 +29,7 @@ from crn.commands.options import (
     set_option,
     to_jsonable,
 )
+from crn.commands.stochastic_model import full_network_option, stochastic_model_text
 from crn.core.errors import CRNError
 from crn.io.atomic import write_atomic
 from crn.io.regime_tables import table_csv
@@ -114,13 +115,15 @@ def _fmt(value, spec=".3g"):
 @json_option
 @implement_option
 @dna_options
+@full_network_option
 @click.option("--leak-tolerance", "with_leak_tolerance", is_flag=True,
               help="With --implement: for each cell, the largest leak rate constant at which "
                    "it stays ok with the correct decision (many more runs).")
-def regimes(model, sets, n_list, gap_list, fraction_list, risk, until, runs_max, time_factor,
-            method, plot_path, csv_path, out_dir, resume, workers, cluster, max_memory, force,
-            seed, as_json, implement, fuel, max_rate, toehold, leak, rate, concentration,
-            with_leak_tolerance):
+def regimes(  # noqa: C901 (one branch over the limit after merging; split pending)
+        model, sets, n_list, gap_list, fraction_list, risk, until, runs_max, time_factor,
+        method, plot_path, csv_path, out_dir, resume, workers, cluster, max_memory, force,
+        seed, as_json, implement, fuel, max_rate, toehold, leak, rate, concentration,
+        with_leak_tolerance, full_network):
     """Sweep MODEL over populations n and gaps: for each cell, the ODE's decision, the
     probability that a stochastic run disagrees with it (95% interval, simultaneous over the
     sequential looks (Clopper-Pearson, Bonferroni)), the flag, the times;
@@ -134,6 +137,8 @@ def regimes(model, sets, n_list, gap_list, fraction_list, risk, until, runs_max,
                             leak=leak, rate=rate, concentration=concentration)
     if with_leak_tolerance and settings is None:
         raise CRNError("--leak-tolerance needs --implement SCHEME")
+    if full_network and settings is None:
+        raise CRNError("--full-network needs --implement SCHEME")
     if (gap_list is None) == (fraction_list is None):
         raise CRNError("give exactly one of --gaps and --gap-fractions")
     if workers and cluster:
@@ -151,7 +156,7 @@ def regimes(model, sets, n_list, gap_list, fraction_list, risk, until, runs_max,
         from crn.analyses.implemented import ImplementedCells
         from crn.commands.implementing import implement_network
 
-        networks = ImplementedCells(networks, *settings)
+        networks = ImplementedCells(networks, *settings, full_network=full_network)
         implement_network(model_obj.network, settings)  # parameter errors before any cell
     for n, g in skipped:
         click.echo(f"crn: skipping n={n}, gap={g}: (n + gap) / 2 is not whole", err=True)
@@ -167,7 +172,7 @@ def regimes(model, sets, n_list, gap_list, fraction_list, risk, until, runs_max,
         parameters = regime_sweep_parameters(
             model_obj, sets=sets, n=ns, gap=gaps, gap_fraction=fractions, risk=risk,
             until=until, runs_max=runs_max, time_factor=time_factor, method=method,
-            implementation=settings)
+            implementation=settings, full_network=full_network)
     sweep = open_regime_sweep(out_dir, parameters, seed=seed, resume=resume)
     entropy = sweep.seed_entropy
     kill_after = os.environ.get(KILL_HOOK)
@@ -192,7 +197,10 @@ def regimes(model, sets, n_list, gap_list, fraction_list, risk, until, runs_max,
     payload = result_json(model_obj.name, result)
     tolerances = None
     if settings is not None:
-        payload["implementation"] = {"scheme": settings[0], "parameters": settings[1].as_dict()}
+        payload["implementation"] = {"scheme": settings[0], "parameters": settings[1].as_dict(),
+                                     "stochastic_model": networks.stochastic_models(
+                                         [(c.n, c.gap) for c in result.cells
+                                          if c.method == "stochastic"])}
         if with_leak_tolerance:
             tolerances = _leak_tolerances(formal_networks, result, settings, risk=risk,
                                           runs_max=runs_max, until=until, entropy=entropy,
@@ -214,6 +222,7 @@ def regimes(model, sets, n_list, gap_list, fraction_list, risk, until, runs_max,
         click.echo(f"(cells run on the {settings[0]} DNA implementation; times in the formal "
                    f"network's unit = {settings[1].seconds_per_time_unit:.4g} s at the given "
                    f"concentration)")
+        click.echo(stochastic_model_text(payload["implementation"]["stochastic_model"]))
     if tolerances is not None:
         click.echo(_tolerance_text(tolerances, risk))
 

@@ -63,6 +63,7 @@ class LazyEngine:
 ENGINES: dict[str, LazyEngine] = {
     "direct": LazyEngine("crn.engines.direct", "run_direct"),
     "batched": LazyEngine("crn.engines.batched", "run_batched"),
+    "reduced": LazyEngine("crn.engines.reduced", "run_reduced"),
     "reference": LazyEngine("crn.engines.gillespy2_bridge", "run_reference"),
 }
 

@@ -26,7 +26,7 @@ RESULTS_NAME = "regimes"
 
 def regime_sweep_parameters(model, *, sets=(), n=(), gap=None, gap_fraction=None, risk: float,
                             until=None, runs_max: int, time_factor: float, method: str,
-                            implementation=None) -> dict:
+                            implementation=None, full_network: bool = False) -> dict:
     """Everything that fixes a regime map's numbers, as its results file records it.
 
     Parameters
@@ -39,6 +39,9 @@ def regime_sweep_parameters(model, *, sets=(), n=(), gap=None, gap_fraction=None
         As :func:`crn.analyses.regimes.regime_map` takes them.
     implementation : (str, crn.dna.DNAParameters), optional
         The DNA scheme and its parameters, when the cells run on an implementation.
+    full_network : bool
+        The implementation's stochastic cells forced onto the full network (no reduced
+        model); recorded so that a resumed sweep never mixes the two.
 
     Returns
     -------
@@ -64,7 +67,8 @@ def regime_sweep_parameters(model, *, sets=(), n=(), gap=None, gap_fraction=None
     }
     if implementation is not None:
         scheme, params = implementation
-        parameters["implement"] = {"scheme": scheme, "parameters": params.as_dict()}
+        parameters["implement"] = {"scheme": scheme, "parameters": params.as_dict(),
+                                   "full_network": bool(full_network)}
     return parameters
 
 

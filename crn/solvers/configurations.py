@@ -195,15 +195,32 @@ def estimate_configurations(net: Network) -> int:
     if np.all(weights == 1):
         bound = math.comb(total + changing.size - 1, changing.size - 1)
     elif total <= _KNAPSACK_LIMIT:
-        ways = np.zeros(total + 1, dtype=object)
-        ways[0] = 1
-        for w in weights:
-            for c in range(int(w), total + 1):
-                ways[c] += ways[c - int(w)]
-        bound = int(ways[total])
+        bound = _knapsack_bound(weights, total)
     else:
         bound = math.prod(total // int(w) + 1 for w in weights)
     return int(min(bound, _free_coordinate_bound(net, changing)))
+
+
+def _knapsack_bound(weights: np.ndarray, total: int) -> int:
+    """Upper bound on the non-negative integer solutions of ``weights @ x = total``.
+
+    The count by dynamic programming (``ways[c] += ways[c - w]`` for each weight,
+    done as prefix sums over each residue class), in floating point: each
+    count passes through fewer than ``len(weights) * (total + 1)`` additions of
+    relative rounding error ``2**-53`` each, so the result raised by one part in
+    a million and rounded up bounds the exact count. Past the floating-point
+    range, ``C(total + S, S)`` (every solution has ``sum(x) <= total``) is used.
+    """
+    ways = np.zeros(total + 1)
+    ways[0] = 1.0
+    with np.errstate(over="ignore"):
+        for w in (int(v) for v in weights):
+            for r in range(min(w, total + 1)):
+                ways[r::w] = np.cumsum(ways[r::w])
+    last = float(ways[total])
+    if not math.isfinite(last):
+        return math.comb(total + weights.size, weights.size)
+    return int(math.ceil(last * (1.0 + 1e-6)))
 
 
 def _free_coordinate_bound(net: Network, changing: np.ndarray) -> float:

@@ -251,8 +251,14 @@ def choose_engine(net: Network, engine: str = "auto") -> str:
     """
     if engine not in ("auto", *ENGINES):
         raise CRNError(f"unknown engine {engine!r}; choose auto, {', '.join(ENGINES)}")
+    if engine == "reduced" and getattr(net, "reduction", None) is None:
+        raise CRNError("engine reduced runs the reduced model of a DNA implementation, which "
+                       "only regimes --implement and copies --implement build; choose auto, "
+                       "direct, batched or reference")
     if engine != "auto":
         return engine
+    if getattr(net, "reduction", None) is not None:
+        return "reduced"  # a DNA implementation carrying its reduced model (crn.dna.reduced)
     if net.from_protocol and net.population >= AUTO_BATCHED_FROM and _available("batched"):
         return "batched"
     return "direct"
