@@ -29,18 +29,22 @@ browser:
 	    apt-get update -qq && DEBIAN_FRONTEND=noninteractive apt-get install -y -qq chromium >/dev/null; \
 	  else echo "make: no chromium and not root: the report's browser test will be skipped"; fi; }
 
-test: $(TEST_STAMP) browser
+# lint first: CI runs only `make test`, so a lint failure fails CI
+test: lint browser
 	$(BIN)/python -m pytest -q
 
 # the long statistical runs (marked slow; a faster test of the same code is in `make test`)
 test-slow: $(TEST_STAMP)
 	$(BIN)/python -m pytest -q -m slow
 
+# ruff (style, complexity, numpy docstrings) and mypy on the public API; both configured in
+# pyproject.toml
 lint: $(TEST_STAMP)
-	$(BIN)/ruff check crn tests benchmarks
+	$(BIN)/ruff check crn tests benchmarks conftest.py
+	$(BIN)/mypy
 
 bench: $(STAMP)
 	for b in benchmarks/bench_*.py; do $(BIN)/python $$b || exit 1; done
 
 clean:
-	rm -rf $(VENV) out .pytest_cache
+	rm -rf $(VENV) out .pytest_cache .mypy_cache .ruff_cache

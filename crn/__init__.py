@@ -56,7 +56,8 @@ def __getattr__(name):
 
 class _Package(types.ModuleType):
     """``crn`` itself: an old flat module path imported by name (``import crn.simulate``)
-    must not replace the exported function of the same name."""
+    must not replace the exported function of the same name.
+    """
 
     def __setattr__(self, name, value):
         if name in _HOME and isinstance(value, types.ModuleType):

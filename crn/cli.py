@@ -26,7 +26,8 @@ _PACKAGE_DIR = __file__.rsplit("/", 1)[0]
 @click.version_option(version=__version__, prog_name="crn")
 def cli():
     """Population protocols as chemical reaction networks: mean field, exact
-    stochastic dynamics and exact small-population analysis side by side."""
+    stochastic dynamics and exact small-population analysis side by side.
+    """
 
 
 def _register():

@@ -388,6 +388,7 @@ def _csv(rows, comment: str | None = None) -> str:
 
 
 def main(argv=None) -> int:
+    """Run the demo (``python -m crn.demo``); return the exit status."""
     import argparse
 
     parser = argparse.ArgumentParser(prog="python -m crn.demo", description=__doc__.split("\n")[0])

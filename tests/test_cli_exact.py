@@ -60,7 +60,7 @@ def test_exact_refusal_exits_2(capsys):
 
 
 def test_verify_exact_majority_says_correct():
-    args = ["verify", str(MODELS / "exact_majority.toml"), "--max-n", "10"]
+    args = ["verify", str(MODELS / "exact_majority.toml"), "--n-max", "10"]
     assert "correct for every n from 2 to 10" in invoke(args).stdout
     out = json.loads(invoke(args + ["--json"]).stdout)
     assert out["correct"] is True and out["counterexample"] is None
@@ -68,7 +68,7 @@ def test_verify_exact_majority_says_correct():
 
 
 def test_verify_wrong_protocol_prints_the_path():
-    args = ["verify", str(MODELS / "cancel_spread.toml"), "--max-n", "6"]
+    args = ["verify", str(MODELS / "cancel_spread.toml"), "--n-max", "6"]
     text = invoke(args, code=1).stdout  # refuted: exit status 1
     assert "NOT correct" in text and "counterexample at n = 5" in text
     assert "1. X, Y -> B, B" in text
@@ -80,5 +80,5 @@ def test_verify_wrong_protocol_prints_the_path():
 
 
 def test_verify_needs_a_question(capsys):
-    assert main(["verify", str(MODELS / "epidemic.toml"), "--max-n", "4"]) == 2
+    assert main(["verify", str(MODELS / "epidemic.toml"), "--n-max", "4"]) == 2
     assert "no majority question" in capsys.readouterr().err

@@ -148,7 +148,7 @@ def test_reduced_model_decides_like_the_full_network(n, gap, excess):
 
 
 def test_regimes_json_says_which_model_ran_and_full_network_forces_the_full_one(capsys):
-    args = ["regimes", AM, "--n", "12", "--gap", "2", "--implement", "ssw", "--fuel", "100nM",
+    args = ["regimes", AM, "--n", "12", "--gaps", "2", "--implement", "ssw", "--fuel", "100nM",
             "--runs-max", "50", "--seed", "3", "--method", "stochastic", "--json"]
     reduced = json.loads(_out(capsys, args))
     assert reduced["implementation"]["stochastic_model"] == {"reduced": [[12, 2]], "full": []}
@@ -160,7 +160,7 @@ def test_regimes_json_says_which_model_ran_and_full_network_forces_the_full_one(
 
 
 def test_full_network_without_implement_is_an_error(capsys):
-    assert main(["regimes", AM, "--n", "12", "--gap", "2", "--full-network"]) == 2
+    assert main(["regimes", AM, "--n", "12", "--gaps", "2", "--full-network"]) == 2
     assert "--full-network needs --implement" in capsys.readouterr().err
     assert main(["copies", AM, "--gap-fraction", "0.1", "--full-network"]) == 2
     assert "--full-network needs --implement" in capsys.readouterr().err

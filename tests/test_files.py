@@ -31,7 +31,7 @@ def write_everything(folder):
         ["ssa", AM, *SMALL, "--runs", "6", "--seed", "1", "--workers", "1", "--csv",
          folder / "runs.csv"],
         ["ode", AM, *SMALL, "--csv", folder / "ode.csv", "--plot", folder / "ode.png"],
-        ["regimes", AM, "--n", "40", "--gap", "4", "--runs-max", "50", "--seed", "1",
+        ["regimes", AM, "--n", "40", "--gaps", "4", "--runs-max", "50", "--seed", "1",
          "--csv", folder / "map.csv", "--plot", folder / "map.svg", "--out", folder / "sweep"],
         ["translate", AM, *SMALL, "--to", "sbml", "-o", folder / "am.xml"],
         ["translate", AM, *SMALL, "--to", "json", "-o", folder / "am.json"],

@@ -143,9 +143,9 @@ def test_a_long_exact_analysis_announces_its_estimate_first(capsys):
 
 
 def test_verify_regimes_and_time_courses_are_guarded(capsys):
-    line, _ = refusal(["verify", EM, "--max-n", "50", "--max-memory", "1K"], capsys)
+    line, _ = refusal(["verify", EM, "--n-max", "50", "--max-memory", "1K"], capsys)
     assert line.startswith("crn: verify up to n = 50 needs")
-    line, _ = refusal(["regimes", AM, "--n", "100,1000", "--gap", "10", "--max-memory", "1K",
+    line, _ = refusal(["regimes", AM, "--n", "100,1000", "--gaps", "10", "--max-memory", "1K",
                        "--seed", "1"], capsys)
     assert "the regime map over 2 cells needs" in line
     # a million runs keep 101 samples x 3 species x 8 bytes each: 2.4 GB of time course

@@ -133,7 +133,7 @@ def test_exact_implement_fuel_runs_out(capsys, tmp_path):
 
 
 def test_regimes_implement_and_leak_tolerance(capsys):
-    obj = _run_json(capsys, ["regimes", AM, "--n", "20", "--gap", "12", "--implement", "ssw",
+    obj = _run_json(capsys, ["regimes", AM, "--n", "20", "--gaps", "12", "--implement", "ssw",
                              "--fuel", "50nM", "--risk", "0.2", "--runs-max", "100",
                              "--seed", "2", "--leak-tolerance", "--json"])
     assert obj["implementation"]["scheme"] == "ssw"
@@ -168,10 +168,10 @@ def test_copies_implement_reports_beside_the_formal_answer(capsys):
     (["ssa", AM, "--implement", "ssw", "--leak", "-2/M/s"], "--leak"),
     (["compare", AM, "--implement", "ssw", "--rate", "0/M/s"], "--rate"),
     (["exact", AM, "--implement", "ssw", "--rate", "1e9/M/s"], "--rate"),
-    (["regimes", AM, "--n", "10", "--gap", "2", "--implement", "ssw", "--concentration",
+    (["regimes", AM, "--n", "10", "--gaps", "2", "--implement", "ssw", "--concentration",
       "5 nm"], "--concentration"),
     (["copies", AM, "--gap", "2", "--implement", "ssw", "--max-rate", "10nM"], "--max-rate"),
-    (["regimes", AM, "--n", "10", "--gap", "2", "--leak-tolerance"], "--leak-tolerance"),
+    (["regimes", AM, "--n", "10", "--gaps", "2", "--leak-tolerance"], "--leak-tolerance"),
     (["ode", AM, "--fuel-needed"], "--fuel-needed"),
 ])
 def test_bad_dna_input_is_one_line_naming_the_option(capsys, args, option):

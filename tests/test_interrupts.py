@@ -89,7 +89,7 @@ def test_exact_sigterm_during_the_enumeration():
 
 
 def test_verify_ctrl_c_reports_the_sizes_checked():
-    status, elapsed, _, stderr, _ = interrupt(["verify", EM, "--max-n", "400"], signal.SIGINT,
+    status, elapsed, _, stderr, _ = interrupt(["verify", EM, "--n-max", "400"], signal.SIGINT,
                                               busy_for(5.0))
     assert status == 130 and elapsed < PROMISE, (status, elapsed, stderr)
     checked = stderr.split("interrupted after n = 2..")[1].split(" ")[0]
@@ -104,7 +104,7 @@ def test_copies_sigterm_gives_no_answer():
     assert "terminated before the search finished; no answer" in stderr and stdout == ""
 
 
-REGIMES = [AM, "--n", "100,1000,3000,10000", "--gap-fraction", "0.05", "--method",
+REGIMES = [AM, "--n", "100,1000,3000,10000", "--gap-fractions", "0.05", "--method",
            "stochastic", "--runs-max", "400", "--seed", "11"]
 
 

@@ -237,7 +237,7 @@ def test_regimes_command_says_too_few_and_merged(tmp_path):
 
     from crn.cli import cli
 
-    args = ["regimes", AM, "--n", "20,40", "--gap-fraction", "0.1,0.12,0.5",
+    args = ["regimes", AM, "--n", "20,40", "--gap-fractions", "0.1,0.12,0.5",
             "--method", "exact", "--seed", "1"]
     text = CliRunner().invoke(cli, args, catch_exceptions=False)
     assert text.exit_code == 0

@@ -136,7 +136,7 @@ def test_reproduce_commands_give_the_report_numbers(small_report):
 def test_from_folder_reuses_the_saved_sweep(tmp_path):
     saved = tmp_path / "saved"
     runner = CliRunner()
-    args = ["regimes", str(AM), "--n", "30,60", "--gap-fraction", "0.1,0.4", "--risk", "0.05",
+    args = ["regimes", str(AM), "--n", "30,60", "--gap-fractions", "0.1,0.4", "--risk", "0.05",
             "--runs-max", "40", "--seed", "5", "--out", str(saved)]
     assert runner.invoke(cli, args, catch_exceptions=False).exit_code == 0
     sweep = json.loads((saved / "regimes.json").read_text())

@@ -47,7 +47,7 @@ def block(monkeypatch, target):
 @pytest.mark.parametrize("command, target, extra", [
     ("ode", "crn.solvers.ode.solve_mean_field", []),
     ("compare", "crn.commands.compare.run_ensemble", ["--runs", "2"]),
-    ("regimes", "crn.analyses.regimes.regime_map", ["--n", "20", "--gap", "2"]),
+    ("regimes", "crn.analyses.regimes.regime_map", ["--n", "20", "--gaps", "2"]),
     ("ssa", "crn.commands.ssa.run_ensemble", ["--runs", "2"]),
 ])
 @pytest.mark.parametrize("name", ["ode.txt", "c.jpgx", "r.foo"])
@@ -84,7 +84,7 @@ def test_every_accepted_figure_format_is_one_matplotlib_writes(tmp_path):
 
 @pytest.mark.parametrize("command, extra", [("ssa", ["--runs", "2"]),
                                             ("compare", ["--runs", "2"]),
-                                            ("regimes", ["--n", "20", "--gap", "2"])])
+                                            ("regimes", ["--n", "20", "--gaps", "2"])])
 @pytest.mark.parametrize("address, says", [
     ("notanaddress", "not a scheduler address"),
     ("tcp://:8786", "not a scheduler address"),
@@ -198,11 +198,11 @@ def test_outcome_tables_and_json_list_labels_no_run_got():
 # crn verify exits 1 on a counterexample --------------------------------------------------------
 
 def test_verify_exit_status_says_whether_the_protocol_is_refuted():
-    refuted = invoke(["verify", "models/cancel_spread.toml", "--max-n", "5", "--json"], code=1)
+    refuted = invoke(["verify", "models/cancel_spread.toml", "--n-max", "5", "--json"], code=1)
     assert json.loads(refuted.stdout)["correct"] is False
-    assert "NOT correct" in invoke(["verify", "models/cancel_spread.toml", "--max-n", "5"],
+    assert "NOT correct" in invoke(["verify", "models/cancel_spread.toml", "--n-max", "5"],
                                    code=1).stdout
-    assert json.loads(invoke(["verify", EXACT_MAJORITY, "--max-n", "4", "--json"]).stdout
+    assert json.loads(invoke(["verify", EXACT_MAJORITY, "--n-max", "4", "--json"]).stdout
                       )["correct"] is True
     assert "1 on a counterexample" in " ".join(invoke(["verify", "--help"]).stdout.split())
 
@@ -282,10 +282,11 @@ def test_copies_errors_do_not_speak_of_a_sweep(capsys):
 
 def test_gap_fraction_range_is_the_same_in_copies_and_regimes(capsys):
     from_copies = one_line_error(["copies", AM, "--gap-fraction", "1"], capsys)
-    from_regimes = one_line_error(["regimes", AM, "--n", "20", "--gap-fraction", "1"], capsys)
-    assert from_copies == from_regimes == (
+    from_regimes = one_line_error(["regimes", AM, "--n", "20", "--gap-fractions", "1"], capsys)
+    assert from_copies == from_regimes.replace("--gap-fractions", "--gap-fraction") == (
         "crn: --gap-fraction must lie in (0, 1), strictly between a tie and no minority, "
         "got 1.0")
+    assert from_regimes.startswith("crn: --gap-fractions must lie in (0, 1)")
 
 
 def test_set_with_a_value_that_is_not_a_number(capsys):
@@ -299,7 +300,7 @@ def test_the_seed_notice_is_worded_one_way(capsys):
                   "--workers", "1"],
                  ["ssa", "models/voter.toml", "--set", "n=10", "--set", "gap=2", "--runs", "2",
                   "--workers", "1", "--every", "1", "--until", "4"],
-                 ["regimes", "models/voter.toml", "--n", "10", "--gap", "2", "--method", "exact"],
+                 ["regimes", "models/voter.toml", "--n", "10", "--gaps", "2", "--method", "exact"],
                  ["copies", "models/voter.toml", "--gap", "2", "--risk", "0.3", "--method",
                   "exact", "--n-max", "20"]):
         assert main(argv) == 0

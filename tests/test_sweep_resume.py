@@ -17,7 +17,7 @@ from crn.io.sweep_store import SweepStore
 
 ROOT = Path(__file__).resolve().parent.parent
 AM = str(ROOT / "models" / "approximate_majority.toml")
-ARGS = ["regimes", AM, "--n", "200,400,800", "--gap", "10,20,40", "--runs-max", "200",
+ARGS = ["regimes", AM, "--n", "200,400,800", "--gaps", "10,20,40", "--runs-max", "200",
         "--method", "stochastic", "--seed", "9"]
 
 
@@ -59,7 +59,7 @@ def test_kill_then_resume_gives_the_uninterrupted_table(tmp_path):
 
 def test_resume_refuses_other_parameters(tmp_path, capsys):
     out = tmp_path / "o"
-    args = ["regimes", AM, "--n", "100", "--gap", "10", "--runs-max", "50", "--method",
+    args = ["regimes", AM, "--n", "100", "--gaps", "10", "--runs-max", "50", "--method",
             "stochastic", "--seed", "1", "--out", str(out), "--json"]
     assert main(args) == 0
     capsys.readouterr()

@@ -10,10 +10,20 @@ sampled on the same times; :func:`compare_runs` puts them beside the ODE, and
 from __future__ import annotations
 
 from dataclasses import dataclass, replace
+from typing import TYPE_CHECKING
 
 import numpy as np
 
 from crn.core.stats import wilson_interval
+
+if TYPE_CHECKING:
+    from collections.abc import Callable, Sequence
+
+    from crn.core.network import Network
+    from crn.core.outcome import RunOutcome
+    from crn.core.types import SeedLike
+    from crn.solvers.ode import MeanFieldResult
+    from crn.solvers.simulate import Ensemble
 
 __all__ = ["Comparison", "MeanFieldWindow", "compare_network", "compare_runs", "compare_window",
            "disagreement", "mean_field_window", "SAMPLES", "WINDOW_FACTOR"]
@@ -44,7 +54,8 @@ def compare_window(ode_time: float | None, until: float) -> float:
     return min(until, WINDOW_FACTOR * ode_time)
 
 
-def disagreement(labels, ode_label) -> tuple[float, float, float]:
+def disagreement(labels: Sequence[str | None],
+                 ode_label: str | None) -> tuple[float, float, float]:
     """How often a run's first-consensus label differs from the ODE's label.
 
     Parameters
@@ -79,8 +90,8 @@ class MeanFieldWindow:
     """
 
     horizon: float
-    consensus: object
-    ode: object
+    consensus: RunOutcome
+    ode: MeanFieldResult
 
     @property
     def times(self) -> np.ndarray:
@@ -93,7 +104,7 @@ class MeanFieldWindow:
         return float(self.ode.times[-1])
 
 
-def mean_field_window(net, until: float | None = None,
+def mean_field_window(net: Network, until: float | None = None,
                       samples: int = SAMPLES) -> MeanFieldWindow:
     """Solve the mean-field ODE once and sample it on the comparison window.
 
@@ -139,7 +150,7 @@ class Comparison:
     """
 
     mean_field: MeanFieldWindow
-    ensemble: object
+    ensemble: Ensemble
     disagreement: tuple
 
     @property
@@ -162,7 +173,7 @@ class Comparison:
             ODE's label; the interval is the 95% Wilson interval of the runs' share.
         """
         intervals = self.ensemble.outcome_intervals()
-        labels = set(intervals) | ({self.ode_label} - {None})
+        labels = set(intervals) | ({self.ode_label} if self.ode_label is not None else set())
         counts = {label: intervals[label]["runs"] if label in intervals else 0
                   for label in labels}
         rows = []
@@ -175,7 +186,7 @@ class Comparison:
         return rows
 
 
-def compare_runs(mean_field: MeanFieldWindow, ensemble) -> Comparison:
+def compare_runs(mean_field: MeanFieldWindow, ensemble: Ensemble) -> Comparison:
     """Put finished runs beside the ODE.
 
     Parameters
@@ -192,9 +203,10 @@ def compare_runs(mean_field: MeanFieldWindow, ensemble) -> Comparison:
                       disagreement=disagreement(ensemble.labels, mean_field.consensus.label))
 
 
-def compare_network(net, *, runs: int = 100, until: float | None = None, engine: str = "auto",
-            rng=None, workers: int | None = None, cluster=None,
-            progress=None) -> Comparison:
+def compare_network(net: Network, *, runs: int = 100, until: float | None = None,
+                    engine: str = "auto", rng: SeedLike = None, workers: int | None = None,
+                    cluster: str | None = None,
+                    progress: Callable[[int, int], None] | None = None) -> Comparison:
     """The mean-field ODE beside ``runs`` exact stochastic runs.
 
     Parameters

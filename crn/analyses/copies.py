@@ -24,6 +24,7 @@ import math
 from collections.abc import Callable
 from dataclasses import dataclass, field
 from fractions import Fraction
+from typing import TYPE_CHECKING, cast
 
 import numpy as np
 
@@ -52,6 +53,9 @@ from crn.core.network import Network
 from crn.core.outcome import correct_label
 from crn.core.units import concentration_for, to_parallel_time, to_seconds, volume_for
 from crn.runtime.seeds import root_seed
+
+if TYPE_CHECKING:
+    from crn.core.types import SeedLike
 
 __all__ = ["Probe", "CopiesResult", "Prober", "Lattice", "lattice", "smallest_n",
            "physical_outputs", "physical_answer", "p_wrong_summary", "risk_parts",
@@ -126,12 +130,14 @@ class Lattice:
     gap: int | None
 
     def n(self, k: int) -> int:
+        """Population at lattice index ``k``."""
         return self.first + self.step * int(k)
 
     def gap_of(self, n: int) -> int:
+        """Input gap at population ``n`` (a fixed gap or a fraction of n)."""
         if self.fraction is not None:
             return int(self.fraction * n)
-        return int(self.gap)
+        return int(cast(int, self.gap))
 
 
 def lattice(gap_fraction: float | None = None, gap: int | None = None) -> Lattice:
@@ -158,7 +164,7 @@ def lattice(gap_fraction: float | None = None, gap: int | None = None) -> Lattic
             raise CRNError(f"gap fraction {gap_fraction} is not a ratio of small whole numbers")
         step = f.denominator * (1 if (f.denominator - f.numerator) % 2 == 0 else 2)
         return Lattice(first=step, step=step, fraction=f, gap=None)
-    if int(gap) != gap or gap < 1:
+    if gap is None or int(gap) != gap or gap < 1:
         raise CRNError(f"--gap must be a whole number >= 1 (a tie has no majority to find), "
                        f"got {gap}")
     return Lattice(first=int(gap) + 2, step=2, fraction=None, gap=int(gap))
@@ -205,8 +211,8 @@ class Prober:
 
     def __init__(self, networks: Callable[[int, int], Network], *, horizon: float | None = None,
                  method: str = "auto", exact_max: int = 100_000, transient_max: int = 10_000,
-                 runs_max: int = 4000, rng=None, workers: int = 1, cluster=None,
-                 loading: str = "fixed", scale_deadline: bool = False,
+                 runs_max: int = 4000, rng: SeedLike = None, workers: int = 1,
+                 cluster: str | None = None, loading: str = "fixed", scale_deadline: bool = False,
                  loading_exact_max: int = 300_000):
         if method not in ("auto", "exact", "stochastic"):
             raise CRNError(f"method must be auto, exact or stochastic, got {method!r}")
@@ -216,7 +222,7 @@ class Prober:
         self.scale_deadline = bool(scale_deadline)
         self.loading_exact_max = int(loading_exact_max)
         seq = root_seed(rng)
-        self.entropy = int(seq.entropy)
+        self.entropy = int(cast(int, seq.entropy))
         self._stream = seq if seq.spawn_key else self.entropy
         self.networks = networks
         self.horizon = horizon
@@ -231,6 +237,7 @@ class Prober:
         self._nets: dict[tuple, Network] = {}
 
     def network(self, n: int, gap: int) -> Network:
+        """The network of cell ``(n, gap)``, built once."""
         key = (int(n), int(gap))
         if key not in self._nets:
             self._nets[key] = self.networks(*key)
@@ -277,8 +284,7 @@ class Prober:
             if kind == "exact" or self.method == "exact" or found.low >= target or \
                     found.high < target:
                 return found
-        key = (n, gap)
-        store = self._runs.setdefault(key, {"labels": [], "times": np.zeros(0),
+        store = self._runs.setdefault((n, gap), {"labels": [], "times": np.zeros(0),
                                             "horizon": self._horizon(net, deadline)})
         limit = store["horizon"] if deadline is None else deadline
         if deadline is not None and deadline > store["horizon"] * (1 + 1e-12):
@@ -326,7 +332,7 @@ class Prober:
             grid = loading_grid(n, gap, tail)
             totals = grid.totals
             top = int(totals[-1])
-            cost = configurations(self._droplet_cells(n)(top, top % 2)) * len(totals)
+            cost = float(configurations(self._droplet_cells(n)(top, top % 2)) * len(totals))
             if deadline is not None:
                 # a matrix-exponential action costs about (rate norm) x (deadline) products
                 cost *= 1 + top * float(np.max(self._droplet_deadline(deadline, n, [top]))) / 10
@@ -573,8 +579,8 @@ def smallest_n(networks: Callable[[int, int], Network], *, gap_fraction: float |
                gap: int | None = None, risk: float = 0.01,
                deadline: float | Callable[[int], float] | None = None, n_max: int = 10**7,
                prober: Prober | None = None, method: str = "auto", runs_max: int = 4000,
-               rng=None, workers: int = 1, cluster=None, loading: str = "fixed",
-               scale_deadline: bool = False) -> CopiesResult:
+               rng: SeedLike = None, workers: int = 1, cluster: str | None = None,
+               loading: str = "fixed", scale_deadline: bool = False) -> CopiesResult:
     """Smallest n with P(correct consensus by the deadline) >= 1 - risk, on the safe side.
 
     The answer is the smallest lattice n (by doubling and bisection) whose
@@ -617,6 +623,20 @@ def smallest_n(networks: Callable[[int, int], Network], *, gap_fraction: float |
     (no answer) once the optimistic bound, below the target, has fallen surely
     below an earlier probe (under its pessimistic bound; the best optimistic
     bound at least half the target) and not risen over three probes.
+
+    Examples
+    --------
+    Approximate majority with a gap of a fifth of n, eventual consensus, a 5%
+    risk, every probe solved exactly:
+
+    >>> from crn.analyses.probes import InitialSplit
+    >>> from crn.io.models import load_model
+    >>> net = load_model("models/approximate_majority.toml").network
+    >>> answer = smallest_n(InitialSplit(net), gap_fraction=0.2, risk=0.05, method="exact")
+    >>> answer.estimate, answer.gap_estimate, answer.below
+    (70, 14, 65)
+    >>> [(p.n, round(1 - p.p, 4)) for p in answer.probes if p.n in (65, 70)]
+    [(65, 0.0517), (70, 0.0456)]
     """
     if not 0 < risk < 1:
         raise CRNError(f"risk must lie in (0, 1), got {risk}")
@@ -730,7 +750,7 @@ def parallel_deadline(seconds: float, rate: float, *, concentration_molar: float
                        "(to convert it into parallel time)")
     if concentration_molar is not None:
         return to_parallel_time(seconds, rate, concentration_molar)
-    return _VolumeDeadline(float(seconds), float(rate), float(volume_liters))
+    return _VolumeDeadline(float(seconds), float(rate), float(cast(float, volume_liters)))
 
 
 @dataclass(frozen=True)
@@ -776,7 +796,7 @@ def physical_answer(result: CopiesResult, *, concentration_molar: float | None =
     return out
 
 
-def risk_parts(probe) -> dict | None:
+def risk_parts(probe: Probe | None) -> dict | None:
     """Poisson loading: P(wrong) from reversed or tied loadings and from the kinetics.
 
     Parameters
@@ -795,7 +815,7 @@ def risk_parts(probe) -> dict | None:
             "reversal": probe.reversal}
 
 
-def p_wrong_summary(probe) -> dict | None:
+def p_wrong_summary(probe: Probe | None) -> dict | None:
     """P(no correct decision by the deadline) at a probe, with its 95% interval.
 
     Parameters

@@ -20,6 +20,7 @@ import dataclasses
 import math
 from collections.abc import Callable
 from dataclasses import dataclass, field
+from typing import TYPE_CHECKING, Any
 
 from crn.analyses.implemented import (
     Diagnosis,
@@ -30,6 +31,10 @@ from crn.analyses.implemented import (
 )
 from crn.core.errors import CRNError
 from crn.core.network import Network
+
+if TYPE_CHECKING:
+    from crn.core.types import SeedLike
+    from crn.dna.parameters import DnaParameters
 
 __all__ = ["FuelAnswer", "fuel_for_time", "LeakAnswer", "leak_tolerance",
            "ImplementationCopies", "implementation_copies", "LoadedCells", "risk_floor",
@@ -75,7 +80,7 @@ def _ode_time(net: Network, until: float) -> float | None:
     return ode_decision(net, until)[1]
 
 
-def fuel_for_time(formal: Network, scheme: str, params, *, tolerance: float = 0.1,
+def fuel_for_time(formal: Network, scheme: str, params: DnaParameters, *, tolerance: float = 0.1,
                   excess_min: float = 2.0, excess_max: float = 1e4,
                   refine: int = 6) -> FuelAnswer:
     """Smallest fuel excess whose implementation decides within ``tolerance`` of the formal time.
@@ -183,8 +188,9 @@ class LeakAnswer:
 
 
 def leak_tolerance(formal_cells: Callable[[int, int], Network], n: int, gap: int,
-                   scheme: str, params, *, risk: float = 0.01, runs_max: int = 1000,
-                   rng=None, leak_start: float = 0.01, leak_max: float = 1e6,
+                   scheme: str, params: DnaParameters, *, risk: float = 0.01,
+                   runs_max: int = 1000, rng: SeedLike = None, leak_start: float = 0.01,
+                   leak_max: float = 1e6,
                    refine: int = 3, until: float | None = None) -> LeakAnswer:
     """Largest leak rate constant at which the implementation's cell (n, gap) stays ``ok``.
 
@@ -222,7 +228,6 @@ def leak_tolerance(formal_cells: Callable[[int, int], Network], n: int, gap: int
     CRNError
         When ``runs_max`` runs cannot certify ``risk`` at all (:func:`risk_floor`).
     """
-
     from crn.analyses.probes import ode_decision
     from crn.analyses.regimes import evaluate_cell
     from crn.core.outcome import correct_label
@@ -259,7 +264,8 @@ def leak_tolerance(formal_cells: Callable[[int, int], Network], n: int, gap: int
                           ok=good))
         return good
 
-    answer = dict(n=int(n), gap=int(gap), risk=float(risk), horizon=float(until))
+    answer: dict[str, Any] = dict(n=int(n), gap=int(gap), risk=float(risk),
+                                  horizon=float(until))
     if not ok(0.0):
         return LeakAnswer(None, 0.0, tried=tuple(tried), **answer)
     good, bad = 0.0, None
@@ -344,6 +350,7 @@ class LoadedCells:
     cells: ImplementedCells
 
     def __call__(self, n: int, gap: int) -> Network:
+        """The implementation's network of cell ``(n, gap)``."""
         return self.cells(n, gap)
 
     def droplets(self, n: int) -> ImplementedCells:
@@ -390,11 +397,14 @@ class ImplementationCopies:
     diagnosis: Diagnosis | None = None
 
 
-def implementation_copies(formal_cells: Callable[[int, int], Network], scheme: str, params, *,
-                          volume_liters: float | None = None, gap_fraction=None, gap=None,
-                          risk: float = 0.01, deadline=None, n_max: int = 10**7,
-                          method: str = "auto", runs_max: int = 4000, rng=None,
-                          workers: int = 1, with_formal: bool = True, loading: str = "fixed",
+def implementation_copies(formal_cells: Callable[[int, int], Network], scheme: str,
+                          params: DnaParameters, *, volume_liters: float | None = None,
+                          gap_fraction: float | None = None, gap: int | None = None,
+                          risk: float = 0.01,
+                          deadline: float | Callable[[int], float] | None = None,
+                          n_max: int = 10**7, method: str = "auto", runs_max: int = 4000,
+                          rng: SeedLike = None, workers: int = 1, with_formal: bool = True,
+                          loading: str = "fixed",
                           scale_deadline: bool = False,
                           full_network: bool = False) -> ImplementationCopies:
     """Smallest population meeting the risk on the implementation, beside the formal answer.
@@ -429,9 +439,10 @@ def implementation_copies(formal_cells: Callable[[int, int], Network], scheme: s
     """
     from crn.analyses.copies import smallest_n
 
-    common = dict(gap_fraction=gap_fraction, gap=gap, risk=risk, deadline=deadline, n_max=n_max,
-                  method=method, runs_max=runs_max, rng=rng, workers=workers, loading=loading,
-                  scale_deadline=scale_deadline)
+    common: dict[str, Any] = dict(gap_fraction=gap_fraction, gap=gap, risk=risk,
+                                  deadline=deadline, n_max=n_max, method=method,
+                                  runs_max=runs_max, rng=rng, workers=workers, loading=loading,
+                                  scale_deadline=scale_deadline)
     cells = ImplementedCells(formal_cells, scheme, params, volume_liters,
                              full_network=full_network)
     formal = smallest_n(formal_cells, **common) if with_formal else None

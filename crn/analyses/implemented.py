@@ -19,14 +19,21 @@ from __future__ import annotations
 
 import dataclasses
 import math
-from collections.abc import Callable
+from collections.abc import Callable, Iterable
 from dataclasses import dataclass
+from typing import TYPE_CHECKING, Any
 
 import numpy as np
 
 from crn.core.network import Network
 from crn.core.units import AVOGADRO
 from crn.dna.labels import held_matrix
+
+if TYPE_CHECKING:
+    from crn.dna.implementation import Implementation
+    from crn.dna.parameters import DnaParameters
+    from crn.solvers.ode import MeanFieldResult
+    from crn.solvers.simulate import Ensemble
 
 __all__ = ["ImplementedCells", "implementation_of", "decision_network", "held_labels",
            "held_matrix",
@@ -37,7 +44,7 @@ __all__ = ["ImplementedCells", "implementation_of", "decision_network", "held_la
 FUEL_OUT = 0.05
 
 
-def held_labels(impl) -> dict[str, int]:
+def held_labels(impl: Implementation) -> dict[str, int]:
     """Label index each intermediate species reports (the rule of :mod:`crn.dna.labels`).
 
     Parameters
@@ -55,7 +62,7 @@ def held_labels(impl) -> dict[str, int]:
             for s, role in impl.roles.items() if role == "intermediate"}
 
 
-def decision_network(impl) -> Network:
+def decision_network(impl: Implementation) -> Network:
     """The network every analysis runs on: ``impl.network``, labelled when it was built.
 
     Decisions are read from the signal species and from the signals the gates
@@ -65,7 +72,7 @@ def decision_network(impl) -> Network:
     return impl.network
 
 
-def implementation_of(formal: Network, scheme: str, params):
+def implementation_of(formal: Network, scheme: str, params: DnaParameters) -> Implementation:
     """Implement one formal network in DNA (:func:`crn.dna.implement`), for analysis.
 
     Parameters
@@ -113,22 +120,23 @@ class ImplementedCells:
 
     formal: Callable[[int, int], Network]
     scheme: str
-    params: object
+    params: DnaParameters
     volume_liters: float | None = None
     full_network: bool = False
 
-    def params_for(self, n: int):
+    def params_for(self, n: int) -> DnaParameters:
         """The DNA parameters of the cell with n agents."""
         if self.volume_liters is None:
             return self.params
         return dataclasses.replace(self.params,
                                    concentration=int(n) / (self.volume_liters * AVOGADRO))
 
-    def implementation(self, n: int, gap: int):
+    def implementation(self, n: int, gap: int) -> Implementation:
         """The :class:`crn.dna.Implementation` of cell (n, gap)."""
         return implementation_of(self.formal(int(n), int(gap)), self.scheme, self.params_for(n))
 
     def __call__(self, n: int, gap: int) -> Network:
+        """The implementation's network of cell ``(n, gap)`` (the reduced model when valid)."""
         impl = self.implementation(n, gap)
         if self.full_network:
             return impl.network
@@ -156,9 +164,10 @@ class ImplementedCells:
         reduction = reduction_of(self.implementation(n, gap))
         return ("full", reduction) if isinstance(reduction, str) else ("reduced", "")
 
-    def stochastic_models(self, cells) -> dict:
+    def stochastic_models(self, cells: Iterable[tuple[int, int]]) -> dict:
         """:meth:`stochastic_model` over cells, for an output: ``{"reduced": [[n, gap], ...],
-        "full": [{"n", "gap", "reason"}, ...]}``."""
+        "full": [{"n", "gap", "reason"}, ...]}``.
+        """
         out: dict = {"reduced": [], "full": []}
         for n, gap in cells:
             model, reason = self.stochastic_model(n, gap)
@@ -168,7 +177,7 @@ class ImplementedCells:
                 out["full"].append({"n": int(n), "gap": int(gap), "reason": reason})
         return out
 
-    def with_params(self, **changes) -> ImplementedCells:
+    def with_params(self, **changes: Any) -> ImplementedCells:
         """The same builder with some DNA parameters changed (``leak=...``, ``fuel=...``)."""
         return dataclasses.replace(self, params=dataclasses.replace(self.params, **changes))
 
@@ -192,7 +201,7 @@ def formal_ode_horizon(formal: Network) -> float:
     return float(default_horizon(formal))
 
 
-def fuel_left_ode(impl, result) -> dict[str, float]:
+def fuel_left_ode(impl: Implementation, result: MeanFieldResult) -> dict[str, float]:
     """Fraction of each fuel species left at the end of a mean-field solve of ``impl.network``.
 
     Parameters
@@ -213,7 +222,7 @@ def fuel_left_ode(impl, result) -> dict[str, float]:
                                if values.shape[0] else last)
 
 
-def fuel_left_runs(impl, ensemble) -> dict[str, float]:
+def fuel_left_runs(impl: Implementation, ensemble: Ensemble) -> dict[str, float]:
     """Mean over the runs of the fraction of each fuel species left at the last sample time.
 
     Parameters
@@ -314,7 +323,7 @@ def _decides(net: Network, until: float):
     return result
 
 
-def diagnose(formal: Network, scheme: str, params, until: float) -> Diagnosis:
+def diagnose(formal: Network, scheme: str, params: DnaParameters, until: float) -> Diagnosis:
     """Compare the implementation's mean-field decision with the formal one, and say why it fails.
 
     Parameters

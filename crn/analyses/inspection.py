@@ -203,6 +203,13 @@ def check_model(model: Model) -> CheckReport:
         (unreachable states, dead or ineffective rules, lost labels, an
         empty population). Warnings are returned, not issued: reporting
         oddities is this function's job.
+
+    Examples
+    --------
+    >>> from crn.io.models import load_model
+    >>> report = check_model(load_model("models/approximate_majority.toml"))
+    >>> report.initial_states, report.reachable, report.warnings
+    (('X', 'Y'), ('X', 'Y', 'B'), ())
     """
     net = model.network
     reachable = reachable_species(net)

@@ -12,11 +12,15 @@ import math
 from collections.abc import Callable
 from dataclasses import dataclass
 from functools import lru_cache
+from typing import TYPE_CHECKING
 
 import numpy as np
 
 from crn.core.errors import CRNError
 from crn.core.network import Network
+
+if TYPE_CHECKING:
+    from crn.core.types import SeedLike
 
 __all__ = [
     "InitialSplit",
@@ -96,7 +100,8 @@ class InitialSplit:
                            "setting n and the gap needs the two input states")
 
     def __call__(self, n: int, gap: int) -> Network:
-        a, b = self.network.inputs
+        """The network with the inputs split ``n``, ``gap``."""
+        a, b = self.network.inputs or (-1, -1)  # never None: checked in __post_init__
         x0 = np.array(self.network.initial, dtype=np.int64)
         x0[a], x0[b] = split_counts(n, gap)
         return self.network.with_initial(x0)
@@ -115,6 +120,7 @@ class ModelParameters:
     overrides: tuple = ()
 
     def __call__(self, n: int, gap: int) -> Network:
+        """The model rebuilt with parameters ``n`` and ``gap``."""
         from crn.core.model import parse_model
 
         split_counts(n, gap)
@@ -123,7 +129,7 @@ class ModelParameters:
         return parse_model(self.text, source=self.source, overrides=values).network
 
 
-def cell_seed(entropy, *key: int) -> np.random.SeedSequence:
+def cell_seed(entropy: int | np.random.SeedSequence, *key: int) -> np.random.SeedSequence:
     """The child stream of one cell (and round): same key, same numbers, in any order.
 
     A child of the root SeedSequence addressed by its spawn key, as
@@ -170,7 +176,7 @@ def exact_decision(net: Network, until: float | None = None) -> dict:
     return {k: float(v) for k, v in probabilities.items()}
 
 
-def exact_absorption(net: Network):
+def exact_absorption(net: Network) -> tuple[dict[str, float], float, float]:
     """Eventual consensus probabilities and the mean and std of the time to it.
 
     Returns
@@ -294,7 +300,8 @@ def simultaneous_interval(successes: int, trials: int, looks: int = 1,
 
 def _tail(n: int, threshold: float, count: int) -> float:
     """``P(Bin(n, threshold) <= count)``: the least level at which ``count`` of ``n``
-    puts the Clopper-Pearson upper bound at ``threshold``."""
+    puts the Clopper-Pearson upper bound at ``threshold``.
+    """
     from scipy.stats import binom
 
     return float(binom.cdf(count, n, threshold)) if count >= 0 else 0.0
@@ -480,8 +487,9 @@ def sample_until_decided(count: Callable[[], tuple[int, int]],
         draw(index, schedule[index] - n)
 
 
-def stochastic_decisions(net: Network, runs: int, until: float, rng, *, workers=1,
-                         cluster=None, engine: str = "auto"):
+def stochastic_decisions(net: Network, runs: int, until: float, rng: SeedLike, *,
+                         workers: int | None = 1, cluster: str | None = None,
+                         engine: str = "auto") -> tuple[list, np.ndarray]:
     """First-consensus labels and times of ``runs`` seeded stochastic runs.
 
     Returns

@@ -17,6 +17,7 @@ from __future__ import annotations
 import math
 from collections.abc import Callable, Mapping, Sequence
 from dataclasses import asdict, dataclass, field
+from typing import TYPE_CHECKING, Any, cast
 
 import numpy as np
 
@@ -35,6 +36,9 @@ from crn.core.network import Network
 from crn.core.outcome import correct_label
 from crn.runtime.executor import Executor
 from crn.runtime.seeds import root_seed
+
+if TYPE_CHECKING:
+    from crn.core.types import SeedLike
 
 __all__ = [
     "FLAGS",
@@ -139,11 +143,14 @@ class RegimeCell:
     correct_label: str | None = None
 
     def to_dict(self) -> dict:
+        """The cell as a JSON-ready dict."""
         return asdict(self)
 
     @classmethod
     def from_dict(cls, data: Mapping) -> RegimeCell:
-        return cls(**{k: data.get(k) for k in cls.__dataclass_fields__})
+        """The cell :meth:`to_dict` wrote (missing keys read as None)."""
+        fields: dict[str, Any] = {k: data.get(k) for k in cls.__dataclass_fields__}
+        return cls(**fields)
 
 
 @dataclass(frozen=True)
@@ -181,6 +188,7 @@ class Boundary:
     note: str = ""
 
     def to_dict(self) -> dict:
+        """The boundary as its JSON object."""
         return {"estimate": self.exponent, "low": self.low, "high": self.high,
                 "interval": None if self.low is None else INTERVAL_NAME,
                 "grid_low": self.grid_low, "grid_high": self.grid_high,
@@ -257,7 +265,8 @@ def time_flag(ssa_median: float | None, ode_time: float | None, factor: float, *
 
 
 def plan_cells(ns: Sequence[int], gaps: Sequence[int] | None = None,
-               gap_fractions: Sequence[float] | None = None):
+               gap_fractions: Sequence[float] | None = None
+               ) -> tuple[list[tuple[int, int]], list[tuple[int, int]]]:
     """The (n, gap) cells of a sweep, in order, and the cells skipped.
 
     Parameters
@@ -325,7 +334,8 @@ def _median_time(times: np.ndarray) -> float | None:
 def evaluate_cell(networks: Callable[[int, int], Network], n: int, gap: int, *,
                   risk: float = 0.01, until: float | None = None, runs_max: int = 1000,
                   time_factor: float = 2.0, method: str = "auto",
-                  exact_max: int = DEFAULT_EXACT_MAX, entropy=0, cluster=None,
+                  exact_max: int = DEFAULT_EXACT_MAX, entropy: int | np.random.SeedSequence = 0,
+                  cluster: str | None = None,
                   timing_runs: int = _TIMING_RUNS) -> RegimeCell:
     """Compute one cell of a regime map.
 
@@ -436,8 +446,8 @@ def regime_map(networks: Callable[[int, int], Network], ns: Sequence[int], *,
                gaps: Sequence[int] | None = None, gap_fractions: Sequence[float] | None = None,
                risk: float = 0.01, until: float | None = None, runs_max: int = 1000,
                time_factor: float = 2.0, method: str = "auto",
-               exact_max: int = DEFAULT_EXACT_MAX, rng=None, workers: int | None = None,
-               cluster=None, done: Mapping | None = None,
+               exact_max: int = DEFAULT_EXACT_MAX, rng: SeedLike = None,
+               workers: int | None = None, cluster: str | None = None, done: Mapping | None = None,
                on_cell: Callable[[RegimeCell], None] | None = None,
                progress: Callable | None = None) -> RegimeMap:
     """Sweep n and the gap; flag where the mean field misleads; fit the boundary.
@@ -481,6 +491,15 @@ def regime_map(networks: Callable[[int, int], Network], ns: Sequence[int], *,
     Angluin, Aspnes, Eisenstat, Distributed Computing 21(2), 2008, and Condon,
     Hajiaghayi, Kirkpatrick, Manuch, Natural Computing 2020: for approximate
     majority the critical gap grows like sqrt(n) up to log factors.
+
+    Examples
+    --------
+    >>> from crn.analyses.probes import InitialSplit
+    >>> from crn.io.models import load_model
+    >>> net = load_model("models/approximate_majority.toml").network
+    >>> result = regime_map(InitialSplit(net), [40], gaps=[2, 8], method="exact", rng=1)
+    >>> [(cell.n, cell.gap, cell.ode_label, round(cell.p_wrong, 4)) for cell in result.cells]
+    [(40, 2, 'X', 0.3746), (40, 8, 'X', 0.0998)]
     """
     if not 0 < risk < 1:
         raise CRNError(f"risk must lie in (0, 1), got {risk}")
@@ -491,13 +510,14 @@ def regime_map(networks: Callable[[int, int], Network], ns: Sequence[int], *,
     if until is not None and not until > 0:
         raise CRNError(f"until must be positive, got {until}")
     seq = root_seed(rng)
-    entropy = int(seq.entropy)
+    entropy = int(cast(int, seq.entropy))
     stream = seq if seq.spawn_key else entropy
     cells, skipped = plan_cells(ns, gaps, gap_fractions)
     finished = {tuple(k): v for k, v in (done or {}).items()}
     todo = [c for c in cells if c not in finished]
-    options = dict(risk=risk, until=until, runs_max=int(runs_max), time_factor=time_factor,
-                   method=method, exact_max=exact_max, entropy=stream, cluster=cluster)
+    options: dict[str, Any] = dict(risk=risk, until=until, runs_max=int(runs_max),
+                                   time_factor=time_factor, method=method, exact_max=exact_max,
+                                   entropy=stream, cluster=cluster)
     total, count = len(cells), len(cells) - len(todo)
     if progress:
         progress(count, total)
@@ -521,7 +541,8 @@ def regime_map(networks: Callable[[int, int], Network], ns: Sequence[int], *,
     return RegimeMap(cells=ordered_cells, boundary=fit_boundary(ordered_cells, risk, rng=entropy),
                      risk=float(risk), time_factor=float(time_factor), seed_entropy=entropy,
                      skipped=tuple(skipped),
-                     merged=tuple(merged_fractions(ns, gap_fractions) if gaps is None else ()))
+                     merged=tuple(merged_fractions(ns, gap_fractions or ()) if gaps is None
+                                  else ()))
 
 
 def _critical_gap(rows, risk):
@@ -641,7 +662,7 @@ def _bootstrap_slopes(cells, risk, generator, replicates):
     return ((w * (x - xm) * (y - ym)).sum(axis=1) / (w * (x - xm) ** 2).sum(axis=1))
 
 
-def fit_boundary(cells: Sequence[RegimeCell], risk: float, *, rng=None,
+def fit_boundary(cells: Sequence[RegimeCell], risk: float, *, rng: SeedLike = None,
                  replicates: int = 2000) -> Boundary:
     """Fit ``log gap_c = log a + b log n`` over the n that have a crossing.
 
@@ -710,7 +731,7 @@ def merged_fractions(ns: Sequence[int], gap_fractions: Sequence[float]) -> list[
         ``{n, gap, gap_fractions}`` for each cell that stands for two or more
         requested fractions, in grid order.
     """
-    out = []
+    out: list[dict] = []
     for n in ns:
         by_gap: dict[int, list] = {}
         for f in gap_fractions:

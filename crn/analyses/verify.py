@@ -1,4 +1,4 @@
-"""Bounded verification: does a protocol stably compute the majority for every small population?
+"""Bounded verification that a protocol stably computes the majority at every small population.
 
 For every population size n up to a bound and every split of the n agents
 between the two input states, the configurations reachable from that split
@@ -13,6 +13,7 @@ from __future__ import annotations
 
 from collections import Counter
 from dataclasses import dataclass, field
+from typing import TYPE_CHECKING
 
 import numpy as np
 from scipy.sparse.csgraph import connected_components
@@ -23,6 +24,13 @@ from crn.core.outcome import NO_CONSENSUS, TIE, correct_label
 from crn.core.protocol import Protocol
 from crn.core.translate import network_to_protocol, protocol_to_network
 from crn.solvers.configurations import consensus_labels, enumerate_configurations
+
+if TYPE_CHECKING:
+    from collections.abc import Callable
+
+    import scipy.sparse as sp
+
+    from crn.core.model import Model
 
 __all__ = ["VerifyResult", "verify", "bottom_components"]
 
@@ -63,7 +71,7 @@ class VerifyResult:
     largest: int = 0
 
 
-def bottom_components(adjacency) -> tuple[np.ndarray, np.ndarray]:
+def bottom_components(adjacency: sp.csr_matrix) -> tuple[np.ndarray, np.ndarray]:
     """Strongly connected components and which of them are bottom (no edge leaves them).
 
     Parameters
@@ -109,10 +117,10 @@ def _step_table(net: Network, protocol: Protocol | None) -> list[dict]:
     def multiset(*names):
         return tuple(sorted(Counter(names).items()))
 
-    steps = []
+    steps: list[dict] = []
     for reaction in net.reactions():
         key = (tuple(sorted(reaction.reactants.items())), tuple(sorted(reaction.products.items())))
-        found = None
+        found: dict | None = None
         for (p, q), outcomes in (protocol.transitions.items() if protocol else ()):
             for o in outcomes:
                 if o.probability > 0 and (multiset(p, q), multiset(o.initiator, o.responder)) \
@@ -125,7 +133,8 @@ def _step_table(net: Network, protocol: Protocol | None) -> list[dict]:
     return steps
 
 
-def verify(model_or_protocol, max_n: int, progress=None, *, max_states: int | None = None,
+def verify(model_or_protocol: Model | Protocol, max_n: int,
+           progress: Callable[[int, int], None] | None = None, *, max_states: int | None = None,
            stop_at_first: bool = True) -> VerifyResult:
     """Check stable computation of the majority for every n in 2..max_n and every input split.
 
@@ -170,6 +179,16 @@ def verify(model_or_protocol, max_n: int, progress=None, *, max_states: int | No
     Angluin, Aspnes, Diamadi, Fischer, Peralta, "Computation in networks of
     passively mobile finite-state sensors", Distributed Computing 18(4), 2006
     (stable computation under fairness: bottom components of the configuration graph).
+
+    Examples
+    --------
+    >>> from crn.io.models import load_model
+    >>> result = verify(load_model("models/exact_majority.toml"), 5)
+    >>> result.correct, result.checked
+    (True, 18)
+    >>> refuted = verify(load_model("models/cancel_spread.toml"), 6)
+    >>> refuted.correct, refuted.counterexample["n"]
+    (False, 5)
     """
     if isinstance(max_n, bool) or int(max_n) != max_n or max_n < 2:
         raise ValueError(f"`max_n` must be a whole number >= 2, got {max_n!r}")

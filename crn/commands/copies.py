@@ -65,7 +65,7 @@ def parse_deadline(text: str | None):
 @click.option("--rate", default=None, metavar="K",
               help="Bimolecular rate constant the reactions are built at, e.g. 1e6/M/s.")
 @click.option("--n-max", type=click.IntRange(min=2), default=10**7, show_default=True,
-              help="Largest population searched.")
+              metavar="N", help="Largest population searched.")
 @click.option("--runs-max", type=click.IntRange(min=1), default=4000, show_default=True,
               help="Most stochastic runs per probed population.")
 @click.option("--method", type=click.Choice(["auto", "exact", "stochastic"]), default="auto",

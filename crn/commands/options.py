@@ -13,10 +13,65 @@ __all__ = ["model_argument", "set_option", "seed_option", "json_option", "load",
            "dna_parameters", "dna_errors", "build_implementation", "DNA_OPTION_NAMES",
            "DEFAULT_DNA_RATE", "DEFAULT_DNA_CONCENTRATION", "every_option", "force_option",
            "sample_times_option_value",
-           "stop_interrupted", "guard_options", "guard"]
+           "stop_interrupted", "guard_options", "guard", "RenamedOption", "deprecation_notice"]
 
 #: Figure formats ``--plot`` accepts (all written by matplotlib's Agg, PDF, SVG and PS backends).
 FIGURE_FORMATS = ("png", "pdf", "svg", "svgz", "eps", "ps", "jpg", "jpeg", "tif", "tiff", "webp")
+
+
+def deprecation_notice(old: str, new: str) -> None:
+    """Tell the user, in one line on standard error, that option ``old`` is now ``new``.
+
+    Parameters
+    ----------
+    old, new : str
+        The old and the new spelling, e.g. ``"--max-n"`` and ``"--n-max"``.
+    """
+    click.echo(f"crn: warning: {old} is deprecated and will be removed in the next release; "
+               f"use {new}", err=True)
+
+
+class RenamedOption(click.Option):
+    """An option whose earlier spellings still work for one release, with a warning.
+
+    ``click.option("--n-max", "n_max", cls=RenamedOption, old=("--max-n",), ...)``
+    accepts ``--max-n`` as well: the value goes to the same parameter, the
+    help shows only the new spelling, and each use of an old spelling prints
+    :func:`deprecation_notice`. When both spellings are given the new one wins.
+
+    Parameters
+    ----------
+    param_decls : sequence of str
+        As for :class:`click.Option`.
+    old : sequence of str
+        The earlier spellings (value options only, not flags).
+    **attrs
+        As for :class:`click.Option`.
+    """
+
+    def __init__(self, param_decls=None, *, old=(), **attrs):
+        super().__init__(param_decls, **attrs)
+        if self.is_flag:
+            raise TypeError("RenamedOption is for options that take a value")
+        self.old_opts = tuple(old)
+
+    def add_to_parser(self, parser, ctx) -> None:
+        """Register the new spelling, then each old one under a destination of its own."""
+        super().add_to_parser(parser, ctx)
+        for k, opt in enumerate(self.old_opts):
+            parser.add_option(obj=self, opts=[opt], dest=f"{self.name}__old{k}",
+                              action="append" if self.multiple else "store", nargs=self.nargs)
+
+    def consume_value(self, ctx, opts):
+        """Take a value given under an old spelling (with the warning) unless the new
+        spelling was given too."""
+        for k, opt in enumerate(self.old_opts):
+            dest = f"{self.name}__old{k}"
+            if dest in opts:
+                deprecation_notice(opt, self.opts[0])
+                if self.name not in opts:
+                    opts = {**opts, self.name: opts[dest]}
+        return super().consume_value(ctx, opts)
 
 
 def model_argument(func):
@@ -305,7 +360,7 @@ class FigureFile(OutputFile):
     """An :class:`OutputFile` whose suffix names a figure format matplotlib writes (or none:
     PNG), checked before any work starts."""
 
-    name = "figure"
+    name = "file"
 
     def convert(self, value, param, ctx):
         from pathlib import Path

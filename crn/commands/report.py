@@ -11,6 +11,7 @@ import click
 
 from crn.commands.options import (
     OUTPUT_FILE,
+    RenamedOption,
     build_implementation,
     dna_options,
     dna_parameters,
@@ -88,20 +89,22 @@ def _ints(text, what):
               help="Stochastic runs for the time courses and outcome table (0: none).")
 @click.option("--regime-n", default="100,300,1000", show_default=True, metavar="LIST",
               help="Populations of the regime map (empty: no regime map).")
-@click.option("--regime-gap-fraction", default="0.02,0.05,0.1,0.2", show_default=True,
-              metavar="LIST", help="Gap fractions of the regime map.")
+@click.option("--regime-gap-fractions", "regime_gap_fraction", cls=RenamedOption,
+              old=("--regime-gap-fraction",), default="0.02,0.05,0.1,0.2", show_default=True,
+              metavar="LIST", help="Gap fractions of the regime map (was --regime-gap-fraction).")
 @click.option("--regime-runs-max", type=click.IntRange(min=1), default=200, show_default=True,
               help="Most stochastic runs per regime cell.")
 @click.option("--risk", type=click.FloatRange(0, 1, min_open=True, max_open=True), default=0.01,
               show_default=True, help="Acceptable probability of a wrong decision.")
 @click.option("--gap-fraction", type=click.FloatRange(0, 1, min_open=True, max_open=True),
-              default=None, help="Gap (share of n) of the copies answer; without it, no "
-                                 "copies section unless saved.")
-@click.option("--deadline", default=None, metavar="TIME",
+              default=None, metavar="F",
+              help="Gap (share of n) of the copies answer; without it, no copies section "
+                   "unless saved.")
+@click.option("--deadline", default=None, metavar="T",
               help="Deadline of the copies answer, e.g. 2h (needs --rate and --concentration).")
-@click.option("--rate", default=None, metavar="RATE",
+@click.option("--rate", default=None, metavar="K",
               help="Bimolecular rate constant one unit of protocol rate stands for, e.g. 1e6/M/s.")
-@click.option("--concentration", default=None, metavar="CONC",
+@click.option("--concentration", default=None, metavar="C",
               help="Total strand concentration of the copies answer, e.g. 10nM.")
 @click.option("--workers", type=click.IntRange(min=1), default=1, show_default=True,
               help="Processes for the regime map.")
@@ -126,7 +129,7 @@ def report(model, sets, output, from_dir, runs, regime_n, regime_gap_fraction, r
     saved = read_saved(from_dir) if from_dir else {}
     settings = ReportSettings(
         runs=runs, seed=seed, regime_n=_ints(regime_n, "--regime-n"),
-        regime_gap_fractions=_floats(regime_gap_fraction, "--regime-gap-fraction"),
+        regime_gap_fractions=_floats(regime_gap_fraction, "--regime-gap-fractions"),
         regime_runs_max=regime_runs_max, risk=risk, gap_fraction=gap_fraction,
         deadline_seconds=None if deadline is None else parse_time(deadline),
         rate=None if rate is None else parse_rate_constant(rate),

@@ -31,6 +31,28 @@ from crn.commands.options import (
 __all__ = ["ssa", "format_horizon"]
 
 
+def _write_csv(path, ensemble, course, interrupted: bool) -> None:
+    """The time course in long form when there is one, else one row per run."""
+    if course is not None:
+        from crn.io.time_course import write_time_course_csv
+
+        write_time_course_csv(path, course)
+    else:
+        from crn.io.runs import write_runs_csv
+
+        write_runs_csv(ensemble, path, note="interrupted" if interrupted else None)
+
+
+def _fuel_left(impl, ensemble, course) -> dict:
+    """Fraction of each fuel left at the horizon: from the runs, else from the time course."""
+    from crn.analyses.implemented import fuel_left_runs
+
+    fuel_left = fuel_left_runs(impl, ensemble)
+    if not fuel_left and course is not None:
+        fuel_left = impl.fuel_remaining(course.mean[-1])
+    return fuel_left
+
+
 @click.command("ssa")
 @model_argument
 @set_option
@@ -109,22 +131,10 @@ def ssa(model, sets, runs, until, engine, workers, cluster, max_memory, force, s
         course = time_course_of_counts(ensemble.times, ensemble.counts, net.species,
                                        time_units=time_units)
     if csv_path is not None and ensemble.runs:
-        if accumulator is not None:
-            from crn.io.time_course import write_time_course_csv
-
-            write_time_course_csv(csv_path, course)
-        else:
-            write_runs_csv(ensemble, csv_path, note="interrupted" if interrupted else None)
+        _write_csv(csv_path, ensemble, course if accumulator is not None else None, interrupted)
     if plot_path is not None and course is not None:
         _plot(net, course, loaded.name, plot_path)
-    fuel_left = None
-    if impl is not None:
-        from crn.analyses.implemented import fuel_left_runs
-
-        fuel_left = fuel_left_runs(impl, ensemble)
-        if not fuel_left and course is not None:
-            last = course.mean[-1]
-            fuel_left = impl.fuel_remaining(last)
+    fuel_left = None if impl is None else _fuel_left(impl, ensemble, course)
     if as_json:
         summary = ensemble_summary(ensemble, loaded.name)
         if course is not None and every is not None:

@@ -5,6 +5,7 @@ from __future__ import annotations
 import click
 
 from crn.commands.options import (
+    RenamedOption,
     emit_json,
     guard,
     guard_options,
@@ -35,15 +36,16 @@ def _step(step: dict) -> str:
 @click.command("verify")
 @model_argument
 @set_option
-@click.option("--max-n", "max_n", type=click.IntRange(min=2), required=True, metavar="N",
-              help="Check every population size from 2 to N.")
+@click.option("--n-max", "n_max", cls=RenamedOption, old=("--max-n",),
+              type=click.IntRange(min=2), required=True, metavar="N",
+              help="Check every population size from 2 to N (was --max-n).")
 @click.option("--max-states", type=click.IntRange(min=1), default=None, metavar="N",
               help="Refuse a case with more reachable configurations than N.")
 @guard_options
 @json_option
-def verify(model, sets, max_n, max_states, max_memory, force, as_json):
+def verify(model, sets, n_max, max_states, max_memory, force, as_json):
     """Check that MODEL stably computes its majority question for every n from 2 to
-    --max-n and every split of the n agents between the two input states.
+    --n-max and every split of the n agents between the two input states.
 
     Every bottom strongly connected component of the reachable configurations
     must be in consensus on the correct label; the first failure is shown as
@@ -59,18 +61,18 @@ def verify(model, sets, max_n, max_states, max_memory, force, as_json):
 
     loaded = load(model, sets)
     if loaded.network.inputs is not None:
-        guard(verify_estimate(loaded.network, max_n), max_memory, force, announce=not as_json)
+        guard(verify_estimate(loaded.network, n_max), max_memory, force, announce=not as_json)
     checked = [0]
     try:
-        with progress_bar("population sizes", max_n - 1, enabled=not as_json) as bar:
+        with progress_bar("population sizes", n_max - 1, enabled=not as_json) as bar:
             def update(done, total):
                 checked[0] = done
                 bar(done, total)
 
-            result = call_interruptibly(verify_model, loaded, max_n, progress=update,
+            result = call_interruptibly(verify_model, loaded, n_max, progress=update,
                                         max_states=max_states)
     except KeyboardInterrupt:
-        stop_interrupted(f"after n = 2..{checked[0] + 1} of 2..{max_n} (no counterexample "
+        stop_interrupted(f"after n = 2..{checked[0] + 1} of 2..{n_max} (no counterexample "
                          "among them)" if checked[0] else "before n = 2 was checked")
     if as_json:
         emit_json({"checked": result.checked, "correct": result.correct,
@@ -81,7 +83,7 @@ def verify(model, sets, max_n, max_states, max_memory, force, as_json):
     name = loaded.network.name
     lines = []
     if result.correct:
-        lines.append(f"{name}: correct for every n from 2 to {max_n} and every input split "
+        lines.append(f"{name}: correct for every n from 2 to {n_max} and every input split "
                      f"({result.checked} cases checked, up to {result.largest:,} configurations)")
     else:
         cx = result.counterexample

@@ -59,6 +59,7 @@ _HOME = {
     "Protocol": "protocol",
     "is_identifier": "protocol",
     "time_summary": "stats",
+    "SeedLike": "types",
     "wilson_interval": "stats",
     "network_to_protocol": "translate",
     "protocol_to_network": "translate",

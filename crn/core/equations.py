@@ -16,7 +16,7 @@ __all__ = [
 ]
 
 
-def exact_number(x) -> sympy.Rational:
+def exact_number(x: float) -> sympy.Rational:
     """The rational a float prints as: ``0.1 -> 1/10``, ``2.0 -> 2`` (exact in its decimal form)."""
     return sympy.Rational(repr(float(x)))
 

@@ -2,6 +2,9 @@
 
 from __future__ import annotations
 
+from os import PathLike
+from typing import Any
+
 __all__ = ["CRNError", "ModelError", "ExpressionError", "WorkerError"]
 
 
@@ -24,7 +27,8 @@ class ModelError(CRNError):
         The table or key at fault, for example ``initial.X``.
     """
 
-    def __init__(self, message: str, *, file=None, line=None, field=None):
+    def __init__(self, message: str, *, file: str | PathLike | None = None,
+                 line: int | None = None, field: str | None = None) -> None:
         self.message = message
         self.file = None if file is None else str(file)
         self.line = line
@@ -32,6 +36,7 @@ class ModelError(CRNError):
         super().__init__(str(self))
 
     def where(self) -> str:
+        """Where the error is: ``file:line``, ``line N`` and the field, or empty."""
         parts = []
         if self.file:
             parts.append(self.file if self.line is None else f"{self.file}:{self.line}")
@@ -45,7 +50,8 @@ class ModelError(CRNError):
         where = self.where()
         return f"{where}: {self.message}" if where else self.message
 
-    def located(self, *, file=None, line=None, field=None) -> ModelError:
+    def located(self, *, file: str | PathLike | None = None, line: int | None = None,
+                field: str | None = None) -> ModelError:
         """Return a copy with missing location parts filled in."""
         return ModelError(
             self.message,
@@ -69,6 +75,6 @@ class WorkerError(CRNError):
         :class:`~crn.solvers.simulate.Ensemble` of the finished runs).
     """
 
-    def __init__(self, message: str, partial=None):
+    def __init__(self, message: str, partial: Any = None) -> None:
         super().__init__(message)
         self.partial = partial

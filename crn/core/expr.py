@@ -49,7 +49,7 @@ _MAX_LENGTH = 1000
 _MAX_BITS = 4096
 
 
-def evaluate(expression, names: dict | None = None):
+def evaluate(expression: str | float, names: dict | None = None) -> int | float:
     """Evaluate an arithmetic expression over named numbers.
 
     Parameters
@@ -100,7 +100,7 @@ def evaluate(expression, names: dict | None = None):
         raise ExpressionError(f"cannot evaluate {expression!r}: {err}") from err
 
 
-def names_in(expression) -> set[str]:
+def names_in(expression: str | float) -> set[str]:
     """Return the parameter names an expression refers to (functions excluded)."""
     if not isinstance(expression, str):
         return set()

@@ -22,7 +22,7 @@ __all__ = ["protocol_from_rule", "state_name", "DEFAULT_MAX_STATES"]
 DEFAULT_MAX_STATES = 10_000
 
 
-def state_name(state) -> str:
+def state_name(state: object) -> str:
     """An identifier for a record-like state: its field values joined by ``_``.
 
     ``("strong", 1)`` becomes ``strong_1``; a dataclass ``Agent(opinion="A",

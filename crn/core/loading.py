@@ -17,11 +17,17 @@ from __future__ import annotations
 
 from collections.abc import Callable
 from dataclasses import dataclass
+from typing import TYPE_CHECKING
 
 import numpy as np
 
 from crn.core.errors import CRNError
 from crn.core.network import Network
+
+if TYPE_CHECKING:
+    from collections.abc import Sequence
+
+    from crn.core.types import SeedLike
 
 __all__ = [
     "LOADINGS",
@@ -137,7 +143,8 @@ def reversal_probability(n: float, gap: float, tail: float = 1e-12) -> float:
     return float(poisson.pmf(a, lam_a) @ poisson.sf(a - 1, lam_b))
 
 
-def draw_droplets(n: float, gap: float, size: int, rng) -> tuple[np.ndarray, np.ndarray]:
+def draw_droplets(n: float, gap: float, size: int,
+                  rng: SeedLike) -> tuple[np.ndarray, np.ndarray]:
     """Majority and minority counts of ``size`` Poisson-loaded droplets.
 
     Parameters
@@ -199,7 +206,7 @@ def _reaching(space, targets: np.ndarray) -> np.ndarray:
     return out[:size]
 
 
-def split_decisions(networks: Callable[[int, int], Network], total: int, majors,
+def split_decisions(networks: Callable[[int, int], Network], total: int, majors: Sequence[int],
                     truth: str, deadline: float | None = None,
                     max_states: int | None = None) -> np.ndarray:
     """P(correct consensus [by ``deadline``]) of a droplet of ``total`` strands, per split.

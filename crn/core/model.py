@@ -13,12 +13,16 @@ import tomllib
 import warnings
 from collections.abc import Mapping
 from dataclasses import dataclass, field, replace
+from typing import TYPE_CHECKING
 
 from crn.core.errors import ExpressionError, ModelError
 from crn.core.expr import evaluate
 from crn.core.network import MAX_COUNT, NO_CONSENSUS, Network, Reaction
 from crn.core.protocol import PROBABILITY_SLACK, Outcome, Protocol, is_identifier
 from crn.core.translate import protocol_to_network
+
+if TYPE_CHECKING:
+    from collections.abc import Iterable
 
 __all__ = ["ModelWarning", "Model", "Rule", "parse_model", "parse_overrides", "parse_rule",
            "parse_reaction"]
@@ -109,7 +113,7 @@ class _Locator:
         return None
 
 
-def parse_overrides(pairs) -> dict[str, float | int]:
+def parse_overrides(pairs: Iterable[str] | None) -> dict[str, float | int]:
     """Parse ``NAME=VALUE`` strings (the ``--set`` option) into a dictionary.
 
     Parameters
@@ -178,7 +182,8 @@ def _expand_side(text: str, where: str, file, line) -> dict[str, int]:
     return side
 
 
-def parse_reaction(text: str, *, where: str = "network.reactions", file=None, line=None):
+def parse_reaction(text: str, *, where: str = "network.reactions", file: str | None = None,
+                   line: int | None = None) -> tuple[dict[str, int], dict[str, int]]:
     """Parse ``"X + Y -> 2 U"`` (``0`` for an empty side) into reactant and product multisets.
 
     Parameters
@@ -209,7 +214,8 @@ def parse_reaction(text: str, *, where: str = "network.reactions", file=None, li
     return _expand_side(left, where, file, line), _expand_side(right, where, file, line)
 
 
-def parse_rule(text: str, *, where: str = "protocol.transitions", file=None, line=None):
+def parse_rule(text: str, *, where: str = "protocol.transitions", file: str | None = None,
+               line: int | None = None) -> tuple[tuple[str, ...], tuple[str, ...]]:
     """Parse ``"X, Y -> X, U"`` into ``((initiator, responder), (initiator', responder'))``.
 
     Parameters
@@ -276,6 +282,26 @@ def parse_model(text: str, *, source: str = "<string>", overrides: Mapping | Non
     ModelError
         For every invalid input, naming the file, the line when it can be
         found, and the field.
+
+    Examples
+    --------
+    >>> model = parse_model('''
+    ... name = "rumour"
+    ... [parameters]
+    ... n = 10
+    ... [initial]
+    ... I = 1
+    ... S = "n - 1"
+    ... [protocol]
+    ... transitions = ["I, S -> I, I"]
+    ... symmetric = true
+    ... [output]
+    ... I = "I"
+    ... ''', overrides={"n": 50})
+    >>> model.network.species, model.network.initial.tolist()
+    (('I', 'S'), [1, 49])
+    >>> [str(r) for r in model.network.reactions()]
+    ['I + S -> 2 I']
     """
     try:
         data = tomllib.loads(text)

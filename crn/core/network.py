@@ -16,6 +16,7 @@ import numpy as np
 
 if TYPE_CHECKING:
     import scipy.sparse as sp
+    from numpy.typing import ArrayLike
 
 from crn.core.errors import ModelError
 from crn.core.protocol import is_identifier
@@ -88,6 +89,75 @@ def _pad(sides: Sequence[Mapping[str, int]], index: Mapping[str, int]):
             counts[row, col] = m
     return species, counts
 
+def _species_index(species: tuple[str, ...]) -> dict[str, int]:
+    """Species name -> position, after checking the names."""
+    if not species:
+        raise ModelError("a network needs at least one species", field="species")
+    index = {s: i for i, s in enumerate(species)}
+    if len(index) != len(species):
+        raise ModelError("a species is listed twice", field="species")
+    for s in species:
+        if not is_identifier(s):
+            raise ModelError(f"species name {s!r} is not an identifier", field="species")
+    return index
+
+
+def _check_reactions(reactions: Sequence[Reaction], index: Mapping[str, int]) -> None:
+    """Refuse unknown species, bad multiplicities and negative or non-finite rates."""
+    for i, r in enumerate(reactions):
+        where = f"reactions[{i}]"
+        for side in (r.reactants, r.products):
+            for s, m in side.items():
+                if s not in index:
+                    raise ModelError(f"reaction {r} names unknown species {s!r}", field=where)
+                if (isinstance(m, bool) or not isinstance(m, int | np.integer)
+                        or not 1 <= m <= MAX_MULTIPLICITY):
+                    raise ModelError(f"reaction {r}: multiplicity of {s} must be a whole "
+                                     f"number from 1 to {MAX_MULTIPLICITY}", field=where)
+        if not np.isfinite(r.rate) or r.rate < 0:
+            raise ModelError(f"reaction {r}: rate must be a finite number >= 0, got {r.rate}",
+                             field=where)
+
+
+def _initial_counts(initial: Mapping[str, int], index: Mapping[str, int]) -> np.ndarray:
+    """The initial counts as a vector in species order, checked."""
+    x0 = np.zeros(len(index), dtype=np.int64)
+    for s, c in initial.items():
+        if s not in index:
+            raise ModelError(f"initial count for unknown species {s!r}", field="initial")
+        whole = isinstance(c, int | np.integer) and not isinstance(c, bool)
+        if not whole or not 0 <= c <= MAX_COUNT:
+            raise ModelError(f"initial count of {s} must be a whole number from 0 to "
+                             f"2**{_MAX_POWER}, got {c!r}", field=f"initial.{s}")
+        x0[index[s]] = c
+    if sum(int(c) for c in x0) > MAX_COUNT:
+        raise ModelError(f"the initial counts add up to more than 2**{_MAX_POWER}",
+                         field="initial")
+    return x0
+
+
+def _species_labels(output: dict[str, str], ignore: Sequence[str],
+                    index: Mapping[str, int]) -> tuple[tuple[str, ...], np.ndarray]:
+    """The labels in first-seen order and each species' label index (-1 none, IGNORED)."""
+    labels = tuple(dict.fromkeys(output.values()))
+    label_index = {label: i for i, label in enumerate(labels)}
+    species_label = np.full(len(index), -1, dtype=np.int64)
+    for s, label in output.items():
+        if s not in index:
+            raise ModelError(f"output for unknown species {s!r}", field="output")
+        if label == NO_CONSENSUS:
+            raise ModelError(f"label {label!r} of {s} is reserved for runs without consensus",
+                             field=f"output.{s}")
+        species_label[index[s]] = label_index[label]
+    for s in ignore:
+        if s not in index:
+            raise ModelError(f"ignored species {s!r} is not a species", field="ignore")
+        if species_label[index[s]] >= 0:
+            raise ModelError(f"species {s} reports a label and cannot be ignored",
+                             field="ignore")
+        species_label[index[s]] = IGNORED
+    return labels, species_label
+
 
 @dataclass(frozen=True, eq=False)
 class Network:
@@ -132,7 +202,7 @@ class Network:
     volume: float
     initial: np.ndarray
     labels: tuple[str, ...] = ()
-    species_label: np.ndarray = field(default=None)
+    species_label: np.ndarray = field(default=None)  # type: ignore[arg-type]  # set by from_reactions
     inputs: tuple[int, int] | None = None
     from_protocol: bool = False
     about: str = ""
@@ -180,61 +250,14 @@ class Network:
             count is negative, a rate is negative or the volume is not positive.
         """
         species = tuple(species)
-        if not species:
-            raise ModelError("a network needs at least one species", field="species")
-        index = {s: i for i, s in enumerate(species)}
-        if len(index) != len(species):
-            raise ModelError("a species is listed twice", field="species")
-        for s in species:
-            if not is_identifier(s):
-                raise ModelError(f"species name {s!r} is not an identifier", field="species")
-        for i, r in enumerate(reactions):
-            where = f"reactions[{i}]"
-            for side in (r.reactants, r.products):
-                for s, m in side.items():
-                    if s not in index:
-                        raise ModelError(f"reaction {r} names unknown species {s!r}", field=where)
-                    if (isinstance(m, bool) or not isinstance(m, int | np.integer)
-                            or not 1 <= m <= MAX_MULTIPLICITY):
-                        raise ModelError(f"reaction {r}: multiplicity of {s} must be a whole "
-                                         f"number from 1 to {MAX_MULTIPLICITY}", field=where)
-            if not np.isfinite(r.rate) or r.rate < 0:
-                raise ModelError(f"reaction {r}: rate must be a finite number >= 0, got {r.rate}",
-                                 field=where)
+        index = _species_index(species)
+        _check_reactions(reactions, index)
         if not np.isfinite(volume) or volume <= 0:
             raise ModelError(f"volume must be positive, got {volume}", field="volume")
         rs, rc = _pad([r.reactants for r in reactions], index)
         ps, pc = _pad([r.products for r in reactions], index)
-        x0 = np.zeros(len(species), dtype=np.int64)
-        for s, c in (initial or {}).items():
-            if s not in index:
-                raise ModelError(f"initial count for unknown species {s!r}", field="initial")
-            whole = isinstance(c, int | np.integer) and not isinstance(c, bool)
-            if not whole or not 0 <= c <= MAX_COUNT:
-                raise ModelError(f"initial count of {s} must be a whole number from 0 to "
-                                 f"2**{_MAX_POWER}, got {c!r}", field=f"initial.{s}")
-            x0[index[s]] = c
-        if sum(int(c) for c in x0) > MAX_COUNT:
-            raise ModelError(f"the initial counts add up to more than 2**{_MAX_POWER}",
-                             field="initial")
-        output = dict(output or {})
-        labels = tuple(dict.fromkeys(output.values()))
-        label_index = {label: i for i, label in enumerate(labels)}
-        species_label = np.full(len(species), -1, dtype=np.int64)
-        for s, label in output.items():
-            if s not in index:
-                raise ModelError(f"output for unknown species {s!r}", field="output")
-            if label == NO_CONSENSUS:
-                raise ModelError(f"label {label!r} of {s} is reserved for runs without consensus",
-                                 field=f"output.{s}")
-            species_label[index[s]] = label_index[label]
-        for s in ignore:
-            if s not in index:
-                raise ModelError(f"ignored species {s!r} is not a species", field="ignore")
-            if species_label[index[s]] >= 0:
-                raise ModelError(f"species {s} reports a label and cannot be ignored",
-                                 field="ignore")
-            species_label[index[s]] = IGNORED
+        x0 = _initial_counts(initial or {}, index)
+        labels, species_label = _species_labels(dict(output or {}), ignore, index)
         inputs = None
         if majority is not None:
             if len(majority) != 2 or not all(isinstance(s, str) for s in majority):
@@ -371,7 +394,8 @@ class Network:
             return None
         return self.species[self.inputs[0]], self.species[self.inputs[1]]
 
-    def with_initial(self, initial, volume: float | None = None) -> Network:
+    def with_initial(self, initial: Mapping[str, int] | ArrayLike,
+                     volume: float | None = None) -> Network:
         """Return the same network with other initial counts (and optionally volume).
 
         Parameters
@@ -406,7 +430,7 @@ class Network:
             volume = max(int(x0.sum()) - 1, 1)
         return _replace(self, initial=_frozen(x0, np.int64), volume=float(volume or self.volume))
 
-    def with_rates(self, rates) -> Network:
+    def with_rates(self, rates: ArrayLike) -> Network:
         """Return the same network with other rate constants.
 
         Parameters
@@ -438,7 +462,7 @@ def _side_matrix(species, counts, n_species):
     )
 
 
-def propensities(net: Network, x) -> np.ndarray:
+def propensities(net: Network, x: ArrayLike) -> np.ndarray:
     """Stochastic propensities at molecule counts ``x``.
 
     ``k * prod_s x_s (x_s - 1) ... (x_s - r_s + 1) / v**(order - 1)``: ordered
@@ -466,7 +490,7 @@ def propensities(net: Network, x) -> np.ndarray:
     return net.rates * factor.prod(axis=1) / net.volume ** (net.orders - 1.0)
 
 
-def deterministic_rates(net: Network, c) -> np.ndarray:
+def deterministic_rates(net: Network, c: ArrayLike) -> np.ndarray:
     """Mass-action reaction rates ``k * prod_s c_s**r_s`` at concentrations ``c``.
 
     Parameters

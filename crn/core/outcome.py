@@ -14,10 +14,14 @@ from __future__ import annotations
 from collections import Counter
 from collections.abc import Iterable
 from dataclasses import dataclass
+from typing import TYPE_CHECKING
 
 import numpy as np
 
 from crn.core.network import NO_CONSENSUS, Network
+
+if TYPE_CHECKING:
+    from numpy.typing import ArrayLike
 
 __all__ = [
     "NO_CONSENSUS",
@@ -93,7 +97,7 @@ def label_name(net: Network, index: int) -> str | None:
     return None if index < 0 else net.labels[index]
 
 
-def correct_label(net: Network, initial=None) -> str | None:
+def correct_label(net: Network, initial: ArrayLike | None = None) -> str | None:
     """The right answer of the majority question for an initial state.
 
     The label the more numerous input state reports (its name if it reports

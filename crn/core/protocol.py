@@ -15,7 +15,7 @@ _IDENTIFIER = re.compile(r"^[A-Za-z_][A-Za-z0-9_]*$")
 PROBABILITY_SLACK = 1e-12
 
 
-def is_identifier(name) -> bool:
+def is_identifier(name: object) -> bool:
     """Return whether ``name`` is a valid state or species name (also a valid SBML id).
 
     Parameters

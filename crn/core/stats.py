@@ -2,7 +2,12 @@
 
 from __future__ import annotations
 
+from typing import TYPE_CHECKING
+
 import numpy as np
+
+if TYPE_CHECKING:
+    from numpy.typing import ArrayLike
 
 __all__ = ["wilson_interval", "time_summary"]
 
@@ -12,7 +17,8 @@ _NORMAL_QUANTILES = {0.9: 1.6448536269514722, 0.95: 1.959963984540054,
                      0.99: 2.5758293035489004}
 
 
-def wilson_interval(successes: int, trials: int, confidence: float = 0.95):
+def wilson_interval(successes: int, trials: int,
+                    confidence: float = 0.95) -> tuple[float, float, float]:
     """Wilson score interval for a binomial proportion.
 
     Parameters
@@ -48,7 +54,7 @@ def wilson_interval(successes: int, trials: int, confidence: float = 0.95):
     return float(p), float(low), float(high)
 
 
-def time_summary(times) -> dict | None:
+def time_summary(times: ArrayLike) -> dict | None:
     """``{mean, median, q05, q95}`` of the finite entries of ``times``, None if there are none.
 
     Parameters

@@ -94,6 +94,14 @@ def network_to_protocol(net: Network, bound: float | None = None) -> tuple[Proto
     ModelError
         Naming the first reaction that does not have exactly two reactant and
         two product molecules, or if ``bound`` is too small.
+
+    Examples
+    --------
+    >>> from crn.io.models import load_model
+    >>> net = load_model("models/approximate_majority.toml", {"n": 20, "gap": 4}).network
+    >>> protocol, time_scale = network_to_protocol(net)
+    >>> protocol.states, time_scale
+    (('X', 'Y', 'B'), 1.0)
     """
     n = net.population
     scale = (max(n - 1, 1)) / net.volume

@@ -120,7 +120,9 @@ def decision_fuel(impl: Implementation, until: float | None = None) -> FuelBudge
         for s, per in module.fuel_per_firing.items():
             consumed[s] += firings[module.formal] * per / impl.molecules_per_molar
     decided = result.consensus.label is not None
-    time = result.consensus.time if decided else float(result.times[-1])
+    time = result.consensus.time
+    if time is None:
+        time = float(result.times[-1])
     return FuelBudget(time=float(time), decided=decided, firings=firings, consumed=consumed,
                       supplied=dict(impl.fuel))
 

@@ -28,6 +28,7 @@ import math
 from collections import Counter
 from collections.abc import Mapping
 from dataclasses import dataclass, field
+from typing import TYPE_CHECKING
 
 import numpy as np
 
@@ -36,6 +37,9 @@ from crn.core.network import IGNORED, MAX_COUNT, Network, Reaction
 from crn.core.protocol import is_identifier
 from crn.dna.labels import IGNORE, decision_labels
 from crn.dna.parameters import DnaParameterError, DnaParameters
+
+if TYPE_CHECKING:
+    from numpy.typing import ArrayLike
 
 __all__ = ["ROLES", "Implementation", "Module", "Builder", "formal_reactions", "signal_strands",
            "add_strands", "buffer_modules", "order_reactants"]
@@ -126,7 +130,7 @@ class Implementation:
         """The species with ``role``, in network order."""
         return [s for s in self.network.species if self.roles[s] == role]
 
-    def fuel_remaining(self, counts) -> dict[str, float]:
+    def fuel_remaining(self, counts: ArrayLike) -> dict[str, float]:
         """Fraction of each fuel species left at molecule counts ``counts``.
 
         Parameters
@@ -291,7 +295,7 @@ def signal_strands(side) -> dict[str, int]:
 
 def add_strands(*parts) -> dict[str, int]:
     """Sum strand multisets."""
-    total = Counter()
+    total: Counter[str] = Counter()
     for part in parts:
         total.update(part)
     return dict(total)
@@ -301,7 +305,8 @@ def order_reactants(formal: Network, reactants: Mapping[str, int],
                     load: dict[str, float]) -> tuple[str, str]:
     """First and second reactant of a bimolecular reaction: the first is the one with the
     smaller first-step load so far (ties: network order), which keeps the largest load,
-    and so the buffering every species needs, small."""
+    and so the buffering every species needs, small.
+    """
     names = sorted(reactants, key=lambda s: (load[s], formal.index[s]))
     return names[0], names[1] if len(names) > 1 else names[0]
 

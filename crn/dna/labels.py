@@ -26,10 +26,14 @@ still counts.
 from __future__ import annotations
 
 from collections.abc import Iterable, Mapping, Sequence
+from typing import TYPE_CHECKING
 
 import numpy as np
 
 from crn.core.network import IGNORED, Network
+
+if TYPE_CHECKING:
+    from crn.dna.implementation import Implementation
 
 __all__ = ["DECISION_RULE", "IGNORE", "decision_labels", "held_matrix"]
 
@@ -83,7 +87,7 @@ def decision_labels(formal: Network, roles: Mapping[str, str],
 
     strand_of = {f"{s}_strand": s for s in formal.species}
     module_of = {s: m for m in modules for s in m.species}
-    releases = set()  # intermediates that meet a fuel species and release signals
+    releases: set[str] = set()  # intermediates that meet a fuel species and release signals
     for r in reactions:
         if any(roles[x] == "fuel" for x in r.reactants) and \
                 any(roles[x] == "signal" for x in r.products):
@@ -108,7 +112,7 @@ def decision_labels(formal: Network, roles: Mapping[str, str],
     return out
 
 
-def held_matrix(impl) -> np.ndarray:
+def held_matrix(impl: Implementation) -> np.ndarray:
     """Signal strands each implementation species carries while not consumed.
 
     Parameters

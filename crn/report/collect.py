@@ -192,7 +192,7 @@ def collect_report(model, *, model_text: str, model_file: str, sets=(), networks
                                   rng=seeds[1], workers=settings.workers)
         data.regimes_source = "computed"
         command("regimes", "--n " + ",".join(str(n) for n in settings.regime_n),
-                "--gap-fraction " + ",".join(f"{f:g}" for f in settings.regime_gap_fractions),
+                "--gap-fractions " + ",".join(f"{f:g}" for f in settings.regime_gap_fractions),
                 f"--risk {settings.risk:g}", f"--runs-max {settings.regime_runs_max}",
                 f"--seed {seeds[1]}")
 

@@ -20,6 +20,7 @@ from __future__ import annotations
 import os
 import warnings
 from collections.abc import Callable, Iterable, Sequence
+from typing import Any
 
 from crn.core.errors import CRNError, WorkerError
 
@@ -101,7 +102,7 @@ class Executor:
             self._client = None
 
     def run(self, fn: Callable, tasks: Sequence, on_result: Callable[[int, object], None], *,
-            shared=None, weight: Callable[[object], int] = lambda task: 1,
+            shared: Any = None, weight: Callable[[Any], int] = lambda task: 1,
             noun: str = "tasks") -> None:
         """Run ``fn`` on every task; ``on_result(index, result)`` as each finishes.
 

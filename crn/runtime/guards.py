@@ -18,9 +18,13 @@ import math
 import os
 import re
 from dataclasses import dataclass
+from typing import TYPE_CHECKING
 
 from crn.core.errors import CRNError
 from crn.core.network import Network, propensities
+
+if TYPE_CHECKING:
+    from collections.abc import Callable, Sequence
 
 __all__ = ["Estimate", "machine_memory", "default_max_memory", "parse_memory", "enforce",
            "exact_estimate", "ensemble_estimate", "time_course_bytes", "regime_map_estimate",
@@ -92,7 +96,7 @@ def default_max_memory() -> int:
     return total // 2 if total > 0 else 8 * 2**30
 
 
-def parse_memory(text) -> int:
+def parse_memory(text: str | int) -> int:
     """``"4G"``, ``"512MiB"``, ``"2.5GB"``, ``"1000000"`` -> bytes (K, M, G, T are binary).
 
     Raises
@@ -269,10 +273,12 @@ def ensemble_estimate(net: Network, *, runs: int, until: float, engine: str, wor
                     detail=f"up to {events:.3g} events per run", stochastic=True)
 
 
-def regime_map_estimate(networks, cells, *, runs_max: int, until, method: str,
+def regime_map_estimate(networks: Callable[[int, int], Network], cells: Sequence[tuple[int, int]],
+                        *, runs_max: int, until: float | None, method: str,
                         exact_max: int, workers: int) -> Estimate:
     """A regime map: the largest cell's memory, every cell's time (at most ``runs_max``
-    stochastic runs, or the exact chain where the cell is solved exactly)."""
+    stochastic runs, or the exact chain where the cell is solved exactly).
+    """
     from crn.solvers.configurations import estimate_configurations
     from crn.solvers.simulate import choose_engine, default_horizon
 

@@ -14,6 +14,12 @@ from __future__ import annotations
 import contextlib
 import os
 import signal
+from typing import TYPE_CHECKING, Any, TypeVar
+
+if TYPE_CHECKING:
+    from collections.abc import Callable, Iterator
+
+T = TypeVar("T")
 
 __all__ = ["handling", "exit_status", "received", "reason", "call_interruptibly"]
 
@@ -29,7 +35,7 @@ def _handler(signum, frame):
 
 
 @contextlib.contextmanager
-def handling():
+def handling() -> Iterator[None]:
     """Within the block, SIGINT and SIGTERM raise KeyboardInterrupt; restored afterwards.
 
     Only the main thread may install signal handlers; elsewhere this does nothing.
@@ -55,7 +61,8 @@ def received() -> int | None:
 
 def exit_status() -> int:
     """128 + the signal received: 130 for Ctrl-C (also when no handler recorded it), 143 for
-    SIGTERM."""
+    SIGTERM.
+    """
     return 128 + (_received or signal.SIGINT)
 
 
@@ -64,7 +71,7 @@ def reason() -> str:
     return "terminated" if _received == signal.SIGTERM else "interrupted"
 
 
-def call_interruptibly(func, *args, **kwargs):
+def call_interruptibly(func: Callable[..., T], *args: Any, **kwargs: Any) -> T:
     """``func(*args, **kwargs)`` on a helper thread while this thread waits for it.
 
     Signals are handled in the main thread only, and only between Python

@@ -13,6 +13,11 @@ from __future__ import annotations
 import contextlib
 import signal
 import sys
+from typing import TYPE_CHECKING
+
+if TYPE_CHECKING:
+    from collections.abc import Iterator
+    from concurrent.futures import ProcessPoolExecutor
 
 __all__ = ["process_pool", "worker_initializer", "stop_workers"]
 
@@ -34,7 +39,7 @@ def worker_initializer() -> None:
 
 
 @contextlib.contextmanager
-def process_pool(workers: int, context: str | None = "spawn"):
+def process_pool(workers: int, context: str | None = "spawn") -> Iterator[ProcessPoolExecutor]:
     """A ``ProcessPoolExecutor`` whose workers are killed when the block raises.
 
     Parameters
@@ -62,7 +67,7 @@ def process_pool(workers: int, context: str | None = "spawn"):
     pool.shutdown(wait=True)
 
 
-def stop_workers(pool) -> None:
+def stop_workers(pool: ProcessPoolExecutor) -> None:
     """Kill the pool's workers now and reap them; the pool is unusable afterwards."""
     processes = list((getattr(pool, "_processes", None) or {}).values())
     for process in processes:

@@ -14,6 +14,7 @@ from __future__ import annotations
 import math
 from dataclasses import dataclass
 from fractions import Fraction
+from typing import TYPE_CHECKING
 
 import numba
 import numpy as np
@@ -22,6 +23,9 @@ import scipy.sparse as sp
 from crn.core.errors import CRNError
 from crn.core.network import Network
 from crn.core.outcome import consensus_index
+
+if TYPE_CHECKING:
+    from collections.abc import Callable
 
 __all__ = [
     "DEFAULT_MAX_STATES",
@@ -78,10 +82,12 @@ class StateSpace:
 
     @property
     def n_states(self) -> int:
+        """Number of configurations."""
         return int(self.states.shape[0])
 
     @property
     def n_transitions(self) -> int:
+        """Number of transitions between configurations."""
         return int(self.src.shape[0])
 
     def generator(self) -> sp.csr_matrix:
@@ -194,7 +200,7 @@ def estimate_configurations(net: Network) -> int:
         bound = _knapsack_bound(weights, total)
     else:
         bound = math.prod(total // int(w) + 1 for w in weights)
-    return min(bound, _free_coordinate_bound(net, changing))
+    return int(min(bound, _free_coordinate_bound(net, changing)))
 
 
 def _knapsack_bound(weights: np.ndarray, total: int) -> int:
@@ -219,7 +225,7 @@ def _knapsack_bound(weights: np.ndarray, total: int) -> int:
     return int(math.ceil(last * (1.0 + 1e-6)))
 
 
-def _free_coordinate_bound(net: Network, changing: np.ndarray) -> int:
+def _free_coordinate_bound(net: Network, changing: np.ndarray) -> float:
     """Product of the count ranges of species that fix all others through the conservation laws.
 
     Every reachable x lies in ``x0 + span(stoichiometry)`` with ``x >= 0``;
@@ -440,7 +446,8 @@ def _grow(array, size):
 
 
 def enumerate_configurations(net: Network, *, max_states: int | None = None,
-                             truncate: bool = False, progress=None,
+                             truncate: bool = False,
+                             progress: Callable[[int, int], None] | None = None,
                              expected: int | None = None) -> StateSpace:
     """Breadth-first enumeration of the configurations reachable from ``net.initial``.
 

@@ -14,6 +14,7 @@ from __future__ import annotations
 
 import warnings
 from dataclasses import dataclass, field
+from typing import TYPE_CHECKING
 
 import numpy as np
 import scipy.linalg as la
@@ -21,6 +22,9 @@ import scipy.linalg as la
 from crn.core.network import Network
 from crn.core.outcome import label_name, mean_field_consensus_index
 from crn.solvers.ode import initial_state, mean_field_system, molecules_per_unit
+
+if TYPE_CHECKING:
+    from numpy.typing import ArrayLike
 
 __all__ = [
     "FixedPoint",
@@ -103,7 +107,7 @@ def conservation_basis(net: Network) -> tuple[np.ndarray, np.ndarray]:
     return vectors[:, null].T, vectors[:, ~null]
 
 
-def classify(eigenvalues, tol: float | None = None) -> str:
+def classify(eigenvalues: ArrayLike, tol: float | None = None) -> str:
     """Stability class from restricted eigenvalues.
 
     Parameters
@@ -132,7 +136,8 @@ def classify(eigenvalues, tol: float | None = None) -> str:
     return "saddle"
 
 
-def restricted_eigenvalues(net: Network, point, subspace=None):
+def restricted_eigenvalues(net: Network, point: ArrayLike, subspace: np.ndarray | None = None
+                           ) -> tuple[np.ndarray, np.ndarray]:
     """Eigenvalues and eigenvectors of the Jacobian restricted to the stoichiometric subspace.
 
     The field ``f`` takes values in the stoichiometric subspace (spanned by
@@ -283,7 +288,7 @@ def _numeric(net: Network, laws, subspace, starts: int, y0):
         sample = qmc.Halton(d=n, scramble=False).random(starts - 1)[1:]
         weights = -np.log(np.clip(sample, 1e-12, 1 - 1e-12))
         guesses += list(size * weights / weights.sum(axis=1, keepdims=True))
-    found = []
+    found: list[np.ndarray] = []
     scale_f = max(1.0, float(np.abs(system.matrix.data).max(initial=0.0))) * max(size, 1.0) ** 2
     for guess in guesses:
         guess = guess + laws.T @ (target - laws @ guess)
@@ -337,6 +342,20 @@ def find_fixed_points(net: Network, *, method: str = "auto", starts: int | None 
     Feinberg, "Foundations of Chemical Reaction Network Theory", Springer 2019
     (stoichiometric compatibility classes). Angluin, Aspnes, Eisenstat,
     Distributed Computing 21(2):87-102, 2008 (the tie point of approximate majority).
+
+    Examples
+    --------
+    The four equilibria of approximate majority: the two consensus corners, the
+    all-blank corner and the tie point.
+
+    >>> from crn.io.models import load_model
+    >>> net = load_model("models/approximate_majority.toml", {"n": 20, "gap": 4}).network
+    >>> for point in find_fixed_points(net):
+    ...     print(point.exact, point.classification)
+    {'X': '1', 'Y': '0', 'B': '0'} stable
+    {'X': '0', 'Y': '1', 'B': '0'} stable
+    {'X': '0', 'Y': '0', 'B': '1'} unstable
+    {'X': '1/3', 'Y': '1/3', 'B': '1/3'} saddle
     """
     if method not in ("auto", "exact", "numeric"):
         raise ValueError(f"`method` must be 'auto', 'exact' or 'numeric', got {method!r}")

@@ -89,6 +89,7 @@ class DissectionPlan:
 
     @property
     def n_fronts(self) -> int:
+        """Number of fronts (separators and leaves) of the plan."""
         return int(self.lo.shape[0])
 
     @property
@@ -108,7 +109,7 @@ def _doubled(array, used):
 
 
 @numba.njit(cache=True)
-def _dissect(coords, widths, leaf):
+def _dissect(coords, widths, leaf):  # noqa: C901 - one numba kernel, an explicit stack
     """Recursive coordinate bisection; returns the order and the fronts in preorder."""
     n, d = coords.shape
     order = np.arange(n)

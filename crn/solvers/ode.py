@@ -20,6 +20,7 @@ import math
 import weakref
 from collections.abc import Callable
 from dataclasses import dataclass, field, replace
+from typing import TYPE_CHECKING, Any
 
 import numpy as np
 import scipy.sparse as sp
@@ -28,6 +29,10 @@ from scipy.integrate import solve_ivp
 from crn.core.errors import CRNError
 from crn.core.network import Network
 from crn.core.outcome import RunOutcome, mean_field_consensus_index
+
+if TYPE_CHECKING:
+    from collections.abc import Sequence
+
 
 __all__ = [
     "MeanFieldResult",
@@ -133,7 +138,7 @@ class MeanFieldSystem:
         ext[self.n_species] = 1.0
         return ext
 
-    def monomials(self, y) -> np.ndarray:
+    def monomials(self, y: np.ndarray) -> np.ndarray:
         """``psi_c(y) = prod_s y_s**r_sc`` for every complex, shape (n_complexes,)."""
         ext = self._extended(y)
         out = np.take(ext, self._columns[0])
@@ -141,11 +146,11 @@ class MeanFieldSystem:
             out *= np.take(ext, column)
         return out
 
-    def rhs(self, t, y) -> np.ndarray:
+    def rhs(self, t: float, y: np.ndarray) -> np.ndarray:
         """``f(y)``, shape (n_species,); ``t`` is ignored (autonomous law)."""
         return self.matrix @ self.monomials(y)
 
-    def jacobian(self, t, y) -> sp.csr_matrix:
+    def jacobian(self, t: float, y: np.ndarray) -> sp.csr_matrix:
         """``df/dy`` as a CSR matrix, shape (n_species, n_species); ``t`` is ignored."""
         ext = self._extended(y)
         weights = self._term_value.copy()
@@ -183,7 +188,7 @@ def mean_field_system(net: Network) -> MeanFieldSystem:
     return system
 
 
-def mean_field_rhs(net: Network):
+def mean_field_rhs(net: Network) -> Callable[[float, np.ndarray], np.ndarray]:
     """The right-hand side ``f(t, y)`` of the mean-field ODE.
 
     Parameters
@@ -203,7 +208,7 @@ def mean_field_rhs(net: Network):
     return mean_field_system(net).rhs
 
 
-def mean_field_jacobian(net: Network):
+def mean_field_jacobian(net: Network) -> Callable[[float, np.ndarray], sp.csr_matrix]:
     """The analytic Jacobian ``J(t, y) = df/dy`` of the mean-field ODE.
 
     Parameters
@@ -295,7 +300,7 @@ class MeanFieldResult:
     method: str = "LSODA"
     interpolant: Callable | None = field(default=None, repr=False, compare=False)
 
-    def sampled(self, times) -> MeanFieldResult:
+    def sampled(self, times: Sequence[float] | np.ndarray) -> MeanFieldResult:
         """The same solution at other times, from the solver's continuous solution.
 
         Parameters
@@ -317,8 +322,8 @@ class MeanFieldResult:
         if self.interpolant is None:
             raise ValueError("this solution has no continuous form; solve with "
                              "dense_output=True")
-        _, times = _validate_times(None, times)
-        return replace(self, times=times, values=self.interpolant(times))
+        _, grid = _validate_times(None, times)
+        return replace(self, times=grid, values=self.interpolant(grid))
 
     @property
     def fractions(self) -> dict[str, np.ndarray]:
@@ -395,7 +400,9 @@ def _clip_roundoff(values: np.ndarray, rtol: float, atol: float) -> np.ndarray:
     return np.where((values <= 0) & (values >= -tol), 0.0, values)  # -0.0 too
 
 
-def solve_mean_field(net: Network, *, until=None, times=None, method: str = "LSODA",
+def solve_mean_field(net: Network, *, until: float | None = None,
+                     times: Sequence[float] | np.ndarray | None = None,
+                     method: str = "LSODA",
                      rtol: float = 1e-10, atol: float = 1e-12,
                      stop_at_consensus: bool = True,
                      dense_output: bool = False) -> MeanFieldResult:
@@ -468,7 +475,8 @@ def solve_mean_field(net: Network, *, until=None, times=None, method: str = "LSO
     labels = np.asarray(net.species_label)
     n_labels = len(net.labels)
     units = "fraction" if net.from_protocol else "concentration"
-    common = dict(species=net.species, units=units, molecules_per_unit=scale, method=method)
+    common: dict[str, Any] = dict(species=net.species, units=units, molecules_per_unit=scale,
+                                  method=method)
 
     start = mean_field_consensus_index(labels, n_labels, y0, scale)
     if start >= 0 and stop_at_consensus and times is None:
@@ -525,7 +533,8 @@ def solve_mean_field(net: Network, *, until=None, times=None, method: str = "LSO
 @dataclass(frozen=True)
 class _Interpolant:
     """The solver's continuous solution on [0, t_end], negative roundoff clipped as the
-    reported values are."""
+    reported values are.
+    """
 
     solution: Callable
     t_end: float

@@ -12,6 +12,7 @@ import math
 import os
 from collections.abc import Callable
 from dataclasses import dataclass, field
+from typing import TYPE_CHECKING
 
 import numpy as np
 
@@ -23,6 +24,14 @@ from crn.engines import ENGINES
 from crn.engines.base import DEFAULT_SAMPLES, Trajectory
 from crn.runtime.executor import POOL_RESTARTS, Executor, probe_scheduler
 from crn.runtime.seeds import root_seed
+
+if TYPE_CHECKING:
+    from collections.abc import Sequence
+
+    from numpy.typing import ArrayLike
+
+    from crn.core.types import SeedLike
+    from crn.solvers.time_course import TimeCourseAccumulator
 
 __all__ = ["Ensemble", "SimulationInterrupted", "simulate", "ENGINES", "choose_engine",
            "default_horizon", "run_chunk", "probe_scheduler", "AUTO_BATCHED_FROM"]
@@ -86,7 +95,7 @@ class Ensemble:
     statuses: list
     until: float
     species: tuple
-    run_index: np.ndarray = field(default=None)
+    run_index: np.ndarray = field(default=None)  # type: ignore[arg-type]  # filled in __post_init__
     requested: int = 0
     outcome_labels: tuple = ()
 
@@ -159,8 +168,10 @@ class Ensemble:
         }
 
     @classmethod
-    def from_trajectories(cls, trajectories, *, engine, seed_entropy, until, species,
-                          times, run_index=None, requested=None, outcome_labels=()
+    def from_trajectories(cls, trajectories: Sequence[Trajectory], *, engine: str,
+                          seed_entropy: int, until: float, species: Sequence[str],
+                          times: np.ndarray, run_index: ArrayLike | None = None,
+                          requested: int | None = None, outcome_labels: Sequence[str] = ()
                           ) -> Ensemble:
         """Collect runs (in run order) into an ensemble."""
         trajectories = list(trajectories)
@@ -261,8 +272,9 @@ def _available(engine: str) -> bool:
     return True
 
 
-def run_chunk(net: Network, engine: str, until: float, times, stop_at_consensus: bool,
-              seeds, run_index: int | None = None) -> list[Trajectory]:
+def run_chunk(net: Network, engine: str, until: float, times: np.ndarray | None,
+              stop_at_consensus: bool, seeds: Sequence[np.random.SeedSequence],
+              run_index: int | None = None) -> list[Trajectory]:
     """Run one engine once per child seed (the task sent to pool and cluster workers).
 
     ``run_index`` (the index of the first seed's run) serves the worker-fault test hook.
@@ -277,7 +289,8 @@ def run_chunk(net: Network, engine: str, until: float, times, stop_at_consensus:
 def _chunk_task(shared, task) -> list[Trajectory]:
     """One executor task: the runs of one chunk (``task``: first run index, child seeds)."""
     first, seeds = task
-    return run_chunk(*shared, seeds, run_index=first)
+    net, engine, until, times, stop_at_consensus = shared
+    return run_chunk(net, engine, until, times, stop_at_consensus, seeds, run_index=first)
 
 
 def _maybe_die(first: int, size: int) -> None:
@@ -294,10 +307,11 @@ def _maybe_die(first: int, size: int) -> None:
     os.kill(os.getpid(), signal.SIGKILL)
 
 
-def simulate(net: Network, *, runs: int = 1, until: float | None = None, times=None,
-             engine: str = "auto", rng=None, workers: int | None = None,
-             cluster: str | None = None, stop_at_consensus: bool = False,
-             progress: Callable[[int, int], None] | None = None, reduce=None) -> Ensemble:
+def simulate(net: Network, *, runs: int = 1, until: float | None = None,
+             times: ArrayLike | None = None, engine: str = "auto", rng: SeedLike = None,
+             workers: int | None = None, cluster: str | None = None,
+             stop_at_consensus: bool = False, progress: Callable[[int, int], None] | None = None,
+             reduce: TimeCourseAccumulator | None = None) -> Ensemble:
     """Run an ensemble of exact stochastic simulations.
 
     Parameters

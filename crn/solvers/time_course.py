@@ -25,8 +25,17 @@ from __future__ import annotations
 
 import math
 from dataclasses import dataclass
+from typing import TYPE_CHECKING, Any
 
 import numpy as np
+
+if TYPE_CHECKING:
+    from collections.abc import Sequence
+
+    from numpy.typing import ArrayLike
+
+    from crn.core.types import SeedLike
+    from crn.solvers.ode import MeanFieldResult
 
 __all__ = ["MAX_SAMPLES", "QUANTILE_MEMORY", "TimeCourse", "TimeCourseAccumulator",
            "sample_times", "quantile_rank_error", "time_course_of_counts", "reduction_memory"]
@@ -245,7 +254,7 @@ class TimeCourse:
         dict
             ``time`` and, per statistic present, species -> value (NaN as None).
         """
-        out = {"time": float(self.times[index])}
+        out: dict[str, Any] = {"time": float(self.times[index])}
         for name in ("mean", "sd", "q05", "q95"):
             values = getattr(self, name)
             if values is not None:
@@ -254,7 +263,7 @@ class TimeCourse:
         return out
 
     @classmethod
-    def from_mean_field(cls, result, *, counts: bool = False) -> TimeCourse:
+    def from_mean_field(cls, result: MeanFieldResult, *, counts: bool = False) -> TimeCourse:
         """The time course of a mean-field solution.
 
         Parameters
@@ -301,8 +310,9 @@ class TimeCourseAccumulator:
     moments are updated in run order).
     """
 
-    def __init__(self, times, species, runs: int, *, rng=None,
-                 quantile_memory: int = QUANTILE_MEMORY, time_units: str = "network time"):
+    def __init__(self, times: ArrayLike, species: Sequence[str], runs: int, *,
+                 rng: SeedLike = None, quantile_memory: int = QUANTILE_MEMORY,
+                 time_units: str = "network time") -> None:
         self.times = np.asarray(times, dtype=np.float64).reshape(-1)
         self.species = tuple(species)
         if runs < 1:
@@ -332,7 +342,7 @@ class TimeCourseAccumulator:
         """Runs kept for the quantiles."""
         return int(self._filled.size)
 
-    def add(self, index: int, counts) -> None:
+    def add(self, index: int, counts: ArrayLike) -> None:
         """Take run ``index``'s counts, shape (n_times, n_species)."""
         counts = np.asarray(counts)
         if counts.shape != self._shape:
@@ -393,7 +403,7 @@ def _reservoir_stream(rng) -> np.random.SeedSequence:
     return keyed_stream(rng, _RESERVOIR_KEY)
 
 
-def time_course_of_counts(times, counts, species, *,
+def time_course_of_counts(times: ArrayLike, counts: ArrayLike, species: Sequence[str], *,
                           time_units: str = "network time") -> TimeCourse:
     """The time course of counts already in memory.
 

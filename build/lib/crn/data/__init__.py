@@ -1,0 +1,1 @@
+"""Model files that ship with the package (the demo's droplet assay)."""

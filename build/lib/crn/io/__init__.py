@@ -1,0 +1,1 @@
+"""Reading and writing files: model files, exports and imports."""

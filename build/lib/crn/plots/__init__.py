@@ -1,0 +1,1 @@
+"""Figures, one module per topic; matplotlib is imported inside the functions."""
