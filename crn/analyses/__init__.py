@@ -39,6 +39,7 @@ _HOME = {
     "fuel_for_time": "design_questions",
     "implementation_copies": "design_questions",
     "leak_tolerance": "design_questions",
+    "leak_tolerances": "design_questions",
     "risk_floor": "design_questions",
     "runs_for_risk": "design_questions",
     "Diagnosis": "implemented",

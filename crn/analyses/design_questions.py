@@ -36,7 +36,7 @@ if TYPE_CHECKING:
     from crn.core.types import SeedLike
     from crn.dna.parameters import DnaParameters
 
-__all__ = ["FuelAnswer", "fuel_for_time", "LeakAnswer", "leak_tolerance",
+__all__ = ["FuelAnswer", "fuel_for_time", "LeakAnswer", "leak_tolerance", "leak_tolerances",
            "ImplementationCopies", "implementation_copies", "LoadedCells", "risk_floor",
            "runs_for_risk"]
 
@@ -364,6 +364,36 @@ class LoadedCells:
             volume = int(n) / (float(mean.concentration) * AVOGADRO)
         params = dataclasses.replace(mean, fuel=mean.fuel_molar, fuel_check=False)
         return dataclasses.replace(cells, params=params, volume_liters=volume)
+
+
+def leak_tolerances(formal_cells: Callable[[int, int], Network], cells, scheme: str,
+                    params: DnaParameters, *, risk: float = 0.01, runs_max: int = 1000,
+                    rng: SeedLike = None, until: float | None = None,
+                    progress: Callable[[int], None] | None = None) -> list[LeakAnswer]:
+    """The leak tolerance of every cell of a regime map, in the map's order.
+
+    Parameters
+    ----------
+    formal_cells : callable ``(n, gap) -> Network``
+        Builder of the formal cells.
+    cells : iterable of objects with ``n`` and ``gap``
+        The cells, e.g. ``RegimeMap.cells``.
+    scheme, params, risk, runs_max, rng, until :
+        As :func:`leak_tolerance` takes them; every cell uses the same ``rng``.
+    progress : callable, optional
+        Called with the number of cells done after each one.
+
+    Returns
+    -------
+    list of LeakAnswer
+    """
+    answers = []
+    for i, cell in enumerate(cells):
+        answers.append(leak_tolerance(formal_cells, cell.n, cell.gap, scheme, params, risk=risk,
+                                      runs_max=runs_max, rng=rng, until=until))
+        if progress is not None:
+            progress(i + 1)
+    return answers
 
 
 @dataclass(frozen=True)

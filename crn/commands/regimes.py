@@ -229,19 +229,13 @@ def regimes(  # noqa: C901 (one branch over the limit after merging; split pendi
 
 def _leak_tolerances(formal_networks, result, settings, *, risk, runs_max, until, entropy,
                      as_json):
-    from crn.analyses.design_questions import leak_tolerance
+    from crn.analyses.design_questions import leak_tolerances
 
-    scheme, params = settings
-    out = []
     with progress_bar("leak tolerance", len(result.cells), enabled=not as_json) as update:
-        for i, cell in enumerate(result.cells):
-            answer = leak_tolerance(formal_networks, cell.n, cell.gap, scheme, params, risk=risk,
-                                    runs_max=runs_max, rng=entropy, until=until)
-            out.append({"n": cell.n, "gap": cell.gap, "leak": answer.leak,
-                        "failing": answer.failing, "horizon": answer.horizon,
-                        "tried": list(answer.tried)})
-            update(i + 1)
-    return out
+        answers = leak_tolerances(formal_networks, result.cells, *settings, risk=risk,
+                                  runs_max=runs_max, rng=entropy, until=until, progress=update)
+    return [{"n": a.n, "gap": a.gap, "leak": a.leak, "failing": a.failing,
+             "horizon": a.horizon, "tried": list(a.tried)} for a in answers]
 
 
 def _tolerance_text(tolerances, risk) -> str:
