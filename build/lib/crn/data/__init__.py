@@ -1,1 +1,0 @@
-"""Model files that ship with the package (the demo's droplet assay)."""

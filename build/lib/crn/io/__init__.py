@@ -1,1 +1,0 @@
-"""Reading and writing files: model files, exports and imports."""

@@ -1,1 +1,0 @@
-"""Figures, one module per topic; matplotlib is imported inside the functions."""
