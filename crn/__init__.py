@@ -6,8 +6,8 @@ line's start-up) costs no numpy, scipy or numba import.
 
 import sys
 import types
-from importlib import import_module
 
+from crn._lazy import lazy_exports
 from crn._moved import install as _install_moved_names
 
 _install_moved_names()
@@ -45,13 +45,7 @@ _HOME = {
 __all__ = sorted(_HOME)
 
 
-def __getattr__(name):
-    home = _HOME.get(name)
-    if home is None:
-        raise AttributeError(f"module 'crn' has no attribute {name!r}")
-    value = getattr(import_module(f".{home}", __name__), name)
-    globals()[name] = value
-    return value
+__getattr__, __dir__ = lazy_exports(__name__, _HOME)
 
 
 class _Package(types.ModuleType):
@@ -66,7 +60,3 @@ class _Package(types.ModuleType):
 
 
 sys.modules[__name__].__class__ = _Package
-
-
-def __dir__():
-    return sorted(set(globals()) | set(__all__))

@@ -7,7 +7,8 @@ Every public name of the layer's modules is importable from here; a module is
 imported only when one of its names is first used, so importing the layer is free.
 """
 
-from importlib import import_module
+
+from crn._lazy import lazy_exports
 
 #: Public name -> module of this layer that defines it.
 _HOME = {
@@ -99,14 +100,4 @@ _HOME = {
 __all__ = sorted(_HOME)
 
 
-def __getattr__(name):
-    home = _HOME.get(name)
-    if home is None:
-        raise AttributeError(f"module {__name__!r} has no attribute {name!r}")
-    value = getattr(import_module(f".{home}", __name__), name)
-    globals()[name] = value
-    return value
-
-
-def __dir__():
-    return sorted(set(globals()) | set(__all__))
+__getattr__, __dir__ = lazy_exports(__name__, _HOME)

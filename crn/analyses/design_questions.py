@@ -18,7 +18,7 @@ from __future__ import annotations
 
 import dataclasses
 import math
-from collections.abc import Callable
+from collections.abc import Callable, Iterable
 from dataclasses import dataclass, field
 from typing import TYPE_CHECKING, Any
 
@@ -366,7 +366,7 @@ class LoadedCells:
         return dataclasses.replace(cells, params=params, volume_liters=volume)
 
 
-def leak_tolerances(formal_cells: Callable[[int, int], Network], cells, scheme: str,
+def leak_tolerances(formal_cells: Callable[[int, int], Network], cells: Iterable[Any], scheme: str,
                     params: DnaParameters, *, risk: float = 0.01, runs_max: int = 1000,
                     rng: SeedLike = None, until: float | None = None,
                     progress: Callable[[int], None] | None = None) -> list[LeakAnswer]:

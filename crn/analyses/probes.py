@@ -9,7 +9,7 @@ imported when first used.
 from __future__ import annotations
 
 import math
-from collections.abc import Callable
+from collections.abc import Callable, Sequence
 from dataclasses import dataclass
 from functools import lru_cache
 from typing import TYPE_CHECKING
@@ -335,7 +335,7 @@ def _spend_one_side(schedule, threshold: float, a: float) -> list[float]:
     return [need + spare / looks for need in needs]
 
 
-def look_levels(schedule, threshold: float, confidence: float = 0.95,
+def look_levels(schedule: Sequence[int], threshold: float, confidence: float = 0.95,
                 favour: str | None = None) -> tuple[tuple[float, float], ...]:
     """One-sided error levels ``(lower, upper)`` of the interval at each look.
 

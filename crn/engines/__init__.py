@@ -13,6 +13,8 @@ from __future__ import annotations
 
 from importlib import import_module
 
+from crn._lazy import lazy_exports
+
 __all__ = ["ENGINES", "LazyEngine", "get_engine", "Trajectory", "Engine", "check_horizon",
            "NetworkCache"]
 
@@ -85,14 +87,4 @@ _HOME = {"Trajectory": "base", "Engine": "base", "check_horizon": "base",
          "NetworkCache": "base"}
 
 
-def __getattr__(name):
-    home = _HOME.get(name)
-    if home is None:
-        raise AttributeError(f"module {__name__!r} has no attribute {name!r}")
-    value = getattr(import_module(f".{home}", __name__), name)
-    globals()[name] = value
-    return value
-
-
-def __dir__():
-    return sorted(set(globals()) | set(__all__))
+__getattr__, __dir__ = lazy_exports(__name__, _HOME)

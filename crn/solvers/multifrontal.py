@@ -486,14 +486,15 @@ def _solve(x, sep, hi, bptr, bnd, fbase, values, pivots):
 class LatticeFactor:
     """LU factors of a matrix in nested-dissection order; :meth:`solve` solves with them."""
 
-    def __init__(self, layout: DissectionPlan, fbase, values, pivots):
+    def __init__(self, layout: DissectionPlan, fbase: np.ndarray, values: np.ndarray,
+                 pivots: np.ndarray) -> None:
         self.plan = layout
         self._fbase = fbase
         self._values = values
         self._pivots = pivots
         self.shape = (layout.order.shape[0],) * 2
 
-    def solve(self, rhs) -> np.ndarray:
+    def solve(self, rhs: np.ndarray) -> np.ndarray:
         """Solve ``A x = rhs`` for rhs of shape (n,) or (n, k)."""
         rhs = np.asarray(rhs, dtype=np.float64)
         vector = rhs.ndim == 1
