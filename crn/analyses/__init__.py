@@ -49,6 +49,7 @@ _HOME = {
     "decision_network": "implemented",
     "diagnose": "implemented",
     "formal_horizon": "implemented",
+    "fuel_left_at_horizon": "implemented",
     "fuel_left_ode": "implemented",
     "fuel_left_runs": "implemented",
     "held_labels": "implemented",

@@ -34,10 +34,11 @@ if TYPE_CHECKING:
     from crn.dna.parameters import DnaParameters
     from crn.solvers.ode import MeanFieldResult
     from crn.solvers.simulate import Ensemble
+    from crn.solvers.time_course import TimeCourse
 
 __all__ = ["ImplementedCells", "implementation_of", "decision_network", "held_labels",
            "held_matrix",
-           "fuel_left_ode", "fuel_left_runs",
+           "fuel_left_ode", "fuel_left_runs", "fuel_left_at_horizon",
            "formal_horizon", "Diagnosis", "diagnose", "FUEL_OUT"]
 
 #: A fuel species with less than this fraction left counts as run out.
@@ -240,6 +241,34 @@ def fuel_left_runs(impl: Implementation, ensemble: Ensemble) -> dict[str, float]
         return {}
     last = ensemble.counts[:, -1, :].astype(np.float64).mean(axis=0)
     return impl.fuel_remaining(last)
+
+
+def fuel_left_at_horizon(impl: Implementation, ensemble: Ensemble,
+                         course: TimeCourse | None = None) -> dict[str, float]:
+    """Fraction of each fuel species left at the runs' horizon, from the runs or their time course.
+
+    From the runs' own last samples when the ensemble has any
+    (:func:`fuel_left_runs`); else from the mean counts of the runs' time course
+    at its last sample time. Either way the mean over the runs of count /
+    initial count.
+
+    Parameters
+    ----------
+    impl : crn.dna.Implementation
+    ensemble : crn.solvers.simulate.Ensemble
+        Runs of ``impl.network``.
+    course : crn.solvers.time_course.TimeCourse, optional
+        The runs' time course in counts, used when the ensemble has no sample.
+
+    Returns
+    -------
+    dict of str to float
+        Fuel species -> mean remaining fraction; empty when neither source has a sample.
+    """
+    left = fuel_left_runs(impl, ensemble)
+    if not left and course is not None and len(course.times):
+        left = impl.fuel_remaining(np.asarray(course.mean[-1], dtype=np.float64))
+    return left
 
 
 @dataclass(frozen=True)

@@ -43,16 +43,6 @@ def _write_csv(path, ensemble, course, interrupted: bool) -> None:
         write_runs_csv(ensemble, path, note="interrupted" if interrupted else None)
 
 
-def _fuel_left(impl, ensemble, course) -> dict:
-    """Fraction of each fuel left at the horizon: from the runs, else from the time course."""
-    from crn.analyses.implemented import fuel_left_runs
-
-    fuel_left = fuel_left_runs(impl, ensemble)
-    if not fuel_left and course is not None:
-        fuel_left = impl.fuel_remaining(course.mean[-1])
-    return fuel_left
-
-
 @click.command("ssa")
 @model_argument
 @set_option
@@ -134,7 +124,11 @@ def ssa(model, sets, runs, until, engine, workers, cluster, max_memory, force, s
         _write_csv(csv_path, ensemble, course if accumulator is not None else None, interrupted)
     if plot_path is not None and course is not None:
         _plot(net, course, loaded.name, plot_path)
-    fuel_left = None if impl is None else _fuel_left(impl, ensemble, course)
+    fuel_left = None
+    if impl is not None:
+        from crn.analyses.implemented import fuel_left_at_horizon
+
+        fuel_left = fuel_left_at_horizon(impl, ensemble, course)
     if as_json:
         summary = ensemble_summary(ensemble, loaded.name)
         if course is not None and every is not None:
