@@ -129,3 +129,81 @@ def test_sampled_needs_the_continuous_solution():
     assert at.values[0] == pytest.approx([42 / 80, 38 / 80, 0.0])
     assert at.values[-1] == pytest.approx(dense.values[-1], abs=1e-10)
     assert math.isclose(at.values[1].sum(), 1.0, abs_tol=1e-9)  # agents are conserved
+
+
+# -- several networks on one window: the formal network and its DNA implementation ----------
+
+
+def _implementation(n=40, gap=10):
+    from crn.analyses.implemented import implementation_of
+    from crn.dna import DnaParameters
+
+    formal = _am(n, gap)
+    # 10 nM of signal, fuel at 50 nM, 1e5 /M/s per unit of formal rate (the DNA defaults)
+    return formal, implementation_of(formal, "ssw", DnaParameters(rate=1e5, concentration=1e-8,
+                                                                  fuel=5e-8))
+
+
+def test_windows_share_one_grid_and_keep_the_state_at_the_consensus_stop():
+    from crn.analyses.compare import mean_field_windows
+
+    formal, impl = _implementation()
+    horizon = default_horizon(formal)
+    windows = mean_field_windows([formal, impl.network])
+    stopped = [solve_mean_field(net, until=horizon) for net in (formal, impl.network)]
+    latest = max(s.consensus.time for s in stopped)
+    for window, stop in zip(windows, stopped, strict=True):
+        assert window.horizon == horizon
+        assert window.consensus.label == stop.consensus.label == "X"
+        assert window.consensus.time == pytest.approx(stop.consensus.time, rel=1e-9)
+        # derived: one grid, twice the later consensus time (the implementation's: its
+        # gates sequester signal and slow it down)
+        assert window.window == pytest.approx(2 * latest)
+        np.testing.assert_array_equal(window.times, windows[0].times)
+        # the state where a solve stopping at the consensus ends, within its tolerances
+        np.testing.assert_allclose(window.at_stop, stop.values[-1], rtol=1e-8, atol=1e-12)
+    assert windows[1].consensus.time > windows[0].consensus.time
+    single = mean_field_windows([formal])[0]  # alone, the formal window is its own
+    assert single.window == pytest.approx(2 * stopped[0].consensus.time)
+
+
+def test_compare_implement_fuel_is_that_of_a_separate_solve_stopping_at_consensus(capsys):
+    from crn.analyses.implemented import fuel_left_ode
+    from crn.cli import main
+
+    formal, impl = _implementation()
+    assert main(["compare", AM, "--set", "n=40", "--set", "gap=10", "--implement", "ssw",
+                 "--fuel", "50nM", "--runs", "4", "--seed", "1", "--workers", "1",
+                 "--json"]) == 0
+    obj = json.loads(capsys.readouterr().out)
+    # independent: the implementation's ODE solved on its own, stopping at its consensus
+    stopped = solve_mean_field(impl.network, until=default_horizon(formal))
+    expected = fuel_left_ode(impl, stopped)
+    assert min(expected.values()) < 0.9  # a figure that moves: some gate is well spent
+    assert set(obj["fuel"]) == set(expected) == set(obj["ode"]["fuel"])
+    for species, left in expected.items():
+        assert obj["fuel"][species] == pytest.approx(left, rel=1e-8, abs=1e-12)
+    assert obj["ode"]["time"] == pytest.approx(stopped.consensus.time, rel=1e-9)
+    formal_stop = solve_mean_field(formal, until=default_horizon(formal))
+    assert obj["formal_ode"]["time"] == pytest.approx(formal_stop.consensus.time, rel=1e-9)
+
+
+def test_compare_implement_solves_each_ode_once(monkeypatch):
+    import crn.solvers.ode as ode_module
+
+    formal, impl = _implementation()
+    calls = []
+    real = ode_module.solve_mean_field
+
+    def counted(net, **kwargs):
+        calls.append(net.species)
+        return real(net, **kwargs)
+
+    monkeypatch.setattr(ode_module, "solve_mean_field", counted)
+    result = CliRunner().invoke(cli, ["compare", AM, "--set", "n=40", "--set", "gap=10",
+                                      "--implement", "ssw", "--fuel", "50nM", "--runs", "4",
+                                      "--seed", "1", "--workers", "1"],
+                                catch_exceptions=False)
+    assert result.exit_code == 0, result.output
+    assert calls.count(formal.species) == 1
+    assert calls.count(impl.network.species) == 1

@@ -4,7 +4,9 @@
 consensus comes from that solve and the curves are read off its continuous
 solution on the sampled window (twice the ODE's consensus time). The runs are
 sampled on the same times; :func:`compare_runs` puts them beside the ODE, and
-:func:`compare_network` does both.
+:func:`compare_network` does both. :func:`mean_field_windows` does the same
+for several networks shown together (a formal network and its DNA
+implementation): one solve each, all sampled on one window.
 """
 
 from __future__ import annotations
@@ -26,7 +28,8 @@ if TYPE_CHECKING:
     from crn.solvers.simulate import Ensemble
 
 __all__ = ["Comparison", "MeanFieldWindow", "compare_network", "compare_runs", "compare_window",
-           "disagreement", "mean_field_window", "SAMPLES", "WINDOW_FACTOR"]
+           "disagreement", "mean_field_window", "mean_field_windows", "SAMPLES",
+           "WINDOW_FACTOR"]
 
 #: The sampled window is this many times the ODE's consensus time (capped at the horizon).
 WINDOW_FACTOR = 2.0
@@ -87,11 +90,16 @@ class MeanFieldWindow:
     ode : crn.solvers.ode.MeanFieldResult
         The solution at :attr:`times`, past the consensus (its ``consensus`` is
         :attr:`consensus`).
+    at_stop : ndarray of float64, shape (n_species,)
+        The state where a solve stopping at the first consensus ends: at the
+        consensus, else at the end of the solve (the horizon); in the ODE's
+        units (fractions or concentrations).
     """
 
     horizon: float
     consensus: RunOutcome
     ode: MeanFieldResult
+    at_stop: np.ndarray
 
     @property
     def times(self) -> np.ndarray:
@@ -102,6 +110,11 @@ class MeanFieldWindow:
     def window(self) -> float:
         """The last sample time."""
         return float(self.ode.times[-1])
+
+    @property
+    def counts_at_stop(self) -> np.ndarray:
+        """:attr:`at_stop` in molecules (times the ODE's molecules per unit)."""
+        return self.at_stop * float(self.ode.molecules_per_unit)
 
 
 def mean_field_window(net: Network, until: float | None = None,
@@ -120,19 +133,67 @@ def mean_field_window(net: Network, until: float | None = None,
     -------
     MeanFieldWindow
     """
-    from crn.solvers.ode import solve_mean_field
+    return mean_field_windows([net], until, samples)[0]
+
+
+def mean_field_windows(nets: Sequence[Network], until: float | None = None,
+                       samples: int = SAMPLES) -> list[MeanFieldWindow]:
+    """Solve each network's mean-field ODE once and sample all on one window.
+
+    The window is twice the latest of their consensus times (capped at the
+    horizon; the whole horizon when none reaches consensus), so the curves of
+    networks shown together (a formal network and its DNA implementation) share
+    their time axis.
+
+    Parameters
+    ----------
+    nets : sequence of Network
+        In the same time unit.
+    until : float, optional
+        Horizon of every solve; default :func:`crn.solvers.simulate.default_horizon`
+        of the first network.
+    samples : int, default SAMPLES
+        Equally spaced sample times from 0 to the window's end.
+
+    Returns
+    -------
+    list of MeanFieldWindow
+        One per network, in order.
+    """
     from crn.solvers.simulate import default_horizon
 
-    horizon = default_horizon(net) if until is None else float(until)
-    solved = solve_mean_field(net, until=horizon, stop_at_consensus=False, dense_output=True)
-    consensus = solved.consensus
-    if consensus.label is not None:
-        # what a solve stopping at the consensus reports: the label holds at that moment
-        consensus = replace(consensus, final_label=consensus.label, held=True)
-    window = compare_window(consensus.time, horizon)
-    ode = solved.sampled(np.linspace(0.0, window, samples))
-    ode = replace(ode, consensus=consensus, interpolant=None)
-    return MeanFieldWindow(horizon=horizon, consensus=consensus, ode=ode)
+    if not nets:
+        raise ValueError("`nets` must name at least one network")
+    horizon = default_horizon(nets[0]) if until is None else float(until)
+    solved = [_solve_to_horizon(net, horizon) for net in nets]
+    times_of = [consensus.time for _, consensus, _ in solved if consensus.time is not None]
+    window = compare_window(max(times_of) if times_of else None, horizon)
+    grid = np.linspace(0.0, window, samples)
+    return [MeanFieldWindow(horizon=horizon, consensus=consensus,
+                            ode=replace(result.sampled(grid), consensus=consensus,
+                                        interpolant=None),
+                            at_stop=at_stop)
+            for result, consensus, at_stop in solved]
+
+
+def _solve_to_horizon(net: Network, horizon: float):
+    """One solve to the horizon with its continuous solution: the result, the first
+    consensus as a solve stopping there reports it, and the state where that solve ends.
+    """
+    from crn.solvers.ode import initial_state, solve_mean_field
+
+    result = solve_mean_field(net, until=horizon, stop_at_consensus=False, dense_output=True)
+    consensus, time = result.consensus, result.consensus.time
+    if consensus.label is None or time is None:
+        at_stop = result.values[-1] if result.values.shape[0] else initial_state(net)
+        return result, consensus, np.asarray(at_stop, dtype=np.float64)
+    # what a solve stopping at the consensus reports: the label holds at that moment
+    consensus = replace(consensus, final_label=consensus.label, held=True)
+    if time == 0.0:
+        at_stop = initial_state(net)
+    else:
+        at_stop = result.sampled(np.array([float(time)])).values[0]
+    return result, consensus, np.asarray(at_stop, dtype=np.float64)
 
 
 @dataclass(frozen=True)

@@ -30,6 +30,7 @@ from crn.core.units import AVOGADRO
 from crn.dna.labels import held_matrix
 
 if TYPE_CHECKING:
+    from crn.analyses.compare import MeanFieldWindow
     from crn.dna.implementation import Implementation
     from crn.dna.parameters import DnaParameters
     from crn.solvers.ode import MeanFieldResult
@@ -38,7 +39,7 @@ if TYPE_CHECKING:
 
 __all__ = ["ImplementedCells", "implementation_of", "decision_network", "held_labels",
            "held_matrix",
-           "fuel_left_ode", "fuel_left_runs", "fuel_left_at_horizon",
+           "fuel_left_ode", "fuel_left_runs", "fuel_left_at_horizon", "fuel_left_at_decision",
            "formal_horizon", "Diagnosis", "diagnose", "FUEL_OUT"]
 
 #: A fuel species with less than this fraction left counts as run out.
@@ -221,6 +222,27 @@ def fuel_left_ode(impl: Implementation, result: MeanFieldResult) -> dict[str, fl
     last = values[-1] if values.shape[0] else np.asarray(impl.network.initial, dtype=np.float64)
     return impl.fuel_remaining(last * float(result.molecules_per_unit)
                                if values.shape[0] else last)
+
+
+def fuel_left_at_decision(impl: Implementation, window: MeanFieldWindow) -> dict[str, float]:
+    """Fraction of each fuel species left where the mean field of ``impl.network`` first decides.
+
+    The same figure as :func:`fuel_left_ode` of a solve stopping at the first
+    consensus (at the horizon when there is none), read from the one solve
+    behind a comparison window instead of a second solve.
+
+    Parameters
+    ----------
+    impl : crn.dna.Implementation
+    window : crn.analyses.compare.MeanFieldWindow
+        The window of ``impl.network`` (:func:`crn.analyses.compare.mean_field_windows`).
+
+    Returns
+    -------
+    dict of str to float
+        Fuel species -> remaining fraction (initial fuel 1).
+    """
+    return impl.fuel_remaining(window.counts_at_stop)
 
 
 def fuel_left_runs(impl: Implementation, ensemble: Ensemble) -> dict[str, float]:

@@ -5,10 +5,7 @@ from __future__ import annotations
 from types import SimpleNamespace
 
 import click
-import numpy as np
 
-from crn.analyses.compare import SAMPLES as _SAMPLES
-from crn.analyses.compare import compare_window, disagreement
 from crn.commands.ensembles import ensemble_summary, finish_interrupted, run_ensemble
 from crn.commands.implemented_ode import save_implementation_plot
 from crn.commands.implementing import format_fuel, implement_network, implementation_json
@@ -20,32 +17,26 @@ __all__ = ["compare_implemented"]
 def compare_implemented(loaded, settings, *, runs, until, engine, workers, cluster, seed,
                         as_json, plot_path) -> None:
     """Run and print the three-way comparison (the ``compare --implement`` command)."""
-    from crn.analyses.implemented import fuel_left_ode, fuel_left_runs
+    from crn.analyses.compare import disagreement, mean_field_windows
+    from crn.analyses.implemented import fuel_left_at_decision, fuel_left_runs
     from crn.commands.ode import mean_field_json
     from crn.core.stats import wilson_interval
-    from crn.solvers.ode import solve_mean_field
-    from crn.solvers.simulate import default_horizon
 
     formal = loaded.network
     impl = implement_network(formal, settings)
     net = impl.network
-    horizon = default_horizon(formal) if until is None else float(until)
-    formal_first = solve_mean_field(formal, until=horizon)
-    impl_first = solve_mean_field(net, until=horizon)
-    times_of = [t for t in (formal_first.consensus.time, impl_first.consensus.time)
-                if t is not None]
-    window = compare_window(max(times_of) if times_of else None, horizon)
-    times = np.linspace(0.0, window, _SAMPLES)
-    formal_ode = solve_mean_field(formal, times=times, until=window, stop_at_consensus=False)
-    impl_ode = solve_mean_field(net, times=times, until=window, stop_at_consensus=False)
+    # one solve each, to the formal network's horizon, sampled on one shared window
+    formal_window, impl_window = mean_field_windows([formal, net], until)
+    horizon = formal_window.horizon
+    formal_ode, impl_ode = formal_window.ode, impl_window.ode
     ensemble, interrupted = run_ensemble(net, runs=runs, until=horizon, engine=engine,
                                          seed=seed, workers=workers, cluster=cluster,
-                                         as_json=as_json, times=times)
-    label, time = impl_first.consensus.label, impl_first.consensus.time
-    formal_label, formal_time = formal_first.consensus.label, formal_first.consensus.time
+                                         as_json=as_json, times=formal_window.times)
+    label, time = impl_window.consensus.label, impl_window.consensus.time
+    formal_label, formal_time = formal_window.consensus.label, formal_window.consensus.time
     differ = disagreement(ensemble.labels, label)
     differ_formal = disagreement(ensemble.labels, formal_label)
-    ode_fuel = fuel_left_ode(impl, impl_first)
+    ode_fuel = fuel_left_at_decision(impl, impl_window)
     # the runs' fuel at the end of the sampled window (runs go on to the horizon)
     run_fuel = fuel_left_runs(impl, ensemble)
     if plot_path is not None and ensemble.runs:
@@ -55,9 +46,9 @@ def compare_implemented(loaded, settings, *, runs, until, engine, workers, clust
                   f"{ensemble.runs} exact stochastic runs of it")
     if as_json:
         impl_obj = mean_field_json(SimpleNamespace(name=loaded.name, network=net), impl_ode,
-                                   None, consensus=impl_first.consensus)
+                                   None, consensus=impl_window.consensus)
         impl_obj.update(label=label, time=time, fuel=ode_fuel)
-        formal_obj = mean_field_json(loaded, formal_ode, None, consensus=formal_first.consensus)
+        formal_obj = mean_field_json(loaded, formal_ode, None, consensus=formal_window.consensus)
         formal_obj.update(label=formal_label, time=formal_time)
         ssa_obj = ensemble_summary(ensemble, loaded.name)
         ssa_obj["fuel"] = run_fuel
