@@ -68,6 +68,14 @@ def test_verify_answers_the_same_under_both_spellings():
     assert new.stderr == "" and old.stderr.count("\n") == 1
 
 
+def test_verify_json_names_the_largest_n_n_max_and_keeps_max_n_for_a_release():
+    result = CliRunner().invoke(cli, ["verify", EM, "--n-max", "4", "--json"])
+    assert result.exit_code == 0, result.output
+    obj = json.loads(result.stdout)
+    assert obj["n_max"] == 4  # the option's value
+    assert obj["max_n"] == 4  # deprecated duplicate, removed in the next release
+
+
 def test_regimes_answers_the_same_under_both_spellings():
     runner = CliRunner()
     base = ["regimes", AM, "--n", "20", "--method", "exact", "--seed", "1", "--json"]

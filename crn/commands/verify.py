@@ -75,9 +75,10 @@ def verify(model, sets, n_max, max_states, max_memory, force, as_json):
         stop_interrupted(f"after n = 2..{checked[0] + 1} of 2..{n_max} (no counterexample "
                          "among them)" if checked[0] else "before n = 2 was checked")
     if as_json:
+        # max_n: the key's earlier name, kept beside n_max for one release (deprecated)
         emit_json({"checked": result.checked, "correct": result.correct,
                    "counterexample": result.counterexample, "ties": result.ties,
-                   "max_n": result.max_n})
+                   "n_max": result.max_n, "max_n": result.max_n})
         _exit_status(result)
         return
     name = loaded.network.name
