@@ -119,50 +119,33 @@ def _fmt(value, spec=".3g"):
 @click.option("--leak-tolerance", "with_leak_tolerance", is_flag=True,
               help="With --implement: for each cell, the largest leak rate constant at which "
                    "it stays ok with the correct decision (many more runs).")
-def regimes(  # noqa: C901 (one branch over the limit after merging; split pending)
-        model, sets, n_list, gap_list, fraction_list, risk, until, runs_max, time_factor,
-        method, plot_path, csv_path, out_dir, resume, workers, cluster, max_memory, force,
-        seed, as_json, implement, fuel, max_rate, toehold, leak, rate, concentration,
-        with_leak_tolerance, full_network):
+def regimes(model, sets, n_list, gap_list, fraction_list, risk, until, runs_max, time_factor,
+            method, plot_path, csv_path, out_dir, resume, workers, cluster, max_memory, force,
+            seed, as_json, implement, fuel, max_rate, toehold, leak, rate, concentration,
+            with_leak_tolerance, full_network):
     """Sweep MODEL over populations n and gaps: for each cell, the ODE's decision, the
     probability that a stochastic run disagrees with it (95% interval, simultaneous over the
     sequential looks (Clopper-Pearson, Bonferroni)), the flag, the times;
     and the fitted growth of the critical gap with n. With --implement every cell runs on
     the DNA implementation of its network (same time unit, decisions from the signals)."""
-    from crn.analyses.cells import cell_networks
-    from crn.analyses.regimes import plan_cells, regime_map
+    from crn.analyses.regimes import DEFAULT_EXACT_MAX, plan_cells
     from crn.io.regime_store import open_regime_sweep, regime_sweep_parameters
+    from crn.runtime.guards import regime_map_estimate
 
     settings = dna_settings(implement, fuel=fuel, max_rate=max_rate, toehold=toehold,
                             leak=leak, rate=rate, concentration=concentration)
-    if with_leak_tolerance and settings is None:
-        raise CRNError("--leak-tolerance needs --implement SCHEME")
-    if full_network and settings is None:
-        raise CRNError("--full-network needs --implement SCHEME")
-    if (gap_list is None) == (fraction_list is None):
-        raise CRNError("give exactly one of --gaps and --gap-fractions")
-    if workers and cluster:
-        raise CRNError("give --workers or --cluster, not both")
-    if resume and not out_dir:
-        raise CRNError("--resume needs --out DIR (where the results file is)")
+    _check_options(settings, with_leak_tolerance=with_leak_tolerance,
+                   full_network=full_network, gaps_given=gap_list is not None,
+                   fractions_given=fraction_list is not None, workers=workers, cluster=cluster,
+                   resume=resume, out_dir=out_dir)
     ns = parse_int_list(n_list, "--n")
     gaps = None if gap_list is None else parse_int_list(gap_list, "--gaps")
     fractions = None if fraction_list is None else _gap_fractions(fraction_list)
     cells, skipped = plan_cells(ns, gaps, fractions)
     model_obj = load(model, sets)
-    networks = cell_networks(model_obj)
-    formal_networks = networks
-    if settings is not None:
-        from crn.analyses.implemented import ImplementedCells
-        from crn.commands.implementing import implement_network
-
-        networks = ImplementedCells(networks, *settings, full_network=full_network)
-        implement_network(model_obj.network, settings)  # parameter errors before any cell
+    formal_networks, networks = _cell_builders(model_obj, settings, full_network)
     for n, g in skipped:
         click.echo(f"crn: skipping n={n}, gap={g}: (n + gap) / 2 is not whole", err=True)
-    from crn.analyses.regimes import DEFAULT_EXACT_MAX
-    from crn.runtime.guards import regime_map_estimate
-
     guard(regime_map_estimate(networks, cells, runs_max=runs_max, until=until, method=method,
                               exact_max=DEFAULT_EXACT_MAX, workers=workers or 1),
           max_memory, force, announce=not as_json)
@@ -174,7 +157,68 @@ def regimes(  # noqa: C901 (one branch over the limit after merging; split pendi
             until=until, runs_max=runs_max, time_factor=time_factor, method=method,
             implementation=settings, full_network=full_network)
     sweep = open_regime_sweep(out_dir, parameters, seed=seed, resume=resume)
-    entropy = sweep.seed_entropy
+    if seed is None and not as_json:
+        seed_notice(sweep.seed_entropy)
+    result = _run_sweep(networks, ns, sweep, len(cells), as_json, gaps=gaps,
+                        gap_fractions=fractions, risk=risk, until=until, runs_max=runs_max,
+                        time_factor=time_factor, method=method, workers=workers,
+                        cluster=cluster)
+    payload = result_json(model_obj.name, result)
+    tolerances = None
+    if settings is not None:
+        payload["implementation"] = _implementation_json(networks, settings, result)
+        if with_leak_tolerance:
+            tolerances = _leak_tolerances(formal_networks, result, settings, risk=risk,
+                                          runs_max=runs_max, until=until,
+                                          entropy=sweep.seed_entropy, as_json=as_json)
+            payload["leak_tolerance"] = tolerances
+    _write_outputs(result, payload, model_obj.name, out_dir=out_dir, csv_path=csv_path,
+                   plot_path=plot_path)
+    if as_json:
+        emit_json(payload)
+        return
+    click.echo(_text(model_obj.name, result))
+    if settings is not None:
+        click.echo(_implementation_text(settings, payload["implementation"]))
+    if tolerances is not None:
+        click.echo(_tolerance_text(tolerances, risk))
+
+
+def _check_options(settings, *, with_leak_tolerance, full_network, gaps_given, fractions_given,
+                   workers, cluster, resume, out_dir) -> None:
+    """The option combinations ``regimes`` refuses, each as a one-line error."""
+    if with_leak_tolerance and settings is None:
+        raise CRNError("--leak-tolerance needs --implement SCHEME")
+    if full_network and settings is None:
+        raise CRNError("--full-network needs --implement SCHEME")
+    if gaps_given == fractions_given:
+        raise CRNError("give exactly one of --gaps and --gap-fractions")
+    if workers and cluster:
+        raise CRNError("give --workers or --cluster, not both")
+    if resume and not out_dir:
+        raise CRNError("--resume needs --out DIR (where the results file is)")
+
+
+def _cell_builders(model_obj, settings, full_network):
+    """The formal cell builder and the one the sweep runs (the implementation's with
+    --implement; its parameter errors raised before any cell)."""
+    from crn.analyses.cells import cell_networks
+
+    formal = cell_networks(model_obj)
+    if settings is None:
+        return formal, formal
+    from crn.analyses.implemented import ImplementedCells
+    from crn.commands.implementing import implement_network
+
+    networks = ImplementedCells(formal, *settings, full_network=full_network)
+    implement_network(model_obj.network, settings)  # parameter errors before any cell
+    return formal, networks
+
+
+def _run_sweep(networks, ns, sweep, total: int, as_json: bool, **options):
+    """The regime map, each cell recorded as it finishes; Ctrl-C reports the finished cells."""
+    from crn.analyses.regimes import regime_map
+
     kill_after = os.environ.get(KILL_HOOK)
 
     def on_cell(cell):
@@ -182,30 +226,33 @@ def regimes(  # noqa: C901 (one branch over the limit after merging; split pendi
         if (sweep.store is not None and kill_after is not None
                 and len(sweep.store.finished) >= int(kill_after)):
             os.kill(os.getpid(), signal.SIGKILL)
-    if seed is None and not as_json:
-        seed_notice(entropy)
 
     try:
-        with progress_bar("cells", len(cells), enabled=not as_json) as update:
-            result = regime_map(networks, ns, gaps=gaps, gap_fractions=fractions, risk=risk,
-                                until=until, runs_max=runs_max, time_factor=time_factor,
-                                method=method, rng=entropy, workers=workers, cluster=cluster,
-                                done=sweep.done, on_cell=on_cell, progress=update)
+        with progress_bar("cells", total, enabled=not as_json) as update:
+            return regime_map(networks, ns, rng=sweep.seed_entropy, done=sweep.done,
+                              on_cell=on_cell, progress=update, **options)
     except KeyboardInterrupt:
-        _report_interrupted(sweep.finished(), len(cells), sweep.path)
+        _report_interrupted(sweep.finished(), total, sweep.path)
+        raise  # not reached: the report exits
+
+
+def _implementation_json(networks, settings, result) -> dict:
+    scheme, params = settings
+    return {"scheme": scheme, "parameters": params.as_dict(),
+            "stochastic_model": networks.stochastic_models(
+                [(c.n, c.gap) for c in result.cells if c.method == "stochastic"])}
+
+
+def _implementation_text(settings, implementation: dict) -> str:
+    scheme, params = settings
+    return (f"(cells run on the {scheme} DNA implementation; times in the formal network's "
+            f"unit = {params.seconds_per_time_unit:.4g} s at the given concentration)\n"
+            + stochastic_model_text(implementation["stochastic_model"]))
+
+
+def _write_outputs(result, payload, name, *, out_dir, csv_path, plot_path) -> None:
+    """The final table and JSON in --out, the --csv table and the --plot figure."""
     table = table_csv(result.cells)
-    payload = result_json(model_obj.name, result)
-    tolerances = None
-    if settings is not None:
-        payload["implementation"] = {"scheme": settings[0], "parameters": settings[1].as_dict(),
-                                     "stochastic_model": networks.stochastic_models(
-                                         [(c.n, c.gap) for c in result.cells
-                                          if c.method == "stochastic"])}
-        if with_leak_tolerance:
-            tolerances = _leak_tolerances(formal_networks, result, settings, risk=risk,
-                                          runs_max=runs_max, until=until, entropy=entropy,
-                                          as_json=as_json)
-            payload["leak_tolerance"] = tolerances
     if out_dir:
         write_atomic(Path(out_dir) / "regimes.csv", table)
         write_atomic(Path(out_dir) / "regimes.json",
@@ -213,18 +260,7 @@ def regimes(  # noqa: C901 (one branch over the limit after merging; split pendi
     if csv_path:
         write_atomic(csv_path, table)
     if plot_path:
-        _save_plot(result, plot_path, model_obj.name)
-    if as_json:
-        emit_json(payload)
-        return
-    click.echo(_text(model_obj.name, result))
-    if settings is not None:
-        click.echo(f"(cells run on the {settings[0]} DNA implementation; times in the formal "
-                   f"network's unit = {settings[1].seconds_per_time_unit:.4g} s at the given "
-                   f"concentration)")
-        click.echo(stochastic_model_text(payload["implementation"]["stochastic_model"]))
-    if tolerances is not None:
-        click.echo(_tolerance_text(tolerances, risk))
+        _save_plot(result, plot_path, name)
 
 
 def _leak_tolerances(formal_networks, result, settings, *, risk, runs_max, until, entropy,
