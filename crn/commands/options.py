@@ -74,37 +74,42 @@ class RenamedOption(click.Option):
         return super().consume_value(ctx, opts)
 
 
-def model_argument(func):
-    """Add the ``MODEL`` argument (path of a model file) to a click command.
+_DECORATOR_DOC = """Add {adds} to a click command.
 
-    Parameters
-    ----------
-    func : callable
-        The command function to decorate.
+Parameters
+----------
+func : callable
+    The command function to decorate.
 
-    Returns
-    -------
-    callable
-        ``func`` with the argument, passed to it as ``model``.
-    """
-    return click.argument("model", type=click.Path(dir_okay=False))(func)
+Returns
+-------
+callable
+    ``func`` with {them}, passed to it as {passed}.
+"""
 
 
-def set_option(func):
-    """Add the repeatable ``--set NAME=VALUE`` option to a click command.
+def _decorator(name: str, adds: str, passed: str, *params):
+    """A command decorator applying click ``params`` (the first one outermost, so first in
+    the help), documented as adding ``adds`` passed as ``passed``."""
+    def decorate(func):
+        for param in reversed(params):
+            func = param(func)
+        return func
 
-    Parameters
-    ----------
-    func : callable
-        The command function to decorate.
+    decorate.__name__ = decorate.__qualname__ = name
+    decorate.__doc__ = _DECORATOR_DOC.format(adds=adds, passed=passed,
+                                             them="them" if len(params) > 1 else "it")
+    return decorate
 
-    Returns
-    -------
-    callable
-        ``func`` with the option, passed to it as ``sets`` (tuple of str).
-    """
-    return click.option("--set", "sets", multiple=True, metavar="NAME=VALUE",
-                        help="Override a parameter of the model (repeatable).")(func)
+
+model_argument = _decorator(
+    "model_argument", "the ``MODEL`` argument (path of a model file)", "``model``",
+    click.argument("model", type=click.Path(dir_okay=False)))
+
+set_option = _decorator(
+    "set_option", "the repeatable ``--set NAME=VALUE`` option", "``sets`` (tuple of str)",
+    click.option("--set", "sets", multiple=True, metavar="NAME=VALUE",
+                 help="Override a parameter of the model (repeatable)."))
 
 
 def seed_option(func=None, *, workers: bool = True):
@@ -146,18 +151,11 @@ def seed_notice(entropy: int) -> None:
 
 
 def lab_time_options(func):
-    """Add ``--rate`` and ``--concentration`` (text, default None), which give time in minutes.
+    """Add ``--rate`` and ``--concentration`` (text, default None), which give time in minutes,
+    to the click command ``func`` and return it.
 
-    Parameters
-    ----------
-    func : callable
-        The command function to decorate.
-
-    Returns
-    -------
-    callable
-        ``func`` with the options, passed to it as ``rate`` and ``concentration``
-        (str or None); :func:`seconds_per_time` turns them into a time unit.
+    They are passed as ``rate`` and ``concentration`` (str or None);
+    :func:`seconds_per_time` turns them into a time unit.
     """
     # a command that already has them (from dna_options) keeps its own: one option, one name
     present = {param.name for param in getattr(func, "__click_params__", ())}
@@ -210,21 +208,10 @@ def seconds_per_time(net, rate: str | None, concentration: str | None) -> float 
     return 1.0 / (parse_rate_constant(rate) * parse_concentration(concentration))
 
 
-def json_option(func):
-    """Add the ``--json`` flag to a click command.
-
-    Parameters
-    ----------
-    func : callable
-        The command function to decorate.
-
-    Returns
-    -------
-    callable
-        ``func`` with the flag, passed to it as ``as_json`` (bool).
-    """
-    return click.option("--json", "as_json", is_flag=True,
-                        help="Print one JSON object on standard output instead of tables.")(func)
+json_option = _decorator(
+    "json_option", "the ``--json`` flag", "``as_json`` (bool)",
+    click.option("--json", "as_json", is_flag=True,
+                 help="Print one JSON object on standard output instead of tables."))
 
 
 def load(model: str, sets):
@@ -606,41 +593,20 @@ def build_implementation(formal, scheme: str, params, option: str = "--scheme"):
             raise CRNError(f"{option} {scheme}: {err}") from None
 
 
-def every_option(func):
-    """Add ``--every DT`` (sample interval of a time course, default None) to a click command.
+every_option = _decorator(
+    "every_option", "``--every DT`` (sample interval of a time course, default None)",
+    "``every`` (float or None)",
+    click.option("--every", type=float, default=None, metavar="DT",
+                 help="Record a time course every DT time units up to --until and report it "
+                      "(mean, sd, 5% and 95% quantiles per species)."))
 
-    Parameters
-    ----------
-    func : callable
-        The command function to decorate.
+_FORCE = click.option("--force", is_flag=True,
+                      help="Go ahead even past a limit: more estimated memory than "
+                           "--max-memory, more than a day of estimated work, more than "
+                           "1,000,000 sample times.")
 
-    Returns
-    -------
-    callable
-        ``func`` with the option, passed to it as ``every`` (float or None).
-    """
-    return click.option("--every", type=float, default=None, metavar="DT",
-                        help="Record a time course every DT time units up to --until and "
-                             "report it (mean, sd, 5% and 95% quantiles per species).")(func)
-
-
-def force_option(func):
-    """Add the ``--force`` flag (go ahead past a size limit) to a click command.
-
-    Parameters
-    ----------
-    func : callable
-        The command function to decorate.
-
-    Returns
-    -------
-    callable
-        ``func`` with the flag, passed to it as ``force`` (bool).
-    """
-    return click.option("--force", is_flag=True,
-                        help="Go ahead even past a limit: more estimated memory than "
-                             "--max-memory, more than a day of estimated work, more than "
-                             "1,000,000 sample times.")(func)
+force_option = _decorator("force_option", "the ``--force`` flag (go ahead past a size limit)",
+                          "``force`` (bool)", _FORCE)
 
 
 def sample_times_option_value(every: float, until: float, force: bool):
@@ -700,24 +666,13 @@ class MemorySize(click.ParamType):
             self.fail(str(err).removeprefix("--max-memory: "), param, ctx)
 
 
-def guard_options(func):
-    """Add ``--max-memory SIZE`` and ``--force`` (see :mod:`crn.runtime.guards`) to a click command.
-
-    Parameters
-    ----------
-    func : callable
-        The command function to decorate.
-
-    Returns
-    -------
-    callable
-        ``func`` with the options, passed as ``max_memory`` (int bytes or None) and
-        ``force`` (bool).
-    """
-    func = force_option(func)
-    return click.option("--max-memory", type=MemorySize(), default=None, metavar="SIZE",
-                        help="Refuse work estimated to need more memory (e.g. 4G; default "
-                             "half the machine's RAM).")(func)
+guard_options = _decorator(
+    "guard_options", "``--max-memory SIZE`` and ``--force`` (see :mod:`crn.runtime.guards`)",
+    "``max_memory`` (int bytes or None) and ``force`` (bool)",
+    click.option("--max-memory", type=MemorySize(), default=None, metavar="SIZE",
+                 help="Refuse work estimated to need more memory (e.g. 4G; default half the "
+                      "machine's RAM)."),
+    _FORCE)
 
 
 def guard(estimate, max_memory, force, *, announce: bool = True,
