@@ -11,7 +11,7 @@ from crn.commands.ensembles import (
     horizon_text,
     run_ensemble,
 )
-from crn.commands.implementing import dna_options, dna_settings, implement_option
+from crn.commands.implementing import dna_settings, implementation_options
 from crn.commands.options import (
     FIGURE_FILE,
     emit_json,
@@ -37,8 +37,7 @@ __all__ = ["compare"]
               help="Write the figure (ODE over the stochastic mean and 5-95% band; png, pdf, "
                    "svg, ...).")
 @lab_time_options
-@implement_option
-@dna_options
+@implementation_options
 def compare(model, sets, runs, until, engine, workers, cluster, max_memory, force, seed, as_json,
             plot_path, implement, fuel, max_rate, toehold, leak, rate, concentration):
     """Put MODEL's mean-field ODE next to its exact stochastic runs: each label's

@@ -4,7 +4,7 @@ from __future__ import annotations
 
 import click
 
-from crn.commands.implementing import dna_only_options, dna_settings, implement_option
+from crn.commands.implementing import dna_settings, implementation_options
 from crn.commands.options import (
     emit_json,
     json_option,
@@ -76,8 +76,7 @@ def parse_deadline(text: str | None):
                    "integrated over the loading and split into loading and kinetics.")
 @seed_option(workers=False)
 @json_option
-@implement_option
-@dna_only_options
+@implementation_options(scale=False)
 @full_network_option
 def copies(model, sets, gap_fraction, gap, risk, deadline, concentration, volume, rate, n_max,
            runs_max, method, loading, seed, as_json, implement, fuel, max_rate, toehold, leak,

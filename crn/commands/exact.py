@@ -4,7 +4,7 @@ from __future__ import annotations
 
 import click
 
-from crn.commands.implementing import dna_options, dna_settings, implement_option
+from crn.commands.implementing import dna_settings, implementation_options
 from crn.commands.options import (
     emit_json,
     guard,
@@ -35,8 +35,7 @@ def _counts(net, x) -> str:
                    "(default 10,000,000).")
 @guard_options
 @json_option
-@implement_option
-@dna_options
+@implementation_options
 def exact(model, sets, until, max_states, max_memory, force, as_json, implement, fuel, max_rate,
           toehold, leak, rate, concentration):
     """Exact outcome probabilities of MODEL from its initial counts, by solving the

@@ -13,7 +13,7 @@ import click
 from crn.commands import options as _options
 from crn.core.errors import CRNError
 
-__all__ = ["implement_option", "dna_options", "dna_only_options", "dna_settings",
+__all__ = ["implement_option", "implementation_options", "dna_settings",
            "implementation_json", "format_fuel", "DNA_OPTIONS"]
 
 #: DNA parameter options (keyword name -> option as typed).
@@ -29,16 +29,28 @@ def implement_option(func):
              "the signal species.")(func)
 
 
-def dna_only_options(func):
-    """``--fuel``, ``--max-rate``, ``--toehold``, ``--leak`` for a command that has its own
-    ``--rate`` and ``--concentration`` (``copies``)."""
-    return _options.dna_options(func, scale=False)
+def implementation_options(func=None, *, scale: bool = True):
+    """Add ``--implement SCHEME`` and the DNA parameter options after it
+    (:func:`crn.commands.options.dna_options`, spelled as in ``crn implement``);
+    :func:`dna_settings` reads them.
 
+    Parameters
+    ----------
+    func : callable, optional
+        The command function; without it, returns the decorator
+        (``@implementation_options(scale=False)``).
+    scale : bool, default True
+        Whether to add ``--rate`` and ``--concentration`` too (not for a command
+        that has its own, ``copies``).
 
-def dna_options(func):
-    """All DNA parameter options, ``--rate`` and ``--concentration`` included (as
-    ``crn implement`` spells them: :func:`crn.commands.options.dna_options`)."""
-    return _options.dna_options(func)
+    Returns
+    -------
+    callable
+    """
+    def decorate(f):
+        return implement_option(_options.dna_options(f, scale=scale))
+
+    return decorate if func is None else decorate(func)
 
 
 def dna_settings(implement: str | None, **given):

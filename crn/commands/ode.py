@@ -6,7 +6,7 @@ import math
 
 import click
 
-from crn.commands.implementing import dna_options, dna_settings, implement_option
+from crn.commands.implementing import dna_settings, implementation_options
 from crn.commands.options import (
     FIGURE_FILE,
     OUTPUT_FILE,
@@ -103,8 +103,7 @@ def _format_eigenvalues(values) -> str:
                    "--every`) instead of fractions or concentrations.")
 @force_option
 @lab_time_options
-@implement_option
-@dna_options
+@implementation_options
 @click.option("--fuel-needed", "fuel_needed", is_flag=True,
               help="With --implement: find the smallest fuel excess at which the "
                    "implementation decides within --within of the formal decision time.")

@@ -10,7 +10,7 @@ from typing import TYPE_CHECKING
 
 import click
 
-from crn.commands.implementing import dna_options, dna_settings, implement_option
+from crn.commands.implementing import dna_settings, implementation_options
 from crn.commands.lists import parse_float_list, parse_int_list
 from crn.commands.options import (
     CLUSTER_ADDRESS,
@@ -113,8 +113,7 @@ def _fmt(value, spec=".3g"):
 @guard_options
 @seed_option
 @json_option
-@implement_option
-@dna_options
+@implementation_options
 @full_network_option
 @click.option("--leak-tolerance", "with_leak_tolerance", is_flag=True,
               help="With --implement: for each cell, the largest leak rate constant at which "

@@ -13,7 +13,7 @@ from crn.commands.ensembles import (
     number_text,
     run_ensemble,
 )
-from crn.commands.implementing import dna_options, dna_settings, implement_option
+from crn.commands.implementing import dna_settings, implementation_options
 from crn.commands.options import (
     FIGURE_FILE,
     OUTPUT_FILE,
@@ -57,8 +57,7 @@ def _write_csv(path, ensemble, course, interrupted: bool) -> None:
 @click.option("--plot", "plot_path", type=FIGURE_FILE, default=None, metavar="FILE",
               help="Save a figure of each species' mean count and 5-95% band with the "
                    "mean-field ODE overlaid (png, pdf, svg, ...).")
-@implement_option
-@dna_options
+@implementation_options
 def ssa(model, sets, runs, until, engine, workers, cluster, max_memory, force, seed, as_json,
         csv_path, every, plot_path, implement, fuel, max_rate, toehold, leak, rate,
         concentration):
