@@ -4,19 +4,16 @@ from __future__ import annotations
 
 import click
 
+from crn.commands.exporting import check_export_json, deliver_export, export_options
 from crn.commands.options import (
-    OUTPUT_FILE,
     build_implementation,
     dna_options,
     dna_parameters,
-    emit_json,
     json_option,
     load,
     model_argument,
     set_option,
 )
-from crn.commands.translate import FORMATS  # the export formats, without importing the exporters
-from crn.io.atomic import write_atomic
 
 __all__ = ["implement"]
 
@@ -29,10 +26,7 @@ __all__ = ["implement"]
               help="ssw: three-domain fuel construction (Soloveichik, Seelig & Winfree 2010); "
                    "two-domain: join-fork gates (Cardelli 2013).")
 @dna_options
-@click.option("--to", "fmt", type=click.Choice(list(FORMATS)), default=None,
-              help="Export format (default text: grouped by role, rates in lab units).")
-@click.option("-o", "--output", "output", type=OUTPUT_FILE, default=None,
-              help="Write the export to FILE (atomically) instead of standard output.")
+@export_options("default text: grouped by role, rates in lab units")
 @json_option
 def implement(model, sets, scheme, fuel, max_rate, toehold, leak, rate, concentration, fmt,
               output, as_json):
@@ -54,8 +48,7 @@ def implement(model, sets, scheme, fuel, max_rate, toehold, leak, rate, concentr
     from crn.io.exports import export_network
     from crn.io.implementation import implementation_to_dict, implementation_to_text
 
-    if as_json and output is None and fmt not in (None, "json"):
-        raise click.UsageError(f"--json prints the JSON object; give -o FILE for --to {fmt}")
+    check_export_json(as_json, output, fmt)
     params = dna_parameters(rate=rate, concentration=concentration, fuel=fuel,
                             max_rate=max_rate, toehold=toehold, leak=leak)
     formal = load(model, sets).network
@@ -72,12 +65,5 @@ def implement(model, sets, scheme, fuel, max_rate, toehold, leak, rate, concentr
         text = json.dumps(to_jsonable(implementation_to_dict(impl, budget, inv)), indent=2) + "\n"
     else:
         text = export_network(impl.network, fmt)
-    if output is not None:
-        write_atomic(output, text)
-        if not as_json:
-            click.echo(f"wrote {output} ({fmt}: {impl.network.n_species} species, "
-                       f"{impl.network.n_reactions} reactions)", err=True)
-    if as_json:
-        emit_json(implementation_to_dict(impl, budget, inv))
-    elif output is None:
-        click.echo(text, nl=False)
+    deliver_export(text, impl.network, fmt=fmt, output=output, as_json=as_json,
+                   json_obj=implementation_to_dict(impl, budget, inv) if as_json else None)
