@@ -4,6 +4,8 @@ from __future__ import annotations
 
 import numpy as np
 
+from crn.plots.axes import axes_for, cycle_colors
+
 __all__ = ["plot_compare", "ensemble_fractions"]
 
 
@@ -45,19 +47,16 @@ def plot_compare(ode, ensemble, *, ax=None, title: str | None = None, disagreeme
     -------
     matplotlib.axes.Axes
     """
-    import matplotlib.pyplot as plt
-
     from crn.plots.time_axis import label_time_axis
 
-    if ax is None:
-        _, ax = plt.subplots(figsize=(9, 5), layout="constrained")
+    ax = axes_for(ax, (9, 5))
     shares = ensemble_fractions(ensemble)
     q05, q95 = np.quantile(shares, [0.05, 0.95], axis=0)
     mean = shares.mean(axis=0)
     from matplotlib.lines import Line2D
     from matplotlib.patches import Patch
 
-    colors = plt.rcParams["axes.prop_cycle"].by_key()["color"]
+    colors = cycle_colors()
     ode_shares = ode.fractions
     handles = []
     for i, name in enumerate(ensemble.species):

@@ -4,6 +4,8 @@ from __future__ import annotations
 
 import numpy as np
 
+from crn.plots.axes import axes_for, cycle_colors
+
 __all__ = ["plot_implementation"]
 
 
@@ -44,15 +46,13 @@ def plot_implementation(impl, formal_result, result, ensemble=None, *, ax=None,
     -------
     matplotlib.axes.Axes
     """
-    import matplotlib.pyplot as plt
     from matplotlib.lines import Line2D
     from matplotlib.patches import Patch
 
     from crn.solvers.ode import molecules_per_unit
 
-    if ax is None:
-        _, ax = plt.subplots(figsize=(9, 5), layout="constrained")
-    colors = plt.rcParams["axes.prop_cycle"].by_key()["color"]
+    ax = axes_for(ax, (9, 5))
+    colors = cycle_colors()
     formal = impl.formal
     shares = _signal_shares(impl, result.values, float(result.molecules_per_unit))
     handles = []

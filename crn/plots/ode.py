@@ -2,6 +2,8 @@
 
 from __future__ import annotations
 
+from crn.plots.axes import axes_for
+
 __all__ = ["plot_mean_field"]
 
 
@@ -23,12 +25,9 @@ def plot_mean_field(result, *, ax=None, title: str | None = None,
     -------
     matplotlib.axes.Axes
     """
-    import matplotlib.pyplot as plt
-
     from crn.plots.time_axis import label_time_axis
 
-    if ax is None:
-        _, ax = plt.subplots(figsize=(7, 4.5), layout="constrained")
+    ax = axes_for(ax, (7, 4.5))
     for name, share in result.fractions.items():
         ax.plot(result.times, share, label=name, lw=1.6)
     outcome = result.consensus

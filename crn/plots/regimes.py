@@ -4,6 +4,7 @@ from __future__ import annotations
 
 import math
 
+from crn.plots.axes import axes_for
 from crn.plots.style import PALETTE, SEQUENTIAL_MAP
 
 __all__ = ["plot_regime_map", "plot_feasibility"]
@@ -34,12 +35,10 @@ def plot_regime_map(regime_map, *, ax=None, title: str | None = None):
     -------
     matplotlib.axes.Axes
     """
-    import matplotlib.pyplot as plt
     import numpy as np
     from matplotlib.colors import LogNorm
 
-    if ax is None:
-        _, ax = plt.subplots(figsize=(7.5, 5.5), layout="constrained")
+    ax = axes_for(ax, (7.5, 5.5))
     cells = [c for c in regime_map.cells if c.gap > 0]
     risk = regime_map.risk
     floor = risk / 100
@@ -105,14 +104,12 @@ def plot_feasibility(rows, *, ax=None, title: str | None = None, chosen=None,
     -------
     matplotlib.axes.Axes
     """
-    import matplotlib.pyplot as plt
     import numpy as np
 
     from crn.core.units import CONCENTRATION_UNITS, VOLUME_UNITS, volume_for
 
     nano, femto = CONCENTRATION_UNITS["nM"], VOLUME_UNITS["fL"]
-    if ax is None:
-        _, ax = plt.subplots(figsize=(7, 5.4 if note else 5), layout="constrained")
+    ax = axes_for(ax, (7, 5.4 if note else 5))
     feasible = [r for r in rows if r.get("volume_liters")]
     infeasible = [r for r in rows if not r.get("volume_liters")]
     conc_all = np.array([r["concentration_molar"] for r in rows])

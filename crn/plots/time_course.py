@@ -4,6 +4,8 @@ from __future__ import annotations
 
 import numpy as np
 
+from crn.plots.axes import axes_for, cycle_colors
+
 __all__ = ["plot_time_course"]
 
 
@@ -30,11 +32,8 @@ def plot_time_course(course, *, ode=None, ax=None, title: str | None = None,
     -------
     matplotlib.axes.Axes
     """
-    import matplotlib.pyplot as plt
-
-    if ax is None:
-        _, ax = plt.subplots(figsize=(7, 4.5), layout="constrained")
-    colours = plt.rcParams["axes.prop_cycle"].by_key()["color"]
+    ax = axes_for(ax, (7, 4.5))
+    colours = cycle_colors()
     for i, name in enumerate(course.species):
         colour = colours[i % len(colours)]
         ax.plot(course.times, course.mean[:, i], color=colour, lw=1.6, label=f"{name} mean")
