@@ -6,6 +6,7 @@ import click
 
 from crn.commands.implementing import dna_settings, implementation_options
 from crn.commands.options import (
+    counting,
     emit_json,
     guard,
     guard_options,
@@ -60,7 +61,7 @@ def exact(model, sets, until, max_states, max_memory, force, as_json, implement,
     try:
         with progress_bar("configurations", None, enabled=not as_json) as bar:
             result = call_interruptibly(exact_outcomes, net, max_states=max_states,
-                                        progress=_counting(bar, seen))
+                                        progress=counting(bar, seen))
     except KeyboardInterrupt:
         stop_interrupted(f"after enumerating {seen[0]:,} configurations; no result")
     transient = None
@@ -74,14 +75,6 @@ def exact(model, sets, until, max_states, max_memory, force, as_json, implement,
             stop_interrupted("during the projection to --until; the eventual probabilities "
                              "above are complete")
     _print(net, result, transient, until, as_json, impl)
-
-
-def _counting(bar, seen):
-    def update(done, total=None):
-        seen[0] = done
-        bar(done, total)
-
-    return update
 
 
 def _print(net, result, transient, until, as_json, impl=None):

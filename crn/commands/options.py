@@ -8,7 +8,8 @@ import sys
 import click
 
 __all__ = ["model_argument", "set_option", "seed_option", "json_option", "load", "emit_json",
-           "progress_bar", "to_jsonable", "seed_notice", "lab_time_options", "seconds_per_time",
+           "progress_bar", "counting", "to_jsonable", "seed_notice", "lab_time_options",
+           "seconds_per_time",
            "OUTPUT_FILE", "FIGURE_FILE", "FIGURE_FORMATS", "CLUSTER_ADDRESS", "dna_options",
            "dna_parameters", "dna_errors", "build_implementation", "DNA_OPTION_NAMES",
            "DEFAULT_DNA_RATE", "DEFAULT_DNA_CONCENTRATION", "every_option", "force_option",
@@ -311,6 +312,29 @@ def progress_bar(description: str, total: int | None, enabled: bool = True):
             yield update
 
     return bar()
+
+
+def counting(update, seen: list[int]):
+    """A progress callback that passes each report on to ``update`` and keeps ``done`` in
+    ``seen[0]``, so that an interruption can say how far the work got.
+
+    Parameters
+    ----------
+    update : callable
+        The callback of :func:`progress_bar`.
+    seen : list of int
+        One element, overwritten with each report's ``done``.
+
+    Returns
+    -------
+    callable
+        ``report(done, total=None)``.
+    """
+    def report(done, total=None):
+        seen[0] = done
+        update(done, total)
+
+    return report
 
 
 def _force_progress() -> bool:

@@ -6,6 +6,7 @@ import click
 
 from crn.commands.options import (
     RenamedOption,
+    counting,
     emit_json,
     guard,
     guard_options,
@@ -65,11 +66,8 @@ def verify(model, sets, n_max, max_states, max_memory, force, as_json):
     checked = [0]
     try:
         with progress_bar("population sizes", n_max - 1, enabled=not as_json) as bar:
-            def update(done, total):
-                checked[0] = done
-                bar(done, total)
-
-            result = call_interruptibly(verify_model, loaded, n_max, progress=update,
+            result = call_interruptibly(verify_model, loaded, n_max,
+                                        progress=counting(bar, checked),
                                         max_states=max_states)
     except KeyboardInterrupt:
         stop_interrupted(f"after n = 2..{checked[0] + 1} of 2..{n_max} (no counterexample "
