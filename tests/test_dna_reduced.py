@@ -11,6 +11,7 @@ from crn.analyses.probes import InitialSplit
 from crn.cli import main
 from crn.core.network import Network, Reaction
 from crn.dna import DnaParameters
+from crn.dna.implementation import Builder
 from crn.dna.reduced import MIN_FUEL_EXCESS, ReducedNetwork, reduced_network, reduction_of
 from crn.engines.reduced import reduced_propensities, run_reduced
 from crn.io.models import load_model
@@ -112,6 +113,49 @@ def test_low_fuel_two_domain_and_forced_full_network_run_the_full_implementation
     assert simulate(cells(40, 10), runs=2, until=50.0, rng=1, workers=1).engine == "reduced"
     with pytest.raises(TypeError, match="reduced model"):
         run_reduced(_am(40, 10), until=10.0, rng=1)
+
+
+def _hand_built(extra):
+    """An implementation of A + B -> A + A built by hand: A binds gate L (buffer BB, complex
+    H), H meets B and releases A twice; ``extra(builder)`` adds what breaks the reduction."""
+    formal = Network.from_reactions("pair", ["A", "B"],
+                                    [Reaction({"A": 1, "B": 1}, {"A": 2}, 1.0)],
+                                    volume=20, initial={"A": 10, "B": 10},
+                                    output={"A": "A", "B": "B"})
+    b = Builder(formal, _params(100), "hand-built")
+    gate = b.add("L", "fuel", {"bottom": 1, "top": 1})
+    buffer = b.add("BB", "fuel", {"top": 1})
+    held = b.add("H", "intermediate", {"bottom": 1, "A_strand": 1})
+    waste = b.add("W", "waste", {"bottom": 1, "A_strand": 1, "B_strand": 1})
+    b.bind("A", gate, held, buffer, RATE)
+    b.react({"B": 1, held: 1}, {"A": 2, waste: 1}, Q_MAX)
+    extra(b)
+    return b.build()
+
+
+@pytest.mark.parametrize("extra,reason", [
+    (lambda b: None, None),
+    (lambda b: b.bind("B", "L", b.add("H2", "intermediate", {"bottom": 1, "B_strand": 1}),
+                      b.add("BB2", "fuel", {"top2": 1}), RATE),
+     "L, BB2 or H2 takes part in two bindings"),
+    (lambda b: b.bind("B", b.add("L2", "fuel", {"bottom2": 1, "top2": 1}),
+                      b.add("H2", "intermediate", {"bottom2": 1, "A_strand": 1}),
+                      b.add("BB2", "fuel", {"top2": 1}), RATE),
+     "complex H2 does not report the label of its signal B"),
+    (lambda b: b.react({"B": 1, "W": 1}, {"H": 1}, RATE), "a slow reaction makes a complex"),
+    (lambda b: b.react({"L": 2}, {"W": 1}, RATE),
+     "a slow reaction takes two gates or buffers at once"),
+    (lambda b: b.react({"H": 2}, {"W": 1}, RATE), "a slow reaction takes two of complex H"),
+])
+def test_each_reason_a_reduction_is_refused(extra, reason):
+    """A hand-built implementation reduces; each addition that breaks one of the reduced
+    model's assumptions (module notes of crn.dna.reduced) is refused with its own reason."""
+    found = reduction_of(_hand_built(extra))
+    if reason is None:
+        assert not isinstance(found, str)
+        assert found.n_complexes == 1 and found.slow.tolist() == [2]
+    else:
+        assert isinstance(found, str) and found.startswith(reason)
 
 
 @pytest.mark.parametrize("n,gap", [(12, 2), (24, 4)])
