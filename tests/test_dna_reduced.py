@@ -5,6 +5,8 @@ import json
 import numpy as np
 import pytest
 from scipy.stats import fisher_exact, ks_2samp
+from seeds import seed
+from ssa_reference import net_changes, run_by_hand
 
 from crn.analyses.implemented import ImplementedCells, implementation_of
 from crn.analyses.probes import InitialSplit
@@ -94,6 +96,39 @@ def test_folding_conserves_every_strand_over_a_run():
     assert run.events > 0
     complexes = net.reduction.cx_species
     assert not run.counts[:, complexes].any()
+
+
+@pytest.mark.parametrize("formal,changes,stop,key", [
+    (lambda: _am(40, 10), {}, True, 311),
+    (lambda: _am(24, 0), {"leak": 1e2}, False, 312),
+    (_join, {}, False, 313),
+])
+def test_a_seeded_reduced_run_is_the_plain_python_direct_method_step_for_step(formal, changes,
+                                                                              stop, key):
+    """The reduced model's chain run by Gillespie's direct method (J. Phys. Chem. 81:2340,
+    1977) in plain Python (tests/ssa_reference.py), its propensities from
+    reduced_propensities (pinned to the hand derivation above) and each slow reaction's change
+    folded from the full network's reaction (complex counted in its signal, gate and buffer):
+    with the same seed, every sample, the event count, the end, the status and the outcome
+    agree exactly with the engine."""
+    impl = implementation_of(formal(), "ssw", _params(100, **changes))
+    net = reduced_network(impl)
+    red = net.reduction
+    full = net_changes(impl.network)
+    folded = [red.fold(full[i]) for i in red.slow]
+    until = 60.0
+    times = np.linspace(0.0, until, 7)
+    run = run_reduced(net, until=until, times=times, rng=seed(key), stop_at_consensus=stop)
+    counts, first, first_time, last, events, end_time, status = run_by_hand(
+        lambda x: list(reduced_propensities(net, x)), folded, net.species_label,
+        red.fold(net.initial), until=until, times=times, seed=seed(key), stop_at_consensus=stop)
+    np.testing.assert_array_equal(run.counts, counts)
+    assert (run.events, run.end_time, run.status) == (events, end_time, status)
+    assert events > 10
+    assert run.outcome.label == (net.labels[first] if first >= 0 else None)
+    assert run.outcome.final_label == (net.labels[last] if last >= 0 else None)
+    if first >= 0:
+        assert run.outcome.time == first_time
 
 
 def test_low_fuel_two_domain_and_forced_full_network_run_the_full_implementation():
