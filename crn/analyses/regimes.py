@@ -48,6 +48,7 @@ __all__ = [
     "RegimeMap",
     "plan_cells",
     "evaluate_cell",
+    "implied_cell",
     "regime_map",
     "fit_boundary",
     "risk_flag",
@@ -124,6 +125,14 @@ class RegimeCell:
         Time limit of the stochastic runs or transient analysis.
     correct_label : str or None
         The right answer (the majority input's label).
+    implied_by : int or None
+        The gap of the ``ok`` cell (same n) whose bound this cell inherits, or
+        None. Set when the protocol is monotone towards the ODE label and this
+        cell's start dominates that cell's (:mod:`crn.analyses.monotone`): then
+        ``high`` is that cell's upper bound at that cell's horizon (which this
+        cell uses too), and ``p_wrong``, ``low``, the median time and the time
+        flag come from this cell's own first round of runs (``low`` a 95%
+        Clopper-Pearson bound over them).
     """
 
     n: int
@@ -141,10 +150,16 @@ class RegimeCell:
     method: str
     horizon: float
     correct_label: str | None = None
+    implied_by: int | None = None
 
     def to_dict(self) -> dict:
         """The cell as a JSON-ready dict."""
         return asdict(self)
+
+    @property
+    def how(self) -> str:
+        """``exact``, ``stochastic`` or ``implied by gap G`` (for tables)."""
+        return self.method if self.implied_by is None else f"implied by gap {self.implied_by}"
 
     @classmethod
     def from_dict(cls, data: Mapping) -> RegimeCell:
@@ -382,15 +397,8 @@ def evaluate_cell(networks: Callable[[int, int], Network], n: int, gap: int, *,
         raise CRNError(f"method must be auto, exact or stochastic, got {method!r}")
     net = networks(int(n), int(gap))
     truth = correct_label(net)
-    ode_until = float(until) if until is not None else 1e4 * (1 + math.log(n))
-    ode_label, ode_time = ode_decision(net, ode_until)
-    if until is not None:
-        horizon = float(until)
-    elif ode_time is not None:
-        horizon = _HORIZON_FACTOR * max(ode_time, 1.0)
-    else:
-        horizon = 100.0 * (1 + math.log(n))
-    use_exact = method == "exact" or (method == "auto" and configurations(net) <= exact_max)
+    ode_label, ode_time, horizon = _mean_field(net, n, until)
+    use_exact = _solved_exactly(net, method, exact_max)
     if use_exact:
         # eventual outcome exactly; consensus after the horizon bounded by Cantelli's inequality
         probabilities, mean, std = exact_absorption(net)
@@ -408,7 +416,7 @@ def evaluate_cell(networks: Callable[[int, int], Network], n: int, gap: int, *,
     else:
         store = {"disagree": np.zeros(0, dtype=bool), "times": np.zeros(0)}
 
-        engine = "batched" if net.from_protocol and n >= BATCHED_FROM else "auto"
+        engine = _engine(net, n)
 
         def draw(round_index, size):
             labels, t = stochastic_decisions(net, size, horizon,
@@ -437,9 +445,112 @@ def evaluate_cell(networks: Callable[[int, int], Network], n: int, gap: int, *,
     )
 
 
+def _mean_field(net: Network, n: int, until: float | None):
+    """The ODE's label and consensus time, and the cell's horizon."""
+    ode_until = float(until) if until is not None else 1e4 * (1 + math.log(n))
+    ode_label, ode_time = ode_decision(net, ode_until)
+    if until is not None:
+        horizon = float(until)
+    elif ode_time is not None:
+        horizon = _HORIZON_FACTOR * max(ode_time, 1.0)
+    else:
+        horizon = 100.0 * (1 + math.log(n))
+    return ode_label, ode_time, horizon
+
+
+def _solved_exactly(net: Network, method: str, exact_max: int) -> bool:
+    return method == "exact" or (method == "auto" and configurations(net) <= exact_max)
+
+
+def _engine(net: Network, n: int) -> str:
+    return "batched" if net.from_protocol and n >= BATCHED_FROM else "auto"
+
+
+def implied_cell(networks: Callable[[int, int], Network], n: int, gap: int,
+                 decider: RegimeCell, *, risk: float = 0.01, until: float | None = None,
+                 time_factor: float = 2.0, method: str = "auto",
+                 exact_max: int = DEFAULT_EXACT_MAX,
+                 entropy: int | np.random.SeedSequence = 0, cluster: str | None = None,
+                 **unused: Any) -> RegimeCell | None:
+    """A cell that inherits an ``ok`` cell's bound by a monotone coupling, or None.
+
+    Applies when ``decider`` (same n) is ``ok`` and was sampled itself, the
+    cell would be sampled too, both ODE labels are the same label L, the
+    protocol is monotone towards L and this cell's start dominates the
+    decider's (:func:`crn.analyses.monotone.implies`). Then the probability
+    of not settling first on L by the decider's horizon is at most the
+    decider's, so its upper bound ``high`` holds here, at the same confidence.
+    The cell runs only the first round (:data:`crn.analyses.probes.FIRST_ROUND`
+    runs, the same stream a full cell starts with) for its estimate, lower
+    bound and median time. Options as for :func:`evaluate_cell`.
+
+    Returns
+    -------
+    RegimeCell or None
+        None when the conditions do not hold (compute the cell in full).
+    """
+    from crn.analyses.monotone import implies
+    from crn.analyses.probes import cell_seed, sided_interval
+
+    if (decider.flag != "ok" or decider.implied_by is not None or decider.ode_label is None
+            or decider.method == "exact" or decider.n != n):
+        return None
+    net = networks(int(n), int(gap))
+    if _solved_exactly(net, method, exact_max):
+        return None
+    ode_label, ode_time, _ = _mean_field(net, n, until)
+    if ode_label != decider.ode_label:
+        return None
+    if implies(networks(int(n), int(decider.gap)), net, ode_label) is None:
+        return None
+    horizon = decider.horizon
+    labels, times = stochastic_decisions(net, FIRST_ROUND, horizon,
+                                         cell_seed(entropy, n, gap, 0), cluster=cluster,
+                                         engine=_engine(net, n))
+    wrong = int(_disagrees(labels, ode_label).sum())
+    p, low, _ = sided_interval(wrong, len(labels), 0.025, 0.025)
+    median = _median_time(times)
+    censored = horizon if times.size and median is None else None
+    return RegimeCell(
+        n=int(n), gap=int(gap), ode_label=ode_label,
+        ode_time=None if ode_time is None else float(ode_time),
+        p_wrong=float(p), low=float(low), high=float(decider.high), wrong=wrong,
+        runs=len(labels), flag=risk_flag(low, decider.high, risk),
+        time_flag=time_flag(median, ode_time, time_factor, censored_at=censored),
+        ssa_median_time=median, method="stochastic", horizon=float(horizon),
+        correct_label=correct_label(net), implied_by=int(decider.gap),
+    )
+
+
 def _cell_task(args):
     networks, n, gap, options = args
     return evaluate_cell(networks, n, gap, **options)
+
+
+def _row_task(args):
+    """The cells of one n in increasing gap: after the first sampled ``ok`` cell, implied ones."""
+    networks, n, gaps, options, done = args
+    decider = next((c for g, c in sorted(done.items())
+                    if c.flag == "ok" and c.implied_by is None and c.ode_label is not None), None)
+    new = []
+    for g in sorted(gaps):
+        if g in done:
+            continue
+        cell = None if decider is None else implied_cell(networks, n, g, decider, **options)
+        if cell is None:
+            cell = evaluate_cell(networks, n, g, **options)
+        new.append(cell)
+        if decider is None and cell.flag == "ok" and cell.ode_label is not None:
+            decider = cell
+    return new
+
+
+def _monotone_protocol(networks: Callable[[int, int], Network], cell: tuple[int, int]) -> bool:
+    """Whether the first cell's protocol is monotone towards some label (rows may imply cells)."""
+    from crn.analyses.monotone import monotone_order
+
+    net = networks(*cell)
+    return net.from_protocol and any(monotone_order(net, label) for label in net.labels)
 
 
 def regime_map(networks: Callable[[int, int], Network], ns: Sequence[int], *,
@@ -449,7 +560,7 @@ def regime_map(networks: Callable[[int, int], Network], ns: Sequence[int], *,
                exact_max: int = DEFAULT_EXACT_MAX, rng: SeedLike = None,
                workers: int | None = None, cluster: str | None = None, done: Mapping | None = None,
                on_cell: Callable[[RegimeCell], None] | None = None,
-               progress: Callable | None = None) -> RegimeMap:
+               progress: Callable | None = None, monotone: bool = True) -> RegimeMap:
     """Sweep n and the gap; flag where the mean field misleads; fit the boundary.
 
     Parameters
@@ -481,6 +592,11 @@ def regime_map(networks: Callable[[int, int], Network], ns: Sequence[int], *,
         Called with each newly finished cell, in the calling process, as it
         finishes (to append it to a results file).
     progress : callable (done, total), optional
+    monotone : bool, default True
+        When the protocol is monotone (:mod:`crn.analyses.monotone`), compute
+        each n's cells in increasing gap and let a cell whose start dominates a
+        sampled ``ok`` cell's inherit its bound (:func:`implied_cell`): same
+        flags at a fraction of the runs. False samples every cell in full.
 
     Returns
     -------
@@ -532,11 +648,26 @@ def regime_map(networks: Callable[[int, int], Network], ns: Sequence[int], *,
             progress(count, total)
 
     # cells run on local processes; with a cluster they run here and send their runs there.
-    # The costliest cells (largest n) first, so no worker idles at the end.
-    ordered = sorted(todo, key=lambda c: -c[0]) if workers and workers > 1 else todo
+    # The costliest cells (largest n) first, so no worker idles at the end. For a monotone
+    # protocol a task is a whole n (its cells in increasing gap), so cells can be implied.
+    by_row = monotone and bool(todo) and _monotone_protocol(networks, todo[0])
+    tasks: list[tuple]
+    if by_row:
+        row_ns = sorted({n for n, _ in todo}, key=lambda n: -n)
+        tasks = [(networks, n, [g for m, g in todo if m == n], options,
+                  {g: finished[(m, g)] for m, g in finished if m == n}) for n in row_ns]
+        task, noun = _row_task, "rows"
+    else:
+        ordered = sorted(todo, key=lambda c: -c[0]) if workers and workers > 1 else todo
+        tasks = [(networks, n, g, options) for n, g in ordered]
+        task, noun = _cell_task, "cells"
+
+    def keep(_, result):
+        for cell in result if by_row else [result]:
+            finish(cell)
+
     with Executor((workers or 1) if cluster is None else 1, context=None) as executor:
-        executor.run(_cell_task, [(networks, n, g, options) for n, g in ordered],
-                     lambda i, cell: finish(cell), noun="cells")
+        executor.run(task, tasks, keep, noun=noun)
     ordered_cells = tuple(finished[c] for c in cells)
     return RegimeMap(cells=ordered_cells, boundary=fit_boundary(ordered_cells, risk, rng=entropy),
                      risk=float(risk), time_factor=float(time_factor), seed_entropy=entropy,

@@ -8,7 +8,7 @@ import io
 __all__ = ["COLUMNS", "table_csv"]
 
 COLUMNS = ["n", "gap", "ode_label", "ode_time", "p_wrong", "low", "high", "wrong", "runs", "flag",
-           "time_flag", "ssa_median_time", "method", "horizon", "correct_label"]
+           "time_flag", "ssa_median_time", "method", "horizon", "correct_label", "implied_by"]
 
 
 def table_csv(cells) -> str:

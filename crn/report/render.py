@@ -114,7 +114,7 @@ def _regime_rows(rmap):
     return [{"n": f"{c.n:,}", "gap": f"{c.gap:,}", "ode": c.ode_label or "-",
              "ode_time": _g(c.ode_time), "p": _g(c.p_wrong), "low": _g(c.low, ".3g"),
              "high": _g(c.high, ".3g"), "runs": c.runs, "flag": c.flag,
-             "ssa_time": _g(c.ssa_median_time), "time_flag": c.time_flag, "method": c.method}
+             "ssa_time": _g(c.ssa_median_time), "time_flag": c.time_flag, "method": c.how}
             for c in rmap.cells]
 
 
