@@ -5,12 +5,15 @@ import json
 import numpy as np
 import pytest
 from scipy.stats import fisher_exact, ks_2samp
+from seeds import seed
+from ssa_reference import net_changes, run_by_hand
 
 from crn.analyses.implemented import ImplementedCells, implementation_of
 from crn.analyses.probes import InitialSplit
 from crn.cli import main
 from crn.core.network import Network, Reaction
 from crn.dna import DnaParameters
+from crn.dna.implementation import Builder
 from crn.dna.reduced import MIN_FUEL_EXCESS, ReducedNetwork, reduced_network, reduction_of
 from crn.engines.reduced import reduced_propensities, run_reduced
 from crn.io.models import load_model
@@ -95,6 +98,39 @@ def test_folding_conserves_every_strand_over_a_run():
     assert not run.counts[:, complexes].any()
 
 
+@pytest.mark.parametrize("formal,changes,stop,key", [
+    (lambda: _am(40, 10), {}, True, 311),
+    (lambda: _am(24, 0), {"leak": 1e2}, False, 312),
+    (_join, {}, False, 313),
+])
+def test_a_seeded_reduced_run_is_the_plain_python_direct_method_step_for_step(formal, changes,
+                                                                              stop, key):
+    """The reduced model's chain run by Gillespie's direct method (J. Phys. Chem. 81:2340,
+    1977) in plain Python (tests/ssa_reference.py), its propensities from
+    reduced_propensities (pinned to the hand derivation above) and each slow reaction's change
+    folded from the full network's reaction (complex counted in its signal, gate and buffer):
+    with the same seed, every sample, the event count, the end, the status and the outcome
+    agree exactly with the engine."""
+    impl = implementation_of(formal(), "ssw", _params(100, **changes))
+    net = reduced_network(impl)
+    red = net.reduction
+    full = net_changes(impl.network)
+    folded = [red.fold(full[i]) for i in red.slow]
+    until = 60.0
+    times = np.linspace(0.0, until, 7)
+    run = run_reduced(net, until=until, times=times, rng=seed(key), stop_at_consensus=stop)
+    counts, first, first_time, last, events, end_time, status = run_by_hand(
+        lambda x: list(reduced_propensities(net, x)), folded, net.species_label,
+        red.fold(net.initial), until=until, times=times, seed=seed(key), stop_at_consensus=stop)
+    np.testing.assert_array_equal(run.counts, counts)
+    assert (run.events, run.end_time, run.status) == (events, end_time, status)
+    assert events > 10
+    assert run.outcome.label == (net.labels[first] if first >= 0 else None)
+    assert run.outcome.final_label == (net.labels[last] if last >= 0 else None)
+    if first >= 0:
+        assert run.outcome.time == first_time
+
+
 def test_low_fuel_two_domain_and_forced_full_network_run_the_full_implementation():
     low = implementation_of(_am(40, 10), "ssw", _params(MIN_FUEL_EXCESS / 2))
     reason = reduction_of(low)
@@ -112,6 +148,49 @@ def test_low_fuel_two_domain_and_forced_full_network_run_the_full_implementation
     assert simulate(cells(40, 10), runs=2, until=50.0, rng=1, workers=1).engine == "reduced"
     with pytest.raises(TypeError, match="reduced model"):
         run_reduced(_am(40, 10), until=10.0, rng=1)
+
+
+def _hand_built(extra):
+    """An implementation of A + B -> A + A built by hand: A binds gate L (buffer BB, complex
+    H), H meets B and releases A twice; ``extra(builder)`` adds what breaks the reduction."""
+    formal = Network.from_reactions("pair", ["A", "B"],
+                                    [Reaction({"A": 1, "B": 1}, {"A": 2}, 1.0)],
+                                    volume=20, initial={"A": 10, "B": 10},
+                                    output={"A": "A", "B": "B"})
+    b = Builder(formal, _params(100), "hand-built")
+    gate = b.add("L", "fuel", {"bottom": 1, "top": 1})
+    buffer = b.add("BB", "fuel", {"top": 1})
+    held = b.add("H", "intermediate", {"bottom": 1, "A_strand": 1})
+    waste = b.add("W", "waste", {"bottom": 1, "A_strand": 1, "B_strand": 1})
+    b.bind("A", gate, held, buffer, RATE)
+    b.react({"B": 1, held: 1}, {"A": 2, waste: 1}, Q_MAX)
+    extra(b)
+    return b.build()
+
+
+@pytest.mark.parametrize("extra,reason", [
+    (lambda b: None, None),
+    (lambda b: b.bind("B", "L", b.add("H2", "intermediate", {"bottom": 1, "B_strand": 1}),
+                      b.add("BB2", "fuel", {"top2": 1}), RATE),
+     "L, BB2 or H2 takes part in two bindings"),
+    (lambda b: b.bind("B", b.add("L2", "fuel", {"bottom2": 1, "top2": 1}),
+                      b.add("H2", "intermediate", {"bottom2": 1, "A_strand": 1}),
+                      b.add("BB2", "fuel", {"top2": 1}), RATE),
+     "complex H2 does not report the label of its signal B"),
+    (lambda b: b.react({"B": 1, "W": 1}, {"H": 1}, RATE), "a slow reaction makes a complex"),
+    (lambda b: b.react({"L": 2}, {"W": 1}, RATE),
+     "a slow reaction takes two gates or buffers at once"),
+    (lambda b: b.react({"H": 2}, {"W": 1}, RATE), "a slow reaction takes two of complex H"),
+])
+def test_each_reason_a_reduction_is_refused(extra, reason):
+    """A hand-built implementation reduces; each addition that breaks one of the reduced
+    model's assumptions (module notes of crn.dna.reduced) is refused with its own reason."""
+    found = reduction_of(_hand_built(extra))
+    if reason is None:
+        assert not isinstance(found, str)
+        assert found.n_complexes == 1 and found.slow.tolist() == [2]
+    else:
+        assert isinstance(found, str) and found.startswith(reason)
 
 
 @pytest.mark.parametrize("n,gap", [(12, 2), (24, 4)])

@@ -26,7 +26,7 @@ from __future__ import annotations
 
 import math
 from collections import Counter
-from collections.abc import Mapping
+from collections.abc import Callable, Mapping
 from dataclasses import dataclass, field
 from typing import TYPE_CHECKING
 
@@ -42,7 +42,7 @@ if TYPE_CHECKING:
     from numpy.typing import ArrayLike
 
 __all__ = ["ROLES", "Implementation", "Module", "Builder", "formal_reactions", "signal_strands",
-           "add_strands", "buffer_modules", "order_reactants"]
+           "add_strands", "buffer_modules", "order_reactants", "implement_each"]
 
 #: The roles an implementation species can have, in display order.
 ROLES = ("signal", "fuel", "intermediate", "waste")
@@ -219,6 +219,32 @@ class Builder:
             self.leaks.append(len(self.reactions) - 1)
         return len(self.reactions) - 1
 
+    def bind(self, signal: str, gate: str, held: str, buffer: str, rate: float) -> None:
+        """Add the reversible binding ``signal + gate <-> held + buffer``: forward at ``rate``
+        (/M/s), back at q_max.
+        """
+        self.react({signal: 1, gate: 1}, {held: 1, buffer: 1}, rate)
+        self.react({held: 1, buffer: 1}, {signal: 1, gate: 1}, self.params.q_max)
+
+    def first_step(self, index: int, reaction: Reaction,
+                   load: dict[str, float]) -> tuple[str, str, float]:
+        """The first step of bimolecular formal reaction ``index``: its rate k (/M/s), checked
+        against q_max, and its reactants in order (:func:`order_reactants`); adds k to the
+        first reactant's ``load``.
+
+        Returns
+        -------
+        x1, x2 : str
+            The reactant that binds the first gate and the one that meets the complex.
+        k : float
+            The first step's rate constant (/M/s).
+        """
+        k = reaction.rate * self.params.rate
+        self.check_displacement(k, f"formal reaction {index + 1} ({reaction})")
+        x1, x2 = order_reactants(self.formal, reaction.reactants, load)
+        load[x1] += k
+        return x1, x2, k
+
     def check_displacement(self, rate: float, what: str) -> None:
         """Raise when a displacement step needs a rate above q_max."""
         q_max = self.params.q_max
@@ -311,8 +337,9 @@ def order_reactants(formal: Network, reactants: Mapping[str, int],
     return names[0], names[1] if len(names) > 1 else names[0]
 
 
-def buffer_modules(b: Builder, load: dict[str, float], q_max: float) -> None:
+def buffer_modules(b: Builder, load: dict[str, float]) -> None:
     """Buffering modules: every formal species sequestered at the same total first-step rate."""
+    q_max = b.params.q_max
     top = max(load.values(), default=0.0)
     if top <= 0:
         return
@@ -327,7 +354,41 @@ def buffer_modules(b: Builder, load: dict[str, float], q_max: float) -> None:
             gate = b.add(f"LS_{tag}", "fuel", {bottom: 1, top_strand: 1})
             buffer = b.add(f"BS_{tag}", "fuel", {top_strand: 1})
             held = b.add(f"HS_{tag}", "intermediate", {bottom: 1, f"{x}_strand": 1})
-            b.react({x: 1, gate: 1}, {held: 1, buffer: 1}, missing / parts)
-            b.react({held: 1, buffer: 1}, {x: 1, gate: 1}, q_max)
+            b.bind(x, gate, held, buffer, missing / parts)
             b.modules.append(Module(formal=None, buffers=x, species=(gate, buffer, held),
                                     fuel_per_firing={}))
+
+
+def implement_each(formal: Network, params: DnaParameters, scheme: str,
+                   module_of: Callable[[Builder, int, Reaction, dict[str, float]], None],
+                   check: Callable[[int, Reaction], None] | None = None) -> Implementation:
+    """The frame every scheme shares: a module per formal reaction, then the buffering modules.
+
+    Parameters
+    ----------
+    formal : Network
+    params : DnaParameters
+    scheme : str
+    module_of : callable
+        ``module_of(builder, index, reaction, load)`` adds the species, reactions and
+        :class:`Module` of one formal reaction that does something
+        (:func:`formal_reactions`), and adds to ``load`` (formal species -> total first-step
+        rate, /M/s) what its first step binds.
+    check : callable, optional
+        ``check(index, reaction)`` raises for a reaction the scheme cannot build; run on every
+        reaction before any is built, so that error comes first.
+
+    Returns
+    -------
+    Implementation
+    """
+    b = Builder(formal, params, scheme)
+    reactions = formal_reactions(formal, scheme)
+    if check is not None:
+        for i, r in reactions:
+            check(i, r)
+    load = {s: 0.0 for s in formal.species}
+    for i, r in reactions:
+        module_of(b, i, r, load)
+    buffer_modules(b, load)
+    return b.build()

@@ -238,7 +238,7 @@ def fuel_excess(impl) -> float:
     return float(least) / float(impl.params.concentration)
 
 
-def reduction_of(impl) -> Reduction | str:  # noqa: C901 (new this session; split pending)
+def reduction_of(impl) -> Reduction | str:
     """The reduced model of an implementation, or why it has none.
 
     Parameters
@@ -253,8 +253,6 @@ def reduction_of(impl) -> Reduction | str:  # noqa: C901 (new this session; spli
         (no fast binding to eliminate, too little fuel, a complex that a slow
         reaction makes or that reports another label than its signal).
     """
-    net = impl.network
-    roles = impl.roles
     pairs = _binding_pairs(impl)
     if not pairs:
         return "the implementation has no reversible binding to eliminate"
@@ -262,14 +260,60 @@ def reduction_of(impl) -> Reduction | str:  # noqa: C901 (new this session; spli
     if excess < MIN_FUEL_EXCESS * (1 - 1e-9):
         return (f"fuel excess {excess:.3g} is below {MIN_FUEL_EXCESS:g}, the least at which "
                 f"the reduced model is validated")
+    net = impl.network
     reactions = list(net.reactions())
+    bindings = _read_bindings(impl, reactions, pairs)
+    if isinstance(bindings, str):
+        return bindings
     fast = {i for pair in pairs for i in pair}
-    kind = np.full(net.n_species, KIND_PLAIN, dtype=np.int64)
-    ref = np.full(net.n_species, -1, dtype=np.int64)
-    cx: dict[str, list] = {"signal": [], "gate": [], "buffer": [], "species": [], "set": [],
-                           "forward": [], "back": []}
-    sets: list[int] = []
+    slow = [i for i in range(len(reactions)) if i not in fast]
+    reason = _slow_reason(net, reactions, slow, bindings.kind)
+    if reason is not None:
+        return reason
+    tables = _slow_tables(net, reactions, slow, bindings)
+    if isinstance(tables, str):
+        return tables
+    protocol = _protocol_form(impl, slow, bindings.kind, bindings.ref, bindings.signal,
+                              tables.change_ptr, tables.change_species, tables.change_delta,
+                              tables.constants)
+    return _assemble(net, bindings, tables, slow, protocol)
+
+
+@dataclass
+class _Bindings:
+    """What the fast bindings make of the species: kinds, references, complexes (lists)."""
+
+    kind: np.ndarray
+    ref: np.ndarray
+    signal: list[int] = field(default_factory=list)
+    gate: list[int] = field(default_factory=list)
+    buffer: list[int] = field(default_factory=list)
+    species: list[int] = field(default_factory=list)
+    set: list[int] = field(default_factory=list)
+    forward: list[float] = field(default_factory=list)
+    back: list[float] = field(default_factory=list)
+    sets: list[int] = field(default_factory=list)  # the signal species of each set
+
+
+@dataclass
+class _SlowTables:
+    """The slow reactions' constants, the complexes they consume, their folded changes."""
+
+    constants: list[float]
+    uses: list[list[tuple[float, int]]]  # per complex: (constant, other reactant or -1)
+    change_ptr: list[int]
+    change_species: list[int]
+    change_delta: list[int]
+
+
+def _read_bindings(impl, reactions, pairs) -> _Bindings | str:
+    """Kinds of species and the complexes of the binding pairs, or why they do not reduce."""
+    net = impl.network
+    roles = impl.roles
     volume = float(net.volume)
+    b = _Bindings(kind=np.full(net.n_species, KIND_PLAIN, dtype=np.int64),
+                  ref=np.full(net.n_species, -1, dtype=np.int64))
+    kind, ref = b.kind, b.ref
     for fwd, back in pairs:
         r = reactions[fwd]
         x = next(s for s in r.reactants if roles[s] == "signal")
@@ -283,87 +327,111 @@ def reduction_of(impl) -> Reduction | str:  # noqa: C901 (new this session; spli
             return f"complex {h} does not report the label of its signal {x}"
         if kind[xi] == KIND_PLAIN:
             kind[xi] = KIND_SIGNAL
-            ref[xi] = len(sets)
-            sets.append(xi)
-        j = len(cx["species"])
+            ref[xi] = len(b.sets)
+            b.sets.append(xi)
+        j = len(b.species)
         kind[gi], kind[bi], kind[hi] = KIND_GATE, KIND_BUFFER, KIND_COMPLEX
         ref[gi] = ref[bi] = ref[hi] = j
-        for name, value in (("signal", xi), ("gate", gi), ("buffer", bi), ("species", hi),
-                            ("set", int(ref[xi])), ("forward", r.rate / volume),
-                            ("back", reactions[back].rate / volume)):
-            cx[name].append(value)
-    slow = [i for i in range(len(reactions)) if i not in fast]
+        b.signal.append(xi)
+        b.gate.append(gi)
+        b.buffer.append(bi)
+        b.species.append(hi)
+        b.set.append(int(ref[xi]))
+        b.forward.append(r.rate / volume)
+        b.back.append(reactions[back].rate / volume)
+    return b
+
+
+def _slow_reason(net, reactions, slow, kind) -> str | None:
+    """Why the slow reactions do not fit the reduced model (one makes a complex or takes two
+    gates or buffers at once), or None.
+    """
     for i in slow:
         if any(kind[net.index[s]] == KIND_COMPLEX for s in reactions[i].products):
             return f"a slow reaction makes a complex ({reactions[i]})"
         if any(kind[net.index[s]] in (KIND_GATE, KIND_BUFFER) and m > 1
                for s, m in reactions[i].reactants.items()):
             return f"a slow reaction takes two gates or buffers at once ({reactions[i]})"
-    n_cx = len(cx["species"])
-    uses: list[list[tuple[float, int]]] = [[] for _ in range(n_cx)]
-    constants = []
-    change_ptr, change_species, change_delta = [0], [], []
+    return None
+
+
+def _slow_tables(net, reactions, slow, b: _Bindings) -> _SlowTables | str:
+    """Propensity constants, complex uses and folded changes of the slow reactions."""
+    volume = float(net.volume)
+    tables = _SlowTables(constants=[], uses=[[] for _ in b.species], change_ptr=[0],
+                         change_species=[], change_delta=[])
     for i in slow:
         r = reactions[i]
         c = r.rate / volume ** (r.order - 1)
-        constants.append(c)
+        tables.constants.append(c)
         for s, m in r.reactants.items():
             si = net.index[s]
-            if kind[si] == KIND_COMPLEX:
+            if b.kind[si] == KIND_COMPLEX:
                 if m > 1:
                     return f"a slow reaction takes two of complex {s} ({r})"
                 others = [net.index[o] for o in r.reactants if o != s]
-                uses[int(ref[si])].append((c, others[0] if others else -1))
-        delta: dict[int, int] = {}
-        for s, m in r.reactants.items():
-            delta[net.index[s]] = delta.get(net.index[s], 0) - m
-        for s, m in r.products.items():
-            delta[net.index[s]] = delta.get(net.index[s], 0) + m
-        folded: dict[int, int] = {}
-        for s, d in delta.items():
-            if kind[s] == KIND_COMPLEX:
-                j = int(ref[s])
-                for target, sign in ((cx["signal"][j], 1), (cx["gate"][j], 1),
-                                     (cx["buffer"][j], -1)):
-                    folded[target] = folded.get(target, 0) + sign * d
-            else:
-                folded[s] = folded.get(s, 0) + d
+                tables.uses[int(b.ref[si])].append((c, others[0] if others else -1))
+        folded = _folded_change(net, r, b)
         for s in sorted(folded):
             if folded[s]:
-                change_species.append(s)
-                change_delta.append(folded[s])
-        change_ptr.append(len(change_species))
+                tables.change_species.append(s)
+                tables.change_delta.append(folded[s])
+        tables.change_ptr.append(len(tables.change_species))
+    return tables
+
+
+def _folded_change(net, r, b: _Bindings) -> dict[int, int]:
+    """Net change of reaction r with each complex counted in its signal, gate and buffer."""
+    delta: dict[int, int] = {}
+    for s, m in r.reactants.items():
+        delta[net.index[s]] = delta.get(net.index[s], 0) - m
+    for s, m in r.products.items():
+        delta[net.index[s]] = delta.get(net.index[s], 0) + m
+    folded: dict[int, int] = {}
+    for s, d in delta.items():
+        if b.kind[s] == KIND_COMPLEX:
+            j = int(b.ref[s])
+            for target, sign in ((b.signal[j], 1), (b.gate[j], 1), (b.buffer[j], -1)):
+                folded[target] = folded.get(target, 0) + sign * d
+        else:
+            folded[s] = folded.get(s, 0) + d
+    return folded
+
+
+def _ints(values) -> np.ndarray:
+    return np.ascontiguousarray(values, dtype=np.int64)
+
+
+def _floats(values) -> np.ndarray:
+    return np.ascontiguousarray(values, dtype=np.float64)
+
+
+def _assemble(net, b: _Bindings, tables: _SlowTables, slow: list[int],
+              protocol: ProtocolForm | None) -> Reduction:
+    """The :class:`Reduction` arrays, with the sets' complexes and the complexes' uses as CSR."""
+    n_cx = len(b.species)
     set_ptr: list[int] = [0]
     set_cx: list[int] = []
-    for g in range(len(sets)):
-        set_cx.extend(j for j in range(n_cx) if cx["set"][j] == g)
+    for g in range(len(b.sets)):
+        set_cx.extend(j for j in range(n_cx) if b.set[j] == g)
         set_ptr.append(len(set_cx))
     use_ptr, use_rate, use_partner = [0], [], []
     for j in range(n_cx):
-        for c, partner in uses[j]:
+        for c, partner in tables.uses[j]:
             use_rate.append(c)
             use_partner.append(partner)
         use_ptr.append(len(use_rate))
-
-    def ints(values):
-        return np.ascontiguousarray(values, dtype=np.int64)
-
-    def floats(values):
-        return np.ascontiguousarray(values, dtype=np.float64)
-
-    slow_index = ints(slow)
-    protocol = _protocol_form(impl, slow, kind, ref, cx["signal"], change_ptr, change_species,
-                              change_delta, constants)
+    slow_index = _ints(slow)
     return Reduction(
-        kind=kind, ref=ref, cx_signal=ints(cx["signal"]), cx_gate=ints(cx["gate"]),
-        cx_buffer=ints(cx["buffer"]), cx_species=ints(cx["species"]), cx_set=ints(cx["set"]),
-        cx_forward=floats(cx["forward"]), cx_back=floats(cx["back"]), set_signal=ints(sets),
-        set_ptr=ints(set_ptr), set_cx=ints(set_cx), use_ptr=ints(use_ptr),
-        use_rate=floats(use_rate), use_partner=ints(use_partner),
+        kind=b.kind, ref=b.ref, cx_signal=_ints(b.signal), cx_gate=_ints(b.gate),
+        cx_buffer=_ints(b.buffer), cx_species=_ints(b.species), cx_set=_ints(b.set),
+        cx_forward=_floats(b.forward), cx_back=_floats(b.back), set_signal=_ints(b.sets),
+        set_ptr=_ints(set_ptr), set_cx=_ints(set_cx), use_ptr=_ints(use_ptr),
+        use_rate=_floats(use_rate), use_partner=_ints(use_partner),
         reactant_species=np.ascontiguousarray(net.reactant_species[slow_index]),
         reactant_counts=np.ascontiguousarray(net.reactant_counts[slow_index]),
-        constants=floats(constants), change_ptr=ints(change_ptr),
-        change_species=ints(change_species), change_delta=ints(change_delta),
+        constants=_floats(tables.constants), change_ptr=_ints(tables.change_ptr),
+        change_species=_ints(tables.change_species), change_delta=_ints(tables.change_delta),
         slow=slow_index, protocol=protocol)
 
 
@@ -433,7 +501,6 @@ def _protocol_form(impl, slow, kind, ref, cx_signal, change_ptr, change_species,
         partner=np.array(rows["partner"], dtype=np.int64),
         first_step=np.array(rows["first"], dtype=np.float64),
         change=np.array(rows["change"], dtype=np.int64))
-
 
 
 def reduced_network(impl) -> ReducedNetwork | str:

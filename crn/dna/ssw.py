@@ -51,15 +51,13 @@ strand and the translator bottom strand.
 
 from __future__ import annotations
 
-from crn.core.network import Network
+from crn.core.network import Network, Reaction
 from crn.dna.implementation import (
     Builder,
     Implementation,
     Module,
     add_strands,
-    buffer_modules,
-    formal_reactions,
-    order_reactants,
+    implement_each,
     signal_strands,
 )
 from crn.dna.parameters import DnaParameters
@@ -91,62 +89,55 @@ def implement_ssw(formal: Network, params: DnaParameters) -> Implementation:
     ----------
     Soloveichik, Seelig & Winfree, PNAS 107(12):5393-5398, 2010.
     """
-    b = Builder(formal, params, "ssw")
-    p = params
+    return implement_each(formal, params, "ssw", _module)
+
+
+def _module(b: Builder, i: int, r: Reaction, load: dict[str, float]) -> None:
+    """The gates, intermediates and wastes of formal reaction i (and its leak)."""
+    p = b.params
     q_max, c_max = p.q_max, p.fuel_molar
-    reactions = formal_reactions(formal, "ssw")
-    load = {s: 0.0 for s in formal.species}  # first-step rate total of each species (/M/s)
-    for i, r in reactions:
-        tag = f"r{i + 1}"
-        what = f"formal reaction {i + 1} ({r})"
-        k = r.rate * p.rate  # /M/s (bimolecular); for order 1 times C below
-        out_top = f"{tag}_out_top"
-        bottom = f"{tag}_gate_bottom"
-        fuel_used = {}
-        if r.order == 1:
-            (x,) = r.reactants
-            q = r.rate * p.rate * p.concentration / c_max  # /s -> /M/s at C_max
-            b.check_displacement(q, what)
-            gate = b.add(f"G_{tag}", "fuel", {bottom: 1, out_top: 1})
-            used = b.add(f"W_{tag}", "waste", {bottom: 1, f"{x}_strand": 1})
-            first_gate, first_extra = gate, {}
-        else:
-            b.check_displacement(k, what)
-            x1, x2 = order_reactants(formal, r.reactants, load)
-            load[x1] += k
-            q = k
-            buffer_top = f"{tag}_buffer_top"
-            gate = b.add(f"L_{tag}", "fuel", {bottom: 1, buffer_top: 1, out_top: 1})
-            buffer = b.add(f"B_{tag}", "fuel", {buffer_top: 1})
-            held = b.add(f"H_{tag}", "intermediate", {bottom: 1, f"{x1}_strand": 1, out_top: 1})
-            used = b.add(f"W_{tag}", "waste",
-                         add_strands({bottom: 1}, signal_strands(r.reactants)))
-            first_gate, first_extra = gate, {buffer: 1}
-        has_products = bool(r.products)
-        out = b.add(f"O_{tag}", "intermediate" if has_products else "waste", {out_top: 1})
-        if r.order == 1:
-            b.react({x: 1, gate: 1}, {out: 1, used: 1}, q)
-        else:
-            b.react({x1: 1, gate: 1}, {held: 1, buffer: 1}, q)
-            b.react({held: 1, buffer: 1}, {x1: 1, gate: 1}, q_max)
-            b.react({x2: 1, held: 1}, {out: 1, used: 1}, q_max)
-        fuel_used[gate] = 1
-        module = [gate, used, out] + ([buffer, held] if r.order == 2 else [])
-        if has_products:
-            t_bottom = f"{tag}_translator_bottom"
-            translator = b.add(f"T_{tag}", "fuel",
-                               add_strands({t_bottom: 1}, signal_strands(r.products)))
-            spent = b.add(f"WT_{tag}", "waste", {t_bottom: 1, out_top: 1})
-            b.react({out: 1, translator: 1}, add_strands(r.products, {spent: 1}), q_max)
-            fuel_used[translator] = 1
-            module += [translator, spent]
-            if p.leak > 0:
-                leaked = b.add(f"WL_{tag}", "waste",
-                               {bottom: 1, out_top: 1, t_bottom: 1})
-                b.react({first_gate: 1, translator: 1},
-                        add_strands(r.products, first_extra, {leaked: 1}), p.leak, leak=True)
-                module.append(leaked)
-        b.modules.append(Module(formal=i, buffers=None, species=tuple(module),
-                                fuel_per_firing=fuel_used))
-    buffer_modules(b, load, q_max)
-    return b.build()
+    tag = f"r{i + 1}"
+    out_top = f"{tag}_out_top"
+    bottom = f"{tag}_gate_bottom"
+    fuel_used = {}
+    if r.order == 1:
+        (x,) = r.reactants
+        q = r.rate * p.rate * p.concentration / c_max  # /s -> /M/s at C_max
+        b.check_displacement(q, f"formal reaction {i + 1} ({r})")
+        gate = b.add(f"G_{tag}", "fuel", {bottom: 1, out_top: 1})
+        used = b.add(f"W_{tag}", "waste", {bottom: 1, f"{x}_strand": 1})
+        first_gate, first_extra = gate, {}
+    else:
+        x1, x2, q = b.first_step(i, r, load)
+        buffer_top = f"{tag}_buffer_top"
+        gate = b.add(f"L_{tag}", "fuel", {bottom: 1, buffer_top: 1, out_top: 1})
+        buffer = b.add(f"B_{tag}", "fuel", {buffer_top: 1})
+        held = b.add(f"H_{tag}", "intermediate", {bottom: 1, f"{x1}_strand": 1, out_top: 1})
+        used = b.add(f"W_{tag}", "waste",
+                     add_strands({bottom: 1}, signal_strands(r.reactants)))
+        first_gate, first_extra = gate, {buffer: 1}
+    has_products = bool(r.products)
+    out = b.add(f"O_{tag}", "intermediate" if has_products else "waste", {out_top: 1})
+    if r.order == 1:
+        b.react({x: 1, gate: 1}, {out: 1, used: 1}, q)
+    else:
+        b.bind(x1, gate, held, buffer, q)
+        b.react({x2: 1, held: 1}, {out: 1, used: 1}, q_max)
+    fuel_used[gate] = 1
+    module = [gate, used, out] + ([buffer, held] if r.order == 2 else [])
+    if has_products:
+        t_bottom = f"{tag}_translator_bottom"
+        translator = b.add(f"T_{tag}", "fuel",
+                           add_strands({t_bottom: 1}, signal_strands(r.products)))
+        spent = b.add(f"WT_{tag}", "waste", {t_bottom: 1, out_top: 1})
+        b.react({out: 1, translator: 1}, add_strands(r.products, {spent: 1}), q_max)
+        fuel_used[translator] = 1
+        module += [translator, spent]
+        if p.leak > 0:
+            leaked = b.add(f"WL_{tag}", "waste",
+                           {bottom: 1, out_top: 1, t_bottom: 1})
+            b.react({first_gate: 1, translator: 1},
+                    add_strands(r.products, first_extra, {leaked: 1}), p.leak, leak=True)
+            module.append(leaked)
+    b.modules.append(Module(formal=i, buffers=None, species=tuple(module),
+                            fuel_per_firing=fuel_used))

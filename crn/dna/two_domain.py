@@ -42,16 +42,8 @@ per reaction, the join and fork bottom strands, the two released top strands
 from __future__ import annotations
 
 from crn.core.errors import CRNError
-from crn.core.network import Network
-from crn.dna.implementation import (
-    Builder,
-    Implementation,
-    Module,
-    add_strands,
-    buffer_modules,
-    formal_reactions,
-    order_reactants,
-)
+from crn.core.network import Network, Reaction
+from crn.dna.implementation import Builder, Implementation, Module, add_strands, implement_each
 from crn.dna.parameters import DnaParameters
 
 __all__ = ["implement_two_domain"]
@@ -81,67 +73,65 @@ def implement_two_domain(formal: Network, params: DnaParameters) -> Implementati
     ----------
     Cardelli, Math. Struct. Comp. Sci. 23(2):247-271, 2013.
     """
-    b = Builder(formal, params, "two-domain")
-    p = params
+    return implement_each(formal, params, "two-domain", _join_fork, check=_check)
+
+
+def _check(i: int, r: Reaction) -> None:
+    """Raise for a formal reaction the scheme cannot build."""
+    n_products = sum(r.products.values())
+    if r.order != 2 or not 1 <= n_products <= 2:
+        raise CRNError(
+            f"formal reaction {i + 1} ({r}) cannot be implemented by the two-domain "
+            f"scheme, which builds bimolecular reactions with one or two products; use "
+            f"--scheme ssw")
+
+
+def _join_fork(b: Builder, i: int, r: Reaction, load: dict[str, float]) -> None:
+    """The join and fork gates of formal reaction i (and its leak)."""
+    p = b.params
     q_max = p.q_max
-    reactions = formal_reactions(formal, "two-domain")
-    for i, r in reactions:
-        n_products = sum(r.products.values())
-        if r.order != 2 or not 1 <= n_products <= 2:
-            raise CRNError(
-                f"formal reaction {i + 1} ({r}) cannot be implemented by the two-domain "
-                f"scheme, which builds bimolecular reactions with one or two products; use "
-                f"--scheme ssw")
-    load = {s: 0.0 for s in formal.species}
-    for i, r in reactions:
-        tag = f"r{i + 1}"
-        k = r.rate * p.rate
-        b.check_displacement(k, f"formal reaction {i + 1} ({r})")
-        x1, x2 = order_reactants(formal, r.reactants, load)
-        load[x1] += k
-        products = [s for s, m in r.products.items() for _ in range(m)]
-        y1 = products[0]
-        y2 = products[1] if len(products) > 1 else None
-        j_bot, f_bot = f"{tag}_join_bottom", f"{tag}_fork_bottom"
-        s_r1, s_r2, s_a = f"{tag}_x1t", f"{tag}_x2t", f"{tag}_at"
-        s_hj, s_hf = f"{tag}_join_helper", f"{tag}_fork_helper"
-        s_y2 = f"{y2}_strand" if y2 is not None else f"{tag}_spare"
-        join = b.add(f"J_{tag}", "fuel", {j_bot: 1, s_r1: 1, s_r2: 1, s_a: 1})
-        r1 = b.add(f"R1_{tag}", "fuel", {s_r1: 1})
-        j1 = b.add(f"J1_{tag}", "intermediate", {j_bot: 1, f"{x1}_strand": 1, s_r2: 1, s_a: 1})
-        r2 = b.add(f"R2_{tag}", "intermediate", {s_r2: 1})
-        j2 = b.add(f"J2_{tag}", "intermediate",
-                   add_strands({j_bot: 1, s_a: 1}, {f"{x1}_strand": 1}, {f"{x2}_strand": 1}))
-        hj = b.add(f"HJ_{tag}", "fuel", {s_hj: 1})
-        j3 = b.add(f"J3_{tag}", "waste",
-                   add_strands({j_bot: 1, s_hj: 1}, {f"{x1}_strand": 1}, {f"{x2}_strand": 1}))
-        a = b.add(f"A_{tag}", "intermediate", {s_a: 1})
-        fork = b.add(f"F_{tag}", "fuel", add_strands({f_bot: 1, s_y2: 1}, {f"{y1}_strand": 1}))
-        f1 = b.add(f"F1_{tag}", "intermediate", {f_bot: 1, s_a: 1, s_y2: 1})
-        hf = b.add(f"HF_{tag}", "fuel", {s_hf: 1})
-        f2 = b.add(f"F2_{tag}", "waste", {f_bot: 1, s_a: 1, s_hf: 1})
-        module = [join, r1, j1, r2, j2, hj, j3, a, fork, f1, hf, f2]
-        b.react({x1: 1, join: 1}, {j1: 1, r1: 1}, k)
-        b.react({j1: 1, r1: 1}, {x1: 1, join: 1}, q_max)
-        b.react({x2: 1, j1: 1}, {j2: 1, r2: 1}, q_max)
-        b.react({j2: 1, r2: 1}, {x2: 1, j1: 1}, q_max)
-        b.react({j2: 1, hj: 1}, {j3: 1, a: 1}, q_max)
-        b.react({a: 1, fork: 1}, {f1: 1, y1: 1}, q_max)
-        b.react({f1: 1, y1: 1}, {a: 1, fork: 1}, q_max)
-        if y2 is not None:
-            b.react({f1: 1, hf: 1}, add_strands({f2: 1}, {y2: 1}), q_max)
-        else:
-            spare = b.add(f"S_{tag}", "waste", {s_y2: 1})
-            b.react({f1: 1, hf: 1}, {f2: 1, spare: 1}, q_max)
-            module.append(spare)
-        if p.leak > 0:
-            leaked = b.add(f"WL_{tag}", "waste", {f_bot: 1, s_hf: 1})
-            out = add_strands({y1: 1}, {y2: 1} if y2 is not None else {}, {leaked: 1})
-            if y2 is None:
-                out = add_strands(out, {spare: 1})
-            b.react({fork: 1, hf: 1}, out, p.leak, leak=True)
-            module.append(leaked)
-        b.modules.append(Module(formal=i, buffers=None, species=tuple(module),
-                                fuel_per_firing={join: 1, hj: 1, fork: 1, hf: 1}))
-    buffer_modules(b, load, q_max)
-    return b.build()
+    tag = f"r{i + 1}"
+    x1, x2, k = b.first_step(i, r, load)
+    products = [s for s, m in r.products.items() for _ in range(m)]
+    y1 = products[0]
+    y2 = products[1] if len(products) > 1 else None
+    j_bot, f_bot = f"{tag}_join_bottom", f"{tag}_fork_bottom"
+    s_r1, s_r2, s_a = f"{tag}_x1t", f"{tag}_x2t", f"{tag}_at"
+    s_hj, s_hf = f"{tag}_join_helper", f"{tag}_fork_helper"
+    s_y2 = f"{y2}_strand" if y2 is not None else f"{tag}_spare"
+    join = b.add(f"J_{tag}", "fuel", {j_bot: 1, s_r1: 1, s_r2: 1, s_a: 1})
+    r1 = b.add(f"R1_{tag}", "fuel", {s_r1: 1})
+    j1 = b.add(f"J1_{tag}", "intermediate", {j_bot: 1, f"{x1}_strand": 1, s_r2: 1, s_a: 1})
+    r2 = b.add(f"R2_{tag}", "intermediate", {s_r2: 1})
+    j2 = b.add(f"J2_{tag}", "intermediate",
+               add_strands({j_bot: 1, s_a: 1}, {f"{x1}_strand": 1}, {f"{x2}_strand": 1}))
+    hj = b.add(f"HJ_{tag}", "fuel", {s_hj: 1})
+    j3 = b.add(f"J3_{tag}", "waste",
+               add_strands({j_bot: 1, s_hj: 1}, {f"{x1}_strand": 1}, {f"{x2}_strand": 1}))
+    a = b.add(f"A_{tag}", "intermediate", {s_a: 1})
+    fork = b.add(f"F_{tag}", "fuel", add_strands({f_bot: 1, s_y2: 1}, {f"{y1}_strand": 1}))
+    f1 = b.add(f"F1_{tag}", "intermediate", {f_bot: 1, s_a: 1, s_y2: 1})
+    hf = b.add(f"HF_{tag}", "fuel", {s_hf: 1})
+    f2 = b.add(f"F2_{tag}", "waste", {f_bot: 1, s_a: 1, s_hf: 1})
+    module = [join, r1, j1, r2, j2, hj, j3, a, fork, f1, hf, f2]
+    b.bind(x1, join, j1, r1, k)
+    b.react({x2: 1, j1: 1}, {j2: 1, r2: 1}, q_max)
+    b.react({j2: 1, r2: 1}, {x2: 1, j1: 1}, q_max)
+    b.react({j2: 1, hj: 1}, {j3: 1, a: 1}, q_max)
+    b.react({a: 1, fork: 1}, {f1: 1, y1: 1}, q_max)
+    b.react({f1: 1, y1: 1}, {a: 1, fork: 1}, q_max)
+    if y2 is not None:
+        b.react({f1: 1, hf: 1}, add_strands({f2: 1}, {y2: 1}), q_max)
+    else:
+        spare = b.add(f"S_{tag}", "waste", {s_y2: 1})
+        b.react({f1: 1, hf: 1}, {f2: 1, spare: 1}, q_max)
+        module.append(spare)
+    if p.leak > 0:
+        leaked = b.add(f"WL_{tag}", "waste", {f_bot: 1, s_hf: 1})
+        out = add_strands({y1: 1}, {y2: 1} if y2 is not None else {}, {leaked: 1})
+        if y2 is None:
+            out = add_strands(out, {spare: 1})
+        b.react({fork: 1, hf: 1}, out, p.leak, leak=True)
+        module.append(leaked)
+    b.modules.append(Module(formal=i, buffers=None, species=tuple(module),
+                            fuel_per_firing={join: 1, hj: 1, fork: 1, hf: 1}))

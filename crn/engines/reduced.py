@@ -20,7 +20,12 @@ import numpy as np
 
 from crn.core.outcome import RunOutcome
 from crn.engines.base import Trajectory, check_horizon
-from crn.engines.direct import _label_now
+from crn.engines.kernel_parts import (
+    apply_change,
+    label_counts,
+    label_now,
+    record_until,
+)
 
 __all__ = ["run_reduced", "reduced_propensities"]
 
@@ -122,6 +127,12 @@ def _propensity(r, x, rs, rc, c, kind, group, set_signal, frac, eff):
 def _kernel(kind, ref, group, used, cx_signal, cx_gate, cx_buffer, cx_set, cx_forward,
             cx_back, set_signal, set_ptr, set_cx, use_ptr, use_rate, use_partner, rs, rc, c,
             ch_ptr, ch_sp, ch_d, species_label, n_labels, x0, times, until, stop_at_consensus, rng):
+    """One direct-method run of the slow reactions, the quasi-steady state recomputed per event.
+
+    Draws as the direct engine's kernel does (the waiting time, then a linear search for
+    ``u * a0`` over the slow reactions in order) and shares its steps for the state,
+    consensus and samples (:mod:`crn.engines.kernel_parts`); returns the same tuple.
+    """
     n_species = x0.shape[0]
     n_slow = c.shape[0]
     n_cx = cx_signal.shape[0]
@@ -135,15 +146,8 @@ def _kernel(kind, ref, group, used, cx_signal, cx_gate, cx_buffer, cx_set, cx_fo
     frac = np.ones(n_species)
     eff = np.zeros(n_species)
 
-    present = np.zeros(max(n_labels, 1), dtype=np.int64)
-    unlabeled = 0
-    for s in range(n_species):
-        if x[s] > 0:
-            if species_label[s] == -1:
-                unlabeled += 1
-            elif species_label[s] >= 0:
-                present[species_label[s]] += 1
-    first_label = _label_now(present, unlabeled, n_labels)
+    present, unlabeled = label_counts(x, species_label, n_labels)
+    first_label = label_now(present, unlabeled, n_labels)
     first_time = 0.0 if first_label >= 0 else np.nan
     t = 0.0
     events = 0
@@ -165,9 +169,7 @@ def _kernel(kind, ref, group, used, cx_signal, cx_gate, cx_buffer, cx_set, cx_fo
         t_next = t - np.log(1.0 - rng.random()) / a0
         if t_next > until:
             break
-        while k < times.shape[0] and times[k] < t_next:
-            counts[k] = x
-            k += 1
+        k = record_until(counts, times, k, x, t_next)
         target = rng.random() * a0
         acc = 0.0
         pick = -1
@@ -177,31 +179,39 @@ def _kernel(kind, ref, group, used, cx_signal, cx_gate, cx_buffer, cx_set, cx_fo
                 acc += a[r]
                 if acc > target:
                     break
+        unlabeled = apply_change(x, pick, ch_ptr, ch_sp, ch_d, species_label, present,
+                                 unlabeled)
         for i in range(ch_ptr[pick], ch_ptr[pick + 1]):
-            s = ch_sp[i]
-            before = x[s]
-            x[s] = before + ch_d[i]
-            xf[s] = float(x[s])
-            if (before > 0) != (x[s] > 0):
-                step = 1 if x[s] > 0 else -1
-                if species_label[s] == -1:
-                    unlabeled += step
-                elif species_label[s] >= 0:
-                    present[species_label[s]] += step
+            xf[ch_sp[i]] = float(x[ch_sp[i]])
         t = t_next
         events += 1
-        label = _label_now(present, unlabeled, n_labels)
+        label = label_now(present, unlabeled, n_labels)
         if label >= 0 and first_label < 0:
             first_label = label
             first_time = t
             if stop_at_consensus:
                 status = 2
     end_time = t if status != 0 else until
-    while k < times.shape[0]:
-        counts[k] = x
-        k += 1
-    last = _label_now(present, unlabeled, n_labels)
+    record_until(counts, times, k, x, np.inf)
+    last = label_now(present, unlabeled, n_labels)
     return counts, first_label, first_time, last, events, end_time, status
+
+
+def _quasi_steady(x, red) -> tuple[np.ndarray, np.ndarray]:
+    """Quasi-steady state of reduction ``red`` at the folded state x (float64).
+
+    Returns ``(frac, eff)``, indexed by species: the share of its signal's total a signal
+    or complex species holds, and the mean count of every species a slow reaction uses.
+    """
+    n_cx = red.n_complexes
+    share, bound = np.zeros(n_cx), np.zeros(n_cx)
+    free = np.ones(red.set_signal.shape[0])
+    frac, eff = np.ones(x.shape[0]), np.zeros(x.shape[0])
+    _steady(x, red.kind, red.ref, red.cx_signal, red.cx_gate, red.cx_buffer, red.cx_set,
+            red.cx_forward, red.cx_back, red.set_signal, red.set_ptr, red.set_cx, red.use_ptr,
+            red.use_rate, red.use_partner, share, free, bound)
+    _effective(x, red.kind, red.ref, red.cx_set, red.used, share, free, bound, frac, eff)
+    return frac, eff
 
 
 def reduced_propensities(net, counts) -> np.ndarray:
@@ -222,14 +232,7 @@ def reduced_propensities(net, counts) -> np.ndarray:
     if red is None:
         raise TypeError("`net` must carry a reduced model (crn.dna.reduced.reduced_network)")
     x = red.fold(counts).astype(np.float64)
-    n_cx = red.n_complexes
-    share, bound = np.zeros(n_cx), np.zeros(n_cx)
-    free = np.ones(red.set_signal.shape[0])
-    frac, eff = np.ones(x.shape[0]), np.zeros(x.shape[0])
-    _steady(x, red.kind, red.ref, red.cx_signal, red.cx_gate, red.cx_buffer, red.cx_set,
-            red.cx_forward, red.cx_back, red.set_signal, red.set_ptr, red.set_cx, red.use_ptr,
-            red.use_rate, red.use_partner, share, free, bound)
-    _effective(x, red.kind, red.ref, red.cx_set, red.used, share, free, bound, frac, eff)
+    frac, eff = _quasi_steady(x, red)
     return np.array([_propensity(r, x, red.reactant_species, red.reactant_counts, red.constants,
                                  red.kind, red.group, red.set_signal, frac, eff)
                      for r in range(red.constants.shape[0])])

@@ -79,16 +79,9 @@ def _prepared(net):
 
 def _rate_constants(x, red, form, volume) -> np.ndarray:
     """Network rate constant of each formal reaction at the folded state x (quasi-steady)."""
-    from crn.engines.reduced import _effective, _steady
+    from crn.engines.reduced import _quasi_steady
 
-    n_cx = red.n_complexes
-    share, bound = np.zeros(n_cx), np.zeros(n_cx)
-    free = np.ones(red.set_signal.shape[0])
-    frac, eff = np.ones(x.shape[0]), np.zeros(x.shape[0])
-    _steady(x, red.kind, red.ref, red.cx_signal, red.cx_gate, red.cx_buffer, red.cx_set,
-            red.cx_forward, red.cx_back, red.set_signal, red.set_ptr, red.set_cx, red.use_ptr,
-            red.use_rate, red.use_partner, share, free, bound)
-    _effective(x, red.kind, red.ref, red.cx_set, red.used, share, free, bound, frac, eff)
+    frac, _ = _quasi_steady(x, red)
     held = red.cx_species[form.complex]
     return form.first_step * volume * frac[form.partner] * frac[held]
 
