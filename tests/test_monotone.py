@@ -10,14 +10,17 @@ the exact chain of crn.solvers.exact for the numbers).
 from __future__ import annotations
 
 import itertools
+import json
 
 import numpy as np
 import pytest
+from click.testing import CliRunner
 from seeds import seed
 
 from crn.analyses.monotone import implies, monotone_order
 from crn.analyses.probes import InitialSplit
 from crn.analyses.regimes import RegimeCell, regime_map
+from crn.cli import cli
 from crn.core.protocol import Outcome, Protocol
 from crn.core.translate import protocol_to_network
 from crn.io.models import load_model
@@ -148,3 +151,17 @@ def test_rows_give_the_same_cells_on_one_or_two_workers(workers):
                         workers=workers)
     reference = regime_map(InitialSplit(net), [200, 6000], gap_fractions=[0.05, 0.3], rng=seed(3))
     assert result.cells == reference.cells
+
+
+def test_cli_marks_implied_cells_and_samples_every_cell_on_request():
+    args = ["regimes", "models/approximate_majority.toml", "--n", "3000", "--gap-fractions",
+            "0.1,0.3", "--seed", str(seed(7))]
+    runner = CliRunner()
+    fast = runner.invoke(cli, [*args, "--json"], catch_exceptions=False)
+    full = runner.invoke(cli, [*args, "--json", "--sample-every-cell"], catch_exceptions=False)
+    fast_cells, full_cells = json.loads(fast.output)["cells"], json.loads(full.output)["cells"]
+    assert [c["flag"] for c in fast_cells] == [c["flag"] for c in full_cells] == ["ok", "ok"]
+    assert fast_cells[1]["implied_by"] == fast_cells[0]["gap"] and fast_cells[1]["runs"] == 50
+    assert all(c["implied_by"] is None for c in full_cells) and full_cells[1]["runs"] == 400
+    text = runner.invoke(cli, args, catch_exceptions=False).output
+    assert f"implied by gap {fast_cells[0]['gap']}" in text

@@ -115,13 +115,16 @@ def _fmt(value, spec=".3g"):
 @json_option
 @implementation_options
 @full_network_option
+@click.option("--sample-every-cell", is_flag=True,
+              help="Sample every cell in full, also those a monotone protocol's coupling "
+                   "decides from an ok cell with a smaller gap (see docs/design.md).")
 @click.option("--leak-tolerance", "with_leak_tolerance", is_flag=True,
               help="With --implement: for each cell, the largest leak rate constant at which "
                    "it stays ok with the correct decision (many more runs).")
 def regimes(model, sets, n_list, gap_list, fraction_list, risk, until, runs_max, time_factor,
             method, plot_path, csv_path, out_dir, resume, workers, cluster, max_memory, force,
             seed, as_json, implement, fuel, max_rate, toehold, leak, rate, concentration,
-            with_leak_tolerance, full_network):
+            sample_every_cell, with_leak_tolerance, full_network):
     """Sweep MODEL over populations n and gaps: for each cell, the ODE's decision, the
     probability that a stochastic run disagrees with it (95% interval, simultaneous over the
     sequential looks (Clopper-Pearson, Bonferroni)), the flag, the times;
@@ -161,7 +164,7 @@ def regimes(model, sets, n_list, gap_list, fraction_list, risk, until, runs_max,
     result = _run_sweep(networks, ns, sweep, len(cells), as_json, gaps=gaps,
                         gap_fractions=fractions, risk=risk, until=until, runs_max=runs_max,
                         time_factor=time_factor, method=method, workers=workers,
-                        cluster=cluster)
+                        cluster=cluster, monotone=not sample_every_cell)
     payload = result_json(model_obj.name, result)
     tolerances = None
     if settings is not None:
@@ -320,7 +323,7 @@ def _text(name, result: RegimeMap) -> str:
         lines.append(
             f"{c.n:>10} {c.gap:>8} {c.ode_label or '-':>5} {_fmt(c.ode_time):>8} "
             f"{c.p_wrong:>12.4g} [{c.low:8.3g}, {c.high:8.3g}] {c.runs:>6} {c.flag:>10} "
-            f"{_fmt(c.ssa_median_time):>8} {c.time_flag:>7} {c.method}")
+            f"{_fmt(c.ssa_median_time):>8} {c.time_flag:>7} {c.how}")
     for m in result.merged:
         lines.append(f"merged: at n={m['n']} the gap fractions "
                      + ", ".join(f"{f:g}" for f in m["gap_fractions"])
