@@ -56,20 +56,35 @@ def process_pool(workers: int, context: str | None = "spawn") -> Iterator[Proces
     import multiprocessing
     from concurrent.futures import ProcessPoolExecutor
 
+    earlier = set(multiprocessing.active_children())
     pool = ProcessPoolExecutor(max_workers=int(workers),
                                mp_context=multiprocessing.get_context(context),
                                initializer=worker_initializer)
     try:
         yield pool
     except BaseException:
-        stop_workers(pool)
+        stop_workers(pool, keep=earlier)
         raise
     pool.shutdown(wait=True)
 
 
-def stop_workers(pool: ProcessPoolExecutor) -> None:
-    """Kill the pool's workers now and reap them; the pool is unusable afterwards."""
-    processes = list((getattr(pool, "_processes", None) or {}).values())
+def stop_workers(pool: ProcessPoolExecutor, keep: set | None = None) -> None:
+    """Kill the pool's workers now and reap them; the pool is unusable afterwards.
+
+    Parameters
+    ----------
+    pool : concurrent.futures.ProcessPoolExecutor
+    keep : set of multiprocessing.Process, optional
+        Child processes that existed before the pool. When given, every other
+        child of this process is taken for one of the pool's workers: a pool
+        found broken drops its workers from its own table before they have
+        exited (and ours ignore SIGTERM, which is all it sends them).
+    """
+    import multiprocessing
+
+    processes = set((getattr(pool, "_processes", None) or {}).values())
+    if keep is not None:
+        processes |= set(multiprocessing.active_children()) - keep
     for process in processes:
         with contextlib.suppress(Exception):
             process.kill()
