@@ -52,8 +52,9 @@ proportions are the point):
 
 Before: about 25 minutes on one worker. After the sequential test and the
 engine choice: 336 s on two workers (quiet machine, numba cache warm), with
-11,700 runs against 20,700. After implied cells: 194 s on two workers with
-5,400 runs (two other jobs on the machine).
+11,700 runs against 20,700. After implied cells (quiet machine, numba cache
+warm): 176.6 s on two workers and 241.6 s on one, with 5,400 runs; both give the
+same cells.
 
 Same table: each cell's ODE label, flag and time flag must equal the recorded
 table of the earlier code for seed 2026 (``regimes_seed2026.json``, computed
