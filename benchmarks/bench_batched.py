@@ -6,7 +6,7 @@ numba kernels, on one core. The reference is the direct method on the same
 protocol at n = 10**6 in the same process: the ratio says how many times more
 interactions per second the batched engine simulates.
 
-Goals (issue 4): approximate majority from a tie to consensus at n = 1e9 under
+Goals: approximate majority from a tie to consensus at n = 1e9 under
 10 s median; one unit of parallel time at n = 2**50 under 200 s (published
 anchor: 2**50 interactions among 2**50 agents in under 400 s, Berenbrink et al.,
 ESA 2020); a generated protocol with at least 100 states at n = 1e8 at 1e8

@@ -1,6 +1,6 @@
 """Exact analysis of three-state approximate majority at n = 3000 (4.5 million configurations).
 
-Goal (issue 12): enumeration plus solve under 60 s and 8 GiB at n = 3000 (issue 5:
+Goal: enumeration plus solve under 60 s and 8 GiB at n = 3000 (earlier goal:
 n = 1000 under 30 s and 4 GiB). Prints, for a reference run at n = 1000 and then
 the target in the same process, the seconds of each stage, the peak resident
 memory of the process (it only grows, so the second figure is the target's),

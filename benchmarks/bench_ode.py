@@ -7,7 +7,7 @@ takes the initiator's level. With the same count at every level the level
 distribution stays uniform, so the mean field reaches consensus like
 three-state approximate majority slowed by K / (2w + 1).
 
-Goals (issue 3): one right-hand side under 1 ms; the full solve to consensus at
+Goals: one right-hand side under 1 ms; the full solve to consensus at
 least 10 times faster than GillesPy2's ODE solver. GillesPy2 evaluates every
 propensity string in Python at each step, so it is timed on the largest
 member of the same family it solves within about a minute, and our solver on

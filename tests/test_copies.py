@@ -196,7 +196,7 @@ def test_cli_reports_bracket_interval_and_caution():
                                  "1h", "--seed", "4", "--method", "exact", "--json"])
     assert result.exit_code == 0, result.output
     data = json.loads(result.output)
-    # issue 16: cautions travel with the wet-lab numbers
+    # cautions travel with the wet-lab numbers
     assert "model" in data["caution"] and "safety" in data["caution"]
     assert data["volume_liters"] is not None and data["hours"] is not None
     assert data["bracket"]["passes"] == data["n"]["estimate"]

@@ -1,5 +1,5 @@
 """Every file ``crn`` writes respects the umask, appears whole or not at all, and no
-temporary file is left in the target folder on any exit path (issue 14, promise 1)."""
+temporary file is left in the target folder on any exit path (README, "Reliability")."""
 
 import os
 import signal

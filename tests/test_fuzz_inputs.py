@@ -1,4 +1,4 @@
-"""Hostile and malformed input, fuzzed (issue 14, promise 4).
+"""Hostile and malformed input, fuzzed (README, "Reliability").
 
 Every reader either accepts its input or raises CRNError, which the command line
 prints as one line with exit status 2; nothing else escapes (that would be a

@@ -22,7 +22,7 @@ pytestmark = pytest.mark.skipif(not __import__("os").path.isdir("/proc"),
 
 AM = "models/approximate_majority.toml"
 EM = "models/exact_majority.toml"
-PROMISE = 1.0  # seconds from the signal to the exit (issue 14, promise 2)
+PROMISE = 1.0  # seconds from the signal to the exit (README, "Interruption")
 
 
 def interrupt(args, signum, busy, settle=0.0, timeout=60.0):

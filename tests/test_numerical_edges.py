@@ -1,4 +1,4 @@
-"""Numerical edges (issue 14, promise 6): each gives a sensible answer or a one-line refusal."""
+"""Numerical edges (README, "Reliability"): each gives a sensible answer or a one-line refusal."""
 
 import json
 import math
