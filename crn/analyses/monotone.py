@@ -37,6 +37,7 @@ from __future__ import annotations
 
 import itertools
 from dataclasses import dataclass
+from functools import lru_cache
 
 import numpy as np
 
@@ -86,8 +87,10 @@ class MonotoneOrder:
         return bool(np.all(np.cumsum(up[::-1]) >= np.cumsum(low[::-1])))
 
 
-def _outcome_table(net: Network):
-    """(S, S, 2) array of each ordered pair's outputs, or None if some pair is randomized."""
+def _protocol(net: Network):
+    """(outcomes, time scale): an (S, S, 2) array of each ordered pair's outputs and the
+    protocol's parallel time per unit of network time; None if some pair is randomized.
+    """
     from crn.engines.batched import protocol_tables
 
     try:
@@ -106,7 +109,7 @@ def _outcome_table(net: Network):
                 out[p, q] = (tables["out_c"][o], tables["out_d"][o])
             else:
                 return None
-    return out
+    return out, tables["time_scale"]
 
 
 def _is_monotone(out: np.ndarray, rank: np.ndarray) -> bool:
@@ -153,28 +156,47 @@ def monotone_order(net: Network, label: str) -> MonotoneOrder | None:
     >>> monotone_order(net, "X").order
     ('Y', 'B', 'X')
     """
-    if label not in net.labels or len(net.species) > MAX_STATES:
+    if not _searchable(net, label):
+        return None
+    protocol = _protocol(net)
+    return None if protocol is None else _order_of(net, protocol[0], label)
+
+
+def _searchable(net: Network, label: str) -> bool:
+    """The checks before any table is built: a known label, few states, none ignored."""
+    return (label in net.labels and len(net.species) <= MAX_STATES
+            and not np.any(np.asarray(net.species_label) == IGNORED))
+
+
+def _order_of(net: Network, out: np.ndarray, label: str) -> MonotoneOrder | None:
+    """:func:`monotone_order` for a protocol whose outcome table is ``out``."""
+    if not _searchable(net, label):
         return None
     labels = np.asarray(net.species_label)
-    if np.any(labels == IGNORED):
-        return None
-    out = _outcome_table(net)
-    if out is None:
-        return None
-    target = net.labels.index(label)
-    for other in range(len(net.labels)):
-        if other != target and not _closed(out, np.flatnonzero(labels == other)):
+    order = _search(out.tobytes(), len(net.species), tuple(int(k) for k in labels),
+                    net.labels.index(label))
+    return None if order is None else MonotoneOrder(label, tuple(net.species[s] for s in order))
+
+
+@lru_cache(maxsize=256)
+def _search(table: bytes, n: int, labels: tuple[int, ...], target: int) -> tuple | None:
+    """Species indices from bottom to top of a monotone order with ``target``'s states on
+    top, or None (cached: every cell of a regime map runs the same protocol).
+    """
+    out = np.frombuffer(table, dtype=np.int64).reshape(n, n, 2)
+    kinds = np.array(labels)
+    for other in set(labels) - {target, -1}:
+        if not _closed(out, np.flatnonzero(kinds == other)):
             return None
-    n = len(net.species)
-    top = np.flatnonzero(labels == target)
-    rest = np.flatnonzero(labels != target)
+    top = np.flatnonzero(kinds == target)
+    rest = np.flatnonzero(kinds != target)
     for low_part in itertools.permutations(rest):
         for high_part in itertools.permutations(top):
-            order = list(low_part) + list(high_part)
+            order = [int(s) for s in (*low_part, *high_part)]
             rank = np.empty(n, dtype=np.int64)
             rank[order] = np.arange(n)
             if _is_monotone(out, rank):
-                return MonotoneOrder(label=label, order=tuple(net.species[s] for s in order))
+                return tuple(order)
     return None
 
 
@@ -197,18 +219,18 @@ def implies(decider: Network, cell: Network, label: str) -> MonotoneOrder | None
     MonotoneOrder or None
         None when any condition fails.
     """
-    from crn.engines.batched import protocol_tables
-
     if decider.species != cell.species or decider.labels != cell.labels:
         return None
     if not np.array_equal(decider.species_label, cell.species_label):
         return None
-    table = _outcome_table(decider)
-    if table is None or not np.array_equal(table, _outcome_table(cell)):
+    if not _searchable(cell, label):
         return None
-    if protocol_tables(decider)["time_scale"] != protocol_tables(cell)["time_scale"]:
+    first, second = _protocol(decider), _protocol(cell)
+    if first is None or second is None or first[1] != second[1]:
         return None
-    order = monotone_order(cell, label)
+    if not np.array_equal(first[0], second[0]):
+        return None
+    order = _order_of(cell, second[0], label)
     if order is None or not order.dominates(cell, cell.initial, decider.initial):
         return None
     return order
