@@ -13,6 +13,7 @@ from __future__ import annotations
 import contextlib
 import signal
 import sys
+import time
 from typing import TYPE_CHECKING
 
 if TYPE_CHECKING:
@@ -88,9 +89,15 @@ def stop_workers(pool: ProcessPoolExecutor, keep: set | None = None) -> None:
     for process in processes:
         with contextlib.suppress(Exception):
             process.kill()
+    # The pool's manager thread may reap a worker at the same time: our own wait then sees
+    # no child and returns at once while the process still reads as alive until that thread
+    # records the exit code, so wait for the exit to be recorded, not for one join.
+    deadline = time.monotonic() + 2.0
     for process in processes:
         with contextlib.suppress(Exception):
-            process.join(timeout=2)
+            process.join(timeout=max(deadline - time.monotonic(), 0.0))
+            while process.is_alive() and time.monotonic() < deadline:
+                time.sleep(0.01)
     # not cancel_futures: once the workers are gone the pool fails the queued futures
     # itself, and Python 3.11 errors on failing a future cancelled before.
     with contextlib.suppress(Exception):
